@@ -1,0 +1,379 @@
+package ingest
+
+import (
+	"crypto/sha256"
+	"crypto/sha512"
+	"encoding/hex"
+	"errors"
+	"fmt"
+	"hash"
+	"io"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+	"time"
+)
+
+// RawSettings say what a raw capture's name cannot: its sample rate, centre
+// frequency and, optionally, format and start time. They come from flags or
+// from the watched folder's config entry.
+type RawSettings struct {
+	Format     Format  // FormatUnknown: from the file extension
+	SampleRate float64 // samples per second; required for raw files
+	CenterHz   float64 // RF centre frequency, when HasCenter
+	HasCenter  bool
+	// Start is the time of the first sample. When zero, it is taken as the
+	// file's modification time minus the capture duration (a recorder
+	// closes the file after its last sample).
+	Start time.Time
+}
+
+// Segment is a stretch of a capture with one centre frequency and one
+// time reference: SigMF capture segments, or the whole of a raw file.
+type Segment struct {
+	SampleStart int64
+	CenterHz    float64
+	HasCenter   bool
+	Start       time.Time // time of SampleStart; zero when unknown
+}
+
+// Capture is an IQ recording ready to be read: its format, rate, timing
+// and size, checked. It holds no samples.
+type Capture struct {
+	Name       string // the path given to Open; callers may make it relative
+	DataPath   string
+	MetaPath   string // empty for raw files
+	Format     Format
+	SampleRate float64
+	Samples    int64 // number of complex samples in the data file
+	DataBytes  int64
+	Segments   []Segment // at least one, ascending SampleStart
+	Meta       *Meta     // nil for raw files
+}
+
+// CenterHz is the centre frequency of the first segment and whether it is
+// known.
+func (c *Capture) CenterHz() (float64, bool) { return c.Segments[0].CenterHz, c.Segments[0].HasCenter }
+
+// Start is the time of the first sample (zero when unknown).
+func (c *Capture) Start() time.Time { return c.Segments[0].Start }
+
+// Duration is the capture length.
+func (c *Capture) Duration() time.Duration {
+	return time.Duration(float64(c.Samples) / c.SampleRate * float64(time.Second))
+}
+
+// SampleTime returns the time of sample n using the segment that holds it.
+func (c *Capture) SampleTime(n int64) time.Time {
+	seg := c.SegmentAt(n)
+	if seg.Start.IsZero() {
+		return time.Time{}
+	}
+	return seg.Start.Add(time.Duration(float64(n-seg.SampleStart) / c.SampleRate * float64(time.Second)))
+}
+
+// SegmentAt returns the segment that holds sample n.
+func (c *Capture) SegmentAt(n int64) Segment {
+	seg := c.Segments[0]
+	for _, s := range c.Segments[1:] {
+		if s.SampleStart > n {
+			break
+		}
+		seg = s
+	}
+	return seg
+}
+
+// IsCaptureFile reports whether path names something Open can take: a SigMF
+// metadata or data file, or a raw file with a format extension.
+func IsCaptureFile(path string) bool {
+	ext := strings.ToLower(filepath.Ext(path))
+	if ext == MetaExt || ext == DataExt {
+		return true
+	}
+	_, ok := FormatForExtension(ext)
+	return ok
+}
+
+// CaptureError is a problem with one capture: the file and what is wrong.
+type CaptureError struct {
+	File    string
+	Problem error
+}
+
+func (e *CaptureError) Error() string { return e.File + ": " + e.Problem.Error() }
+func (e *CaptureError) Unwrap() error { return e.Problem }
+
+func captureErr(file string, format string, args ...any) error {
+	return &CaptureError{File: file, Problem: fmt.Errorf(format, args...)}
+}
+
+// Open checks a capture and returns its description. path is either file of
+// a SigMF pair (the other is found beside it) or a raw file, which takes
+// its format from raw.Format or its extension and its rate and centre from
+// raw. Every error is a *CaptureError naming the file and the problem.
+func Open(path string, raw RawSettings) (*Capture, error) {
+	ext := strings.ToLower(filepath.Ext(path))
+	if ext == MetaExt || ext == DataExt {
+		return openSigMF(path)
+	}
+	return openRaw(path, raw)
+}
+
+func openSigMF(path string) (*Capture, error) {
+	base := strings.TrimSuffix(path, filepath.Ext(path))
+	metaPath, dataPath := base+MetaExt, base+DataExt
+	f, err := os.Open(metaPath)
+	if err != nil {
+		return nil, captureErr(metaPath, "cannot read metadata: %w", unwrapPathError(err))
+	}
+	meta, err := ParseMeta(f)
+	f.Close()
+	if err != nil {
+		return nil, &CaptureError{File: metaPath, Problem: err}
+	}
+	format, err := ParseFormat(meta.Global.Datatype)
+	if err != nil {
+		return nil, captureErr(metaPath, "core:datatype: %w", err)
+	}
+	if meta.Global.SampleRate == 0 {
+		return nil, captureErr(metaPath, "global core:sample_rate is missing; detectors cannot run without a sample rate")
+	}
+	if meta.Global.Offset != 0 {
+		return nil, captureErr(metaPath, "global core:offset %d is not supported (split recordings); only 0", meta.Global.Offset)
+	}
+	c := &Capture{Name: path, DataPath: dataPath, MetaPath: metaPath, Format: format,
+		SampleRate: meta.Global.SampleRate, Meta: meta}
+	if err := c.statData(); err != nil {
+		return nil, err
+	}
+	for i, s := range meta.Captures {
+		if int64(s.SampleStart) >= c.Samples {
+			return nil, captureErr(dataPath, "data holds %d samples but captures[%d] starts at sample %d (data shorter than the metadata claims)", c.Samples, i, s.SampleStart)
+		}
+		c.Segments = append(c.Segments, Segment{SampleStart: int64(s.SampleStart), CenterHz: s.Frequency,
+			HasCenter: s.HasFrequency, Start: s.Datetime})
+	}
+	for i, a := range meta.Annotations {
+		end := a.SampleStart
+		if a.SampleCount != nil {
+			end += *a.SampleCount
+		}
+		if int64(end) > c.Samples {
+			return nil, captureErr(dataPath, "data holds %d samples but annotations[%d] reaches sample %d (data shorter than the metadata claims)", c.Samples, i, end)
+		}
+	}
+	if len(c.Segments) == 0 || c.Segments[0].SampleStart != 0 {
+		// SigMF: an empty captures array means one segment from sample 0;
+		// samples before the first segment have no stated parameters.
+		c.Segments = append([]Segment{{}}, c.Segments...)
+	}
+	return c, nil
+}
+
+func openRaw(path string, raw RawSettings) (*Capture, error) {
+	format := raw.Format
+	if format == FormatUnknown {
+		f, ok := FormatForExtension(filepath.Ext(path))
+		if !ok {
+			return nil, captureErr(path, "no sample format: the extension %q names none and no format was configured", filepath.Ext(path))
+		}
+		format = f
+	}
+	if !(raw.SampleRate > 0 && raw.SampleRate <= MaxSampleRate) || math.IsNaN(raw.SampleRate) {
+		return nil, captureErr(path, "raw capture needs a sample rate > 0 and ≤ %g (got %g): set it with --rate or the input's config", float64(MaxSampleRate), raw.SampleRate)
+	}
+	c := &Capture{Name: path, DataPath: path, Format: format, SampleRate: raw.SampleRate}
+	if err := c.statData(); err != nil {
+		return nil, err
+	}
+	start := raw.Start
+	if start.IsZero() {
+		if st, err := os.Stat(path); err == nil {
+			start = st.ModTime().UTC().Add(-c.Duration())
+		}
+	}
+	c.Segments = []Segment{{CenterHz: raw.CenterHz, HasCenter: raw.HasCenter, Start: start.UTC()}}
+	return c, nil
+}
+
+func (c *Capture) statData() error {
+	st, err := os.Stat(c.DataPath)
+	if err != nil {
+		return captureErr(c.DataPath, "cannot read data: %w", unwrapPathError(err))
+	}
+	if !st.Mode().IsRegular() {
+		return captureErr(c.DataPath, "not a regular file (%s)", st.Mode().Type())
+	}
+	f, err := os.Open(c.DataPath)
+	if err != nil {
+		return captureErr(c.DataPath, "cannot read data: %w", unwrapPathError(err))
+	}
+	f.Close()
+	size := st.Size()
+	if size == 0 {
+		return captureErr(c.DataPath, "data file is empty (zero length)")
+	}
+	sb := int64(c.Format.SampleBytes())
+	if rem := size % sb; rem != 0 {
+		return captureErr(c.DataPath, "length %d bytes is not a whole number of %s samples (%d bytes each): %d stray bytes from byte offset %d",
+			size, c.Format, sb, rem, size-rem)
+	}
+	c.DataBytes = size
+	c.Samples = size / sb
+	return nil
+}
+
+func unwrapPathError(err error) error {
+	var pe *os.PathError
+	if errors.As(err, &pe) {
+		return pe.Err
+	}
+	return err
+}
+
+// Block is a run of consecutive samples of a capture.
+type Block struct {
+	Start   int64       // index of Samples[0] in the capture
+	Samples []complex64 // valid until the next call of Next
+	Clipped int         // samples at a saturated code
+}
+
+// Reader streams a capture in blocks of a fixed number of samples (the last
+// one may be shorter). Memory is two buffers of one block, whatever the
+// capture size. It hashes the data as it goes (SHA-256 always; SHA-512 too
+// when there is a core:sha512 to check).
+type Reader struct {
+	src     io.Reader
+	closer  io.Closer
+	name    string
+	format  Format
+	raw     []byte
+	blk     []complex64
+	next    int64
+	left    int64 // samples still expected; <0 when unknown
+	sha256  hash.Hash
+	sha512  hash.Hash
+	want512 string
+	done    bool
+}
+
+// NewReader streams samples of format f from src in blocks of blockSamples.
+// total is the number of samples expected (negative when unknown); name is
+// used in errors.
+func NewReader(src io.Reader, name string, f Format, blockSamples int, total int64) *Reader {
+	if blockSamples < 1 {
+		panic("ingest: block size must be positive")
+	}
+	return &Reader{src: src, name: name, format: f, raw: make([]byte, blockSamples*f.SampleBytes()),
+		blk: make([]complex64, blockSamples), left: total, sha256: sha256.New()}
+}
+
+// NewReader opens the capture's data for streaming in blocks of
+// blockSamples. The caller closes the Reader.
+func (c *Capture) NewReader(blockSamples int) (*Reader, error) {
+	f, err := os.Open(c.DataPath)
+	if err != nil {
+		return nil, captureErr(c.DataPath, "cannot read data: %w", unwrapPathError(err))
+	}
+	r := NewReader(f, c.DataPath, c.Format, blockSamples, c.Samples)
+	r.closer = f
+	if c.Meta != nil && c.Meta.Global.SHA512 != "" {
+		r.sha512 = sha512.New()
+		r.want512 = strings.ToLower(c.Meta.Global.SHA512)
+	}
+	return r, nil
+}
+
+// Next returns the next block, or io.EOF after the last. At the end it checks
+// the length against what was expected and the core:sha512, if any.
+func (r *Reader) Next() (Block, error) {
+	if r.done {
+		return Block{}, io.EOF
+	}
+	sb := r.format.SampleBytes()
+	want := len(r.blk)
+	if r.left >= 0 && int64(want) > r.left {
+		want = int(r.left)
+	}
+	if want == 0 {
+		return Block{}, r.finish()
+	}
+	n, err := io.ReadFull(r.src, r.raw[:want*sb])
+	if err == io.ErrUnexpectedEOF || (err == io.EOF && r.left < 0) {
+		if r.left >= 0 {
+			return Block{}, captureErr(r.name, "data ends at byte offset %d, before the %d samples it held when opened (file shrank while being read?)", r.next*int64(sb)+int64(n), r.next+r.left)
+		}
+		if n%sb != 0 {
+			return Block{}, captureErr(r.name, "data ends mid-sample at byte offset %d", r.next*int64(sb)+int64(n))
+		}
+		want = n / sb
+		r.left = int64(want)
+		err = nil
+		if want == 0 {
+			return Block{}, r.finish()
+		}
+	} else if err != nil {
+		return Block{}, captureErr(r.name, "read error at byte offset %d: %w", r.next*int64(sb), err)
+	}
+	raw := r.raw[:want*sb]
+	r.sha256.Write(raw)
+	if r.sha512 != nil {
+		r.sha512.Write(raw)
+	}
+	samples := r.blk[:want]
+	clipped, bad := r.format.Decode(samples, raw)
+	if bad > 0 {
+		return Block{}, captureErr(r.name, "sample %d is NaN or infinite (%d such samples in this block)", r.next+int64(firstZeroedNaN(raw, r.format)), bad)
+	}
+	b := Block{Start: r.next, Samples: samples, Clipped: clipped}
+	r.next += int64(want)
+	if r.left >= 0 {
+		r.left -= int64(want)
+	}
+	return b, nil
+}
+
+// firstZeroedNaN finds the first non-finite sample of a float block (rare
+// path, only after Decode reported one).
+func firstZeroedNaN(raw []byte, f Format) int {
+	one := make([]complex64, 1)
+	sb := f.SampleBytes()
+	for i := 0; i*sb < len(raw); i++ {
+		if _, bad := f.Decode(one, raw[i*sb:(i+1)*sb]); bad > 0 {
+			return i
+		}
+	}
+	return 0
+}
+
+func (r *Reader) finish() error {
+	r.done = true
+	if r.left < 0 {
+		return io.EOF
+	}
+	// Anything past the expected length means the file grew while read.
+	var one [1]byte
+	if n, _ := r.src.Read(one[:]); n > 0 {
+		return captureErr(r.name, "data continues past the %d samples it held when opened (still being written?)", r.next)
+	}
+	if r.sha512 != nil {
+		if got := hex.EncodeToString(r.sha512.Sum(nil)); got != r.want512 {
+			return captureErr(r.name, "SHA-512 of the data is %s…, core:sha512 says %s… (data altered or incomplete)", got[:16], r.want512[:min(16, len(r.want512))])
+		}
+	}
+	return io.EOF
+}
+
+// SHA256 is the lowercase hex SHA-256 of the bytes read so far; after
+// io.EOF, of the whole data file.
+func (r *Reader) SHA256() string { return hex.EncodeToString(r.sha256.Sum(nil)) }
+
+// Close closes the underlying file, if the Reader opened it.
+func (r *Reader) Close() error {
+	if r.closer != nil {
+		return r.closer.Close()
+	}
+	return nil
+}

@@ -1,0 +1,300 @@
+// Package synth writes IQ captures with exactly known content, for demos,
+// tests and benchmarks: GPS L1 C/A satellites at a stated C/N0, thermal
+// noise, and interference (CW tones, swept chirps, pulse trains, wideband
+// and band-limited noise, an obstructed antenna), each with its own start
+// and end. Beside each capture it writes a truth sidecar in JSON.
+//
+// It only writes files. quietband never transmits; transmitting
+// interference on GNSS bands is illegal in most countries.
+//
+// Levels: the thermal noise power per complex sample is σ² = N0·fs, set by
+// NoiseDBFS (σ² = 10^(NoiseDBFS/10) of full scale). A satellite at C/N0 has
+// carrier power C = C/N0·N0 = 10^(CN0/10)·σ²/fs. An interferer's J/N is its
+// power over the noise power in the capture bandwidth, J = 10^(JN/10)·σ²;
+// for pulses it is the in-pulse peak.
+package synth
+
+import (
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"strings"
+	"time"
+
+	"go.yaml.in/yaml/v3"
+
+	"quietband/ingest"
+)
+
+// Scenario is a sequence of captures at one site, written with one format
+// and rate.
+type Scenario struct {
+	Name        string    `yaml:"name" json:"name"`
+	Description string    `yaml:"description" json:"description"`
+	Site        string    `yaml:"site" json:"site"`
+	Format      string    `yaml:"format" json:"format"`           // SigMF datatype; default ci16_le
+	SampleRate  float64   `yaml:"sample_rate" json:"sample_rate"` // default 4e6
+	CenterHz    float64   `yaml:"center_hz" json:"center_hz"`     // default GPS L1
+	NoiseDBFS   float64   `yaml:"noise_dbfs" json:"noise_dbfs"`   // default −30
+	Raw         bool      `yaml:"raw" json:"raw"`                 // raw files instead of SigMF
+	Start       time.Time `yaml:"start" json:"start"`             // first capture's start
+	Seed        uint64    `yaml:"seed" json:"seed"`
+	Captures    []Capture `yaml:"captures" json:"captures"`
+}
+
+// Capture is one recording of a scenario.
+type Capture struct {
+	Name       string      `yaml:"name" json:"name"`
+	OffsetS    float64     `yaml:"offset_s" json:"offset_s"`     // start, seconds after Scenario.Start
+	DurationS  float64     `yaml:"duration_s" json:"duration_s"` // default 0.25
+	Satellites []Satellite `yaml:"satellites" json:"satellites"`
+	// AttenuationDB lowers every satellite (an obstructed or failing antenna).
+	AttenuationDB float64   `yaml:"attenuation_db" json:"attenuation_db"`
+	Emitters      []Emitter `yaml:"emitters" json:"emitters"`
+}
+
+// Satellite is one GPS L1 C/A signal.
+type Satellite struct {
+	PRN            int     `yaml:"prn" json:"prn"`
+	CN0DBHz        float64 `yaml:"cn0_dbhz" json:"cn0_dbhz"`
+	DopplerHz      float64 `yaml:"doppler_hz" json:"doppler_hz"`
+	CodePhaseChips float64 `yaml:"code_phase_chips" json:"code_phase_chips"` // at the capture's first sample
+}
+
+// Emitter kinds.
+const (
+	KindCW              = "cw"
+	KindSwept           = "swept"
+	KindPulsed          = "pulsed"
+	KindWidebandNoise   = "wideband_noise"
+	KindNarrowbandNoise = "narrowband_noise"
+)
+
+// Emitter is one interference source, present from StartS to EndS within
+// the capture (EndS 0: to the end).
+type Emitter struct {
+	Kind   string  `yaml:"kind" json:"kind"`
+	Label  string  `yaml:"label,omitempty" json:"label,omitempty"`
+	StartS float64 `yaml:"start_s,omitempty" json:"start_s"`
+	EndS   float64 `yaml:"end_s,omitempty" json:"end_s"`
+	// JNDB is the J/N in dB (for cw: per tone unless Tones is given).
+	JNDB     float64 `yaml:"jn_db,omitempty" json:"jn_db"`
+	OffsetHz float64 `yaml:"offset_hz,omitempty" json:"offset_hz"`
+	// cw
+	Tones []Tone `yaml:"tones,omitempty" json:"tones,omitempty"`
+	// swept: a linear chirp between LowHz and HighHz (offsets from centre)
+	LowHz   float64 `yaml:"low_hz,omitempty" json:"low_hz,omitempty"`
+	HighHz  float64 `yaml:"high_hz,omitempty" json:"high_hz,omitempty"`
+	PeriodS float64 `yaml:"period_s,omitempty" json:"period_s,omitempty"`
+	Shape   string  `yaml:"shape,omitempty" json:"shape,omitempty"` // up, down, triangle
+	// pulsed: Pulse "gaussian_pair" (DME-like, 3.5 µs half-amplitude width)
+	// or "rect" (WidthS wide); one pulse (or pair) every PRIS.
+	Pulse        string  `yaml:"pulse,omitempty" json:"pulse,omitempty"`
+	WidthS       float64 `yaml:"width_s,omitempty" json:"width_s,omitempty"`
+	PRIS         float64 `yaml:"pri_s,omitempty" json:"pri_s,omitempty"`
+	PairSpacingS float64 `yaml:"pair_spacing_s,omitempty" json:"pair_spacing_s,omitempty"`
+	// wideband_noise: FloorRiseDB over the whole band
+	FloorRiseDB float64 `yaml:"floor_rise_db,omitempty" json:"floor_rise_db,omitempty"`
+	// narrowband_noise: BandwidthHz around OffsetHz, at JNDB
+	BandwidthHz float64 `yaml:"bandwidth_hz,omitempty" json:"bandwidth_hz,omitempty"`
+}
+
+// Tone is one CW tone.
+type Tone struct {
+	OffsetHz float64 `yaml:"offset_hz" json:"offset_hz"`
+	JNDB     float64 `yaml:"jn_db" json:"jn_db"`
+}
+
+// DMEAlpha is the Gaussian pulse constant α of p(t) = exp(−α t²/2) used in
+// GNSS/DME compatibility studies (4.5·10¹¹ s⁻², from memory of Bastide et
+// al. 2004); it gives a 3.5 µs half-amplitude width.
+const DMEAlpha = 4.5e11
+
+// DMEPairSpacing is the X-channel pulse-pair spacing (ICAO Annex 10, 12 µs).
+const DMEPairSpacing = 12e-6
+
+// LoadScenario reads a YAML scenario; unknown keys are an error naming the
+// key.
+func LoadScenario(path string) (*Scenario, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	defer f.Close()
+	return ParseScenario(f, path)
+}
+
+// ParseScenario decodes a YAML scenario from r (name is used in errors).
+func ParseScenario(r io.Reader, name string) (*Scenario, error) {
+	dec := yaml.NewDecoder(r)
+	dec.KnownFields(true)
+	var s Scenario
+	if err := dec.Decode(&s); err != nil {
+		return nil, fmt.Errorf("%s: %w", name, err)
+	}
+	if err := s.Normalize(); err != nil {
+		return nil, fmt.Errorf("%s: %w", name, err)
+	}
+	return &s, nil
+}
+
+// Normalize fills defaults and checks every value, so that a scenario that
+// passes writes without surprises.
+func (s *Scenario) Normalize() error {
+	if s.Name == "" {
+		s.Name = "scenario"
+	}
+	if s.Format == "" {
+		s.Format = "ci16_le"
+	}
+	if _, err := ingest.ParseFormat(s.Format); err != nil {
+		return fmt.Errorf("format: %w", err)
+	}
+	if s.SampleRate == 0 {
+		s.SampleRate = 4e6
+	}
+	if !(s.SampleRate >= 1e3 && s.SampleRate <= 200e6) {
+		return fmt.Errorf("sample_rate %g out of range [1e3, 2e8]", s.SampleRate)
+	}
+	if s.CenterHz == 0 {
+		s.CenterHz = 1575.42e6
+	}
+	if s.NoiseDBFS == 0 {
+		s.NoiseDBFS = -30
+	}
+	if s.NoiseDBFS > -3 || s.NoiseDBFS < -120 {
+		return fmt.Errorf("noise_dbfs %g out of range [−120, −3]", s.NoiseDBFS)
+	}
+	if s.Start.IsZero() {
+		s.Start = time.Date(2026, 3, 14, 6, 0, 0, 0, time.UTC)
+	}
+	s.Start = s.Start.UTC()
+	if len(s.Captures) == 0 {
+		return errors.New("no captures")
+	}
+	seen := map[string]bool{}
+	for i := range s.Captures {
+		c := &s.Captures[i]
+		if c.Name == "" {
+			c.Name = fmt.Sprintf("%s-%03d", s.Name, i+1)
+		}
+		if strings.ContainsAny(c.Name, "/\\\n") || c.Name == "." || c.Name == ".." {
+			return fmt.Errorf("captures[%d]: name %q must be a plain file name", i, c.Name)
+		}
+		if seen[c.Name] {
+			return fmt.Errorf("captures[%d]: name %q used twice", i, c.Name)
+		}
+		seen[c.Name] = true
+		if c.DurationS == 0 {
+			c.DurationS = 0.25
+		}
+		if !(c.DurationS > 0 && c.DurationS <= 3600) {
+			return fmt.Errorf("capture %s: duration_s %g out of range", c.Name, c.DurationS)
+		}
+		for j, sat := range c.Satellites {
+			if sat.PRN < 1 || sat.PRN > 32 {
+				return fmt.Errorf("capture %s: satellites[%d]: prn %d not in 1..32", c.Name, j, sat.PRN)
+			}
+			if sat.CN0DBHz < 0 || sat.CN0DBHz > 70 {
+				return fmt.Errorf("capture %s: satellites[%d]: cn0_dbhz %g out of range [0, 70]", c.Name, j, sat.CN0DBHz)
+			}
+		}
+		for j := range c.Emitters {
+			if err := c.Emitters[j].normalize(s.SampleRate, c.DurationS); err != nil {
+				return fmt.Errorf("capture %s: emitters[%d] (%s): %w", c.Name, j, c.Emitters[j].Kind, err)
+			}
+		}
+	}
+	return nil
+}
+
+func (e *Emitter) normalize(fs, dur float64) error {
+	if e.EndS == 0 {
+		e.EndS = dur
+	}
+	if e.StartS < 0 || e.EndS > dur+1e-12 || e.StartS >= e.EndS {
+		return fmt.Errorf("start_s %g / end_s %g must satisfy 0 ≤ start < end ≤ %g", e.StartS, e.EndS, dur)
+	}
+	nyq := fs / 2
+	inBand := func(name string, f float64) error {
+		if math.Abs(f) >= nyq {
+			return fmt.Errorf("%s %g Hz outside ±fs/2 = ±%g Hz", name, f, nyq)
+		}
+		return nil
+	}
+	switch e.Kind {
+	case KindCW:
+		if len(e.Tones) == 0 {
+			e.Tones = []Tone{{OffsetHz: e.OffsetHz, JNDB: e.JNDB}}
+		}
+		for _, t := range e.Tones {
+			if err := inBand("tone offset_hz", t.OffsetHz); err != nil {
+				return err
+			}
+		}
+	case KindSwept:
+		if e.Shape == "" {
+			e.Shape = "up"
+		}
+		if e.Shape != "up" && e.Shape != "down" && e.Shape != "triangle" {
+			return fmt.Errorf("shape %q is not up, down or triangle", e.Shape)
+		}
+		if err := inBand("low_hz", e.LowHz); err != nil {
+			return err
+		}
+		if err := inBand("high_hz", e.HighHz); err != nil {
+			return err
+		}
+		if !(e.HighHz > e.LowHz) {
+			return errors.New("high_hz must be above low_hz")
+		}
+		if !(e.PeriodS >= 10/fs) {
+			return fmt.Errorf("period_s %g shorter than 10 samples", e.PeriodS)
+		}
+	case KindPulsed:
+		if e.Pulse == "" {
+			e.Pulse = "gaussian_pair"
+		}
+		switch e.Pulse {
+		case "gaussian_pair":
+			if e.PairSpacingS == 0 {
+				e.PairSpacingS = DMEPairSpacing
+			}
+			e.WidthS = dmeHalfAmplitudeWidth()
+		case "rect":
+			if !(e.WidthS >= 1/fs) {
+				return fmt.Errorf("width_s %g shorter than one sample", e.WidthS)
+			}
+		default:
+			return fmt.Errorf("pulse %q is not gaussian_pair or rect", e.Pulse)
+		}
+		if !(e.PRIS > e.WidthS+e.PairSpacingS) {
+			return fmt.Errorf("pri_s %g must exceed the pulse (pair) length", e.PRIS)
+		}
+		if err := inBand("offset_hz", e.OffsetHz); err != nil {
+			return err
+		}
+	case KindWidebandNoise:
+		if !(e.FloorRiseDB > 0) {
+			return errors.New("floor_rise_db must be > 0")
+		}
+		e.JNDB = 10 * math.Log10(math.Pow(10, e.FloorRiseDB/10)-1)
+		e.BandwidthHz = fs
+	case KindNarrowbandNoise:
+		if !(e.BandwidthHz > 0) || math.Abs(e.OffsetHz)+e.BandwidthHz/2 > nyq {
+			return fmt.Errorf("band %g ± %g Hz must lie within ±fs/2", e.OffsetHz, e.BandwidthHz/2)
+		}
+	default:
+		return fmt.Errorf("kind %q is not one of cw, swept, pulsed, wideband_noise, narrowband_noise", e.Kind)
+	}
+	if e.JNDB > 60 || e.JNDB < -60 {
+		return fmt.Errorf("jn_db %g out of range [−60, 60]", e.JNDB)
+	}
+	return nil
+}
+
+// dmeHalfAmplitudeWidth is the width at half amplitude of exp(−α t²/2):
+// 2·sqrt(2 ln 2/α) (3.51 µs for α = 4.5e11).
+func dmeHalfAmplitudeWidth() float64 { return 2 * math.Sqrt(2*math.Ln2/DMEAlpha) }
