@@ -160,7 +160,7 @@ func openSigMF(path string) (*Capture, error) {
 		if a.SampleCount != nil {
 			end += *a.SampleCount
 		}
-		if int64(end) > c.Samples {
+		if end > uint64(c.Samples) {
 			return nil, captureErr(dataPath, "data holds %d samples but annotations[%d] reaches sample %d (data shorter than the metadata claims)", c.Samples, i, end)
 		}
 	}
@@ -301,7 +301,7 @@ func (r *Reader) Next() (Block, error) {
 		return Block{}, r.finish()
 	}
 	n, err := io.ReadFull(r.src, r.raw[:want*sb])
-	if err == io.ErrUnexpectedEOF || (err == io.EOF && r.left < 0) {
+	if err == io.ErrUnexpectedEOF || err == io.EOF {
 		if r.left >= 0 {
 			return Block{}, captureErr(r.name, "data ends at byte offset %d, before the %d samples it held when opened (file shrank while being read?)", r.next*int64(sb)+int64(n), r.next+r.left)
 		}

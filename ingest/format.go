@@ -150,8 +150,9 @@ func (f Format) scale() (scale, offset float64) {
 // exactly len(dst)·SampleBytes bytes) into dst, scaled to full scale 1.0.
 // It returns the number of samples whose I or Q sits at the format's most
 // negative or most positive code (ADC saturation); for floats, a component
-// with magnitude ≥ 1 counts as clipped. NaN and Inf floats are replaced by
-// 0 and counted in bad.
+// with magnitude ≥ 1 counts as clipped, and a cf64 one beyond the float32
+// range is saturated to ±math.MaxFloat32. NaN and Inf floats are replaced
+// by 0 and counted in bad.
 func (f Format) Decode(dst []complex64, src []byte) (clipped, bad int) {
 	if len(src) != len(dst)*f.SampleBytes() {
 		panic("ingest: Decode length mismatch")
@@ -240,6 +241,9 @@ func (f Format) Decode(dst []complex64, src []byte) (clipped, bad int) {
 				a, b = 0, 0
 			} else if a >= 1 || a <= -1 || b >= 1 || b <= -1 {
 				clipped++
+				// Beyond the float32 range the conversion would give Inf.
+				a = max(-math.MaxFloat32, min(a, math.MaxFloat32))
+				b = max(-math.MaxFloat32, min(b, math.MaxFloat32))
 			}
 			dst[i] = complex(float32(a), float32(b))
 		}

@@ -146,8 +146,10 @@ func ParseMeta(r io.Reader) (*Meta, error) {
 func describeJSONError(raw []byte, err error) error {
 	var se *json.SyntaxError
 	if errors.As(err, &se) {
-		line := 1 + bytes.Count(raw[:se.Offset], []byte("\n"))
-		col := se.Offset - int64(bytes.LastIndexByte(raw[:se.Offset], '\n'))
+		// Offset counts the bytes read, the offending one included.
+		pos := max(se.Offset-1, 0)
+		line := 1 + bytes.Count(raw[:pos], []byte("\n"))
+		col := pos - int64(bytes.LastIndexByte(raw[:pos], '\n'))
 		return fmt.Errorf("line %d column %d: %w", line, col, err)
 	}
 	return err

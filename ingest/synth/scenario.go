@@ -26,6 +26,7 @@ import (
 	"go.yaml.in/yaml/v3"
 
 	"quietband/ingest"
+	"quietband/ingest/gpsca"
 )
 
 // Scenario is a sequence of captures at one site, written with one format
@@ -164,7 +165,10 @@ func (s *Scenario) Normalize() error {
 	if s.NoiseDBFS == 0 {
 		s.NoiseDBFS = -30
 	}
-	if s.NoiseDBFS > -3 || s.NoiseDBFS < -120 {
+	if !finite(s.CenterHz) {
+		return fmt.Errorf("center_hz %g is not a finite number", s.CenterHz)
+	}
+	if !(s.NoiseDBFS >= -120 && s.NoiseDBFS <= -3) {
 		return fmt.Errorf("noise_dbfs %g out of range [−120, −3]", s.NoiseDBFS)
 	}
 	if s.Start.IsZero() {
@@ -193,7 +197,17 @@ func (s *Scenario) Normalize() error {
 		if !(c.DurationS > 0 && c.DurationS <= 3600) {
 			return fmt.Errorf("capture %s: duration_s %g out of range", c.Name, c.DurationS)
 		}
+		if !finite(c.OffsetS, c.AttenuationDB) {
+			return fmt.Errorf("capture %s: offset_s %g and attenuation_db %g must be finite numbers", c.Name, c.OffsetS, c.AttenuationDB)
+		}
 		for j, sat := range c.Satellites {
+			if !finite(sat.CN0DBHz, sat.DopplerHz, sat.CodePhaseChips) {
+				return fmt.Errorf("capture %s: satellites[%d]: cn0_dbhz, doppler_hz and code_phase_chips must be finite numbers", c.Name, j)
+			}
+			// The carrier must fall inside the capture, or it would alias.
+			if f := gpsca.L1 - s.CenterHz + sat.DopplerHz; math.Abs(f) >= s.SampleRate/2 {
+				return fmt.Errorf("capture %s: satellites[%d]: L1 carrier at %g Hz from center_hz lies outside ±fs/2 = ±%g Hz", c.Name, j, f, s.SampleRate/2)
+			}
 			if sat.PRN < 1 || sat.PRN > 32 {
 				return fmt.Errorf("capture %s: satellites[%d]: prn %d not in 1..32", c.Name, j, sat.PRN)
 			}
@@ -211,6 +225,10 @@ func (s *Scenario) Normalize() error {
 }
 
 func (e *Emitter) normalize(fs, dur float64) error {
+	if !finite(e.StartS, e.EndS, e.JNDB, e.OffsetHz, e.LowHz, e.HighHz, e.PeriodS, e.WidthS, e.PRIS,
+		e.PairSpacingS, e.FloorRiseDB, e.BandwidthHz) {
+		return errors.New("every value must be a finite number")
+	}
 	if e.EndS == 0 {
 		e.EndS = dur
 	}
@@ -230,8 +248,14 @@ func (e *Emitter) normalize(fs, dur float64) error {
 			e.Tones = []Tone{{OffsetHz: e.OffsetHz, JNDB: e.JNDB}}
 		}
 		for _, t := range e.Tones {
+			if !finite(t.OffsetHz) {
+				return fmt.Errorf("tone offset_hz %g is not a finite number", t.OffsetHz)
+			}
 			if err := inBand("tone offset_hz", t.OffsetHz); err != nil {
 				return err
+			}
+			if !(t.JNDB >= -60 && t.JNDB <= 60) {
+				return fmt.Errorf("tone at %g Hz: jn_db %g out of range [−60, 60]", t.OffsetHz, t.JNDB)
 			}
 		}
 	case KindSwept:
@@ -298,3 +322,13 @@ func (e *Emitter) normalize(fs, dur float64) error {
 // dmeHalfAmplitudeWidth is the width at half amplitude of exp(−α t²/2):
 // 2·sqrt(2 ln 2/α) (3.51 µs for α = 4.5e11).
 func dmeHalfAmplitudeWidth() float64 { return 2 * math.Sqrt(2*math.Ln2/DMEAlpha) }
+
+// finite reports whether every value is a number other than ±Inf.
+func finite(vs ...float64) bool {
+	for _, v := range vs {
+		if math.IsNaN(v) || math.IsInf(v, 0) {
+			return false
+		}
+	}
+	return true
+}

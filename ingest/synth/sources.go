@@ -120,18 +120,29 @@ type pulses struct {
 	on                       span
 }
 
+// gaussReach is how far a Gaussian pulse reaches: exp(−α t²/2) < 6·10⁻⁷
+// beyond 8 µs.
+const gaussReach = 8e-6
+
 func (p *pulses) envelope(t float64) float64 {
 	k := math.Floor((t - p.first) / p.pri)
 	var e float64
-	for _, kk := range [2]float64{k, k + 1} {
-		t0 := p.first + kk*p.pri
-		if p.gaussian {
+	if p.gaussian {
+		// Every pair with a pulse within gaussReach of t, including the
+		// tail of earlier pairs when the PRI is short.
+		reach := math.Abs(p.pair) + gaussReach
+		for kk := math.Floor((t - p.first - reach) / p.pri); kk <= math.Floor((t-p.first+reach)/p.pri); kk++ {
+			t0 := p.first + kk*p.pri
 			for _, c := range [2]float64{t0, t0 + p.pair} {
-				if dt := t - c; math.Abs(dt) < 8e-6 {
+				if dt := t - c; math.Abs(dt) < gaussReach {
 					e += math.Exp(-DMEAlpha * dt * dt / 2)
 				}
 			}
-		} else if t >= t0 && t < t0+p.width {
+		}
+		return e
+	}
+	for _, kk := range [2]float64{k, k + 1} {
+		if t0 := p.first + kk*p.pri; t >= t0 && t < t0+p.width {
 			e += 1
 		}
 	}

@@ -1,0 +1,197 @@
+package detect
+
+import (
+	"encoding/json"
+	"fmt"
+	"io"
+	"math"
+	"sort"
+	"sync"
+	"time"
+)
+
+// Baseline is what is normal at a site for one input (sample rate, centre,
+// format and FFT size): the mean PSD of clean captures, which absorbs the
+// GNSS signals' own bump, the front end's filter slopes, a DC spike and
+// fixed spurs, and (with the C/N0 detector) the satellites' usual C/N0.
+//
+// It is learned from captures in which nothing was detected: the first
+// Warmup captures are averaged equally, later ones with weight W
+// (exponential average), and nothing is learned while an event is active.
+type Baseline struct {
+	Key        string          `json:"key"`
+	FFTSize    int             `json:"fft_size"`
+	PSD        []float64       `json:"psd"` // centred bin order
+	Power      float64         `json:"power"`
+	Captures   int             `json:"captures"`
+	Updated    time.Time       `json:"updated"`
+	Loaded     bool            `json:"-"`
+	CN0        map[int]float64 `json:"cn0_dbhz,omitempty"` // per PRN
+	CN0Mean    float64         `json:"cn0_mean_dbhz,omitempty"`
+	CN0Samples int             `json:"cn0_captures,omitempty"`
+}
+
+// BaselineKey names the input a baseline belongs to.
+func BaselineKey(format string, fs, center float64, hasCenter bool, fftSize int) string {
+	c := "unknown"
+	if hasCenter {
+		c = fmt.Sprintf("%.0f", center)
+	}
+	return fmt.Sprintf("%s/%.0f/%s/%d", format, fs, c, fftSize)
+}
+
+// NoisePower is the baseline's noise power in the capture bandwidth, Σ PSD.
+func (b *Baseline) NoisePower() float64 {
+	var s float64
+	for _, v := range b.PSD {
+		s += v
+	}
+	return s
+}
+
+// learn folds one clean capture's mean PSD and power into the baseline.
+func (b *Baseline) learn(psd []float64, power float64, when time.Time, warmup int, weight float64) {
+	if len(b.PSD) != len(psd) {
+		b.PSD = make([]float64, len(psd))
+		b.Captures = 0
+	}
+	w := weight
+	if b.Captures < warmup {
+		w = 1 / float64(b.Captures+1)
+	}
+	for k, v := range psd {
+		b.PSD[k] += w * (v - b.PSD[k])
+	}
+	b.Power += w * (power - b.Power)
+	b.Captures++
+	if when.After(b.Updated) {
+		b.Updated = when
+	}
+}
+
+// learnCN0 folds per-PRN C/N0 values of a clean capture into the baseline.
+func (b *Baseline) learnCN0(cn0 map[int]float64, mean float64, warmup int, weight float64) {
+	if b.CN0 == nil {
+		b.CN0 = map[int]float64{}
+	}
+	w := weight
+	if b.CN0Samples < warmup {
+		w = 1 / float64(b.CN0Samples+1)
+	}
+	for prn, v := range cn0 {
+		if old, ok := b.CN0[prn]; ok {
+			b.CN0[prn] = old + w*(v-old)
+		} else {
+			b.CN0[prn] = v
+		}
+	}
+	b.CN0Mean += w * (mean - b.CN0Mean)
+	b.CN0Samples++
+}
+
+// Baselines holds the baselines of all inputs; safe for concurrent use.
+type Baselines struct {
+	mu    sync.Mutex
+	items map[string]*Baseline
+}
+
+// NewBaselines returns an empty set.
+func NewBaselines() *Baselines { return &Baselines{items: map[string]*Baseline{}} }
+
+// get returns the baseline for key, creating an empty one.
+func (s *Baselines) get(key string) *Baseline {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	b, ok := s.items[key]
+	if !ok {
+		b = &Baseline{Key: key}
+		s.items[key] = b
+	}
+	return b
+}
+
+// snapshot returns a copy of the baseline for key (nil PSD if none yet).
+func (s *Baselines) snapshot(key string) Baseline {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	b, ok := s.items[key]
+	if !ok {
+		return Baseline{Key: key}
+	}
+	c := *b
+	c.PSD = append([]float64(nil), b.PSD...)
+	if b.CN0 != nil {
+		c.CN0 = make(map[int]float64, len(b.CN0))
+		for k, v := range b.CN0 {
+			c.CN0[k] = v
+		}
+	}
+	return c
+}
+
+// update applies fn to the baseline for key under the lock.
+func (s *Baselines) update(key string, fn func(*Baseline)) {
+	b := s.get(key)
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	fn(b)
+}
+
+// Len is the number of inputs with a baseline.
+func (s *Baselines) Len() int {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return len(s.items)
+}
+
+// baselineFile is the persisted form.
+type baselineFile struct {
+	Version   int         `json:"version"`
+	Baselines []*Baseline `json:"baselines"`
+}
+
+// WriteTo writes the set as JSON (sorted by key, so that it is stable).
+func (s *Baselines) WriteTo(w io.Writer) (int64, error) {
+	s.mu.Lock()
+	f := baselineFile{Version: 1}
+	for _, b := range s.items {
+		if len(b.PSD) > 0 {
+			f.Baselines = append(f.Baselines, b)
+		}
+	}
+	sort.Slice(f.Baselines, func(i, j int) bool { return f.Baselines[i].Key < f.Baselines[j].Key })
+	data, err := json.MarshalIndent(f, "", " ")
+	s.mu.Unlock()
+	if err != nil {
+		return 0, err
+	}
+	n, err := w.Write(append(data, '\n'))
+	return int64(n), err
+}
+
+// ReadBaselines reads a set written by WriteTo; the baselines are marked
+// loaded.
+func ReadBaselines(r io.Reader) (*Baselines, error) {
+	var f baselineFile
+	dec := json.NewDecoder(io.LimitReader(r, 256<<20))
+	if err := dec.Decode(&f); err != nil {
+		return nil, fmt.Errorf("baseline file: %w", err)
+	}
+	if f.Version != 1 {
+		return nil, fmt.Errorf("baseline file: version %d, want 1", f.Version)
+	}
+	s := NewBaselines()
+	for i, b := range f.Baselines {
+		if b == nil || b.Key == "" || len(b.PSD) == 0 || len(b.PSD) != b.FFTSize {
+			return nil, fmt.Errorf("baseline file: entry %d is incomplete (key, fft_size and psd of that size needed)", i)
+		}
+		for _, v := range b.PSD {
+			if !(v > 0) || math.IsInf(v, 0) {
+				return nil, fmt.Errorf("baseline file: entry %s has a non-positive or non-finite PSD value", b.Key)
+			}
+		}
+		b.Loaded = true
+		s.items[b.Key] = b
+	}
+	return s, nil
+}

@@ -1,0 +1,431 @@
+package detect
+
+import (
+	"math"
+	"sort"
+	"time"
+
+	"quietband/ingest"
+)
+
+// The classifier fuses the findings of one block into class decisions and
+// merges them across blocks into events.
+//
+// Per block: a swept finding claims the CW and noise-band findings inside
+// its span (a periodic chirp's line spectrum looks like many tones); SK
+// evidence whose band overlaps a class finding of the matching kind (low
+// for cw and swept, high for pulsed) adds the SK detector to it; a lone SK
+// finding raises nothing (SK is blind at 50 % duty cycle and must not stand
+// alone).
+//
+// Across blocks: a finding extends the open event of its class whose band
+// overlaps it; otherwise it opens one. An event survives HoldBlocks blocks
+// without a finding (hysteresis against flapping) and then closes. Its
+// start and end are refined to the frame (about 200 µs) from the per-frame
+// power in its band: frames whose excess exceeds half the event's mean
+// per-frame excess count as active. Pulse trains take their first and last
+// pulse instead.
+
+type tracker struct {
+	cfg      Config
+	fs       float64
+	blockLen int
+	open     []*trackedEvent
+	events   []*trackedEvent
+	blockNo  int
+	prev     []float32 // previous block's frame matrix
+	prevF    Features
+	last     *BlockInput
+}
+
+type trackedEvent struct {
+	class      string
+	lo, hi     float64
+	detectors  map[string]bool
+	firstBlock int
+	missed     int
+	openAtEnd  bool
+	start, end int64 // samples, end exclusive
+	jnSum      float64
+	jnPeak     float64
+	hits       int
+	excess     []float64 // summed excess PSD over the hits (for impact)
+	tones      []ToneParam
+	sweep      *SweepParams
+	pulse      PulseParams
+	pulseHits  int
+	widthSum   float64
+	priSum     float64
+	pairSum    float64
+	pairHits   int
+	riseSum    float64
+	bandBins   [][2]int
+	frameLevel float64 // mean per-frame excess while present
+}
+
+func newTracker(cfg Config, fs float64, blockLen int) *tracker {
+	return &tracker{cfg: cfg, fs: fs, blockLen: blockLen}
+}
+
+func (t *tracker) block(in *BlockInput, fs []Finding) {
+	f := in.F
+	// Fusion within the block.
+	// Findings that claim the narrow ones inside their band: a sweep (its
+	// line spectrum), a comb of tones (the same, where the sweep fills too
+	// little of the block to be measured), a pulse train (its spectrum
+	// in frames where SK cannot tell it from noise).
+	var swept, claims []Finding
+	for _, x := range fs {
+		switch {
+		case x.Class == ClassSwept:
+			swept = append(swept, x)
+			claims = append(claims, x)
+		case x.Class == ClassPulsed, x.Class == ClassCW && isComb(x.Tones):
+			claims = append(claims, x)
+		}
+	}
+	for _, o := range t.open {
+		if o.class == ClassSwept {
+			claims = append(claims, Finding{Class: ClassSwept, LowHz: o.lo, HighHz: o.hi})
+		}
+	}
+	bin := f.Fs / float64(f.N)
+	claimed := func(x Finding) bool {
+		for _, c := range claims {
+			if c.Class != x.Class && overlaps(x.LowHz, x.HighHz, c.LowHz-2*bin, c.HighHz+2*bin) {
+				return true
+			}
+		}
+		return false
+	}
+	var classed []Finding
+	for _, x := range fs {
+		if x.Class == "" || (x.Class == ClassCW && isComb(x.Tones)) {
+			continue
+		}
+		if (x.Class == ClassNarrowbandNoise || x.Class == ClassCW && isComb(x.Tones)) && claimed(x) {
+			continue
+		}
+		if (x.Class == ClassCW || x.Class == ClassWidebandNoise) && len(swept) > 0 && claimed(x) {
+			continue
+		}
+		classed = append(classed, x)
+	}
+	matched := map[*trackedEvent]bool{}
+	for _, x := range classed {
+		var ev *trackedEvent
+		for _, o := range t.open {
+			if o.class == x.Class && (x.Class == ClassWidebandNoise || overlaps(o.lo, o.hi, x.LowHz, x.HighHz)) && !matched[o] {
+				ev = o
+				break
+			}
+		}
+		if ev == nil {
+			ev = &trackedEvent{class: x.Class, lo: x.LowHz, hi: x.HighHz, detectors: map[string]bool{},
+				firstBlock: t.blockNo, start: f.Start, excess: make([]float64, f.N)}
+			ev.setBand(f, x)
+			ev.frameLevel = x.JN * in.NoisePower
+			ev.start = t.refineStart(in, ev)
+			t.open = append(t.open, ev)
+			t.events = append(t.events, ev)
+		}
+		matched[ev] = true
+		ev.absorb(in, x, fs)
+		ev.missed = 0
+	}
+	for _, o := range t.open {
+		if !matched[o] {
+			o.missed++
+			if o.class != ClassPulsed {
+				if end := t.activeEnd(in, o); end > o.end {
+					o.end = end
+				}
+			}
+		}
+	}
+	kept := t.open[:0]
+	for _, o := range t.open {
+		if o.missed <= t.cfg.HoldBlocks {
+			kept = append(kept, o)
+		}
+	}
+	t.open = kept
+	// Keep this block's frames for the next block's start refinement.
+	t.prev = append(t.prev[:0], f.FramePSD[:f.Frames*f.N]...)
+	t.prevF = *f
+	t.last = in
+	t.blockNo++
+}
+
+// finish marks the events still active in the last block.
+func (t *tracker) finish() {
+	for _, o := range t.open {
+		o.openAtEnd = o.missed == 0
+	}
+	sort.SliceStable(t.events, func(i, j int) bool {
+		if t.events[i].start != t.events[j].start {
+			return t.events[i].start < t.events[j].start
+		}
+		return t.events[i].class < t.events[j].class
+	})
+}
+
+func (e *trackedEvent) setBand(f *Features, x Finding) {
+	e.bandBins = e.bandBins[:0]
+	if x.Class == ClassCW {
+		for _, tn := range x.Tones {
+			k := f.Bin(tn.OffsetHz)
+			e.bandBins = append(e.bandBins, [2]int{max(k-3, 0), min(k+3, f.N-1)})
+		}
+		return
+	}
+	e.bandBins = append(e.bandBins, [2]int{f.Bin(x.LowHz), f.Bin(x.HighHz)})
+}
+
+// frameExcess is the excess power of frame i of a block in the event band.
+func (e *trackedEvent) frameExcess(frame []float32, floor []float64) float64 {
+	var s float64
+	for _, b := range e.bandBins {
+		for k := b[0]; k <= b[1]; k++ {
+			s += float64(frame[k]) - floor[k]
+		}
+	}
+	return s
+}
+
+// refineStart finds the first active frame of a new event, looking back
+// into the previous block when the activity runs into it.
+func (t *tracker) refineStart(in *BlockInput, e *trackedEvent) int64 {
+	f := in.F
+	if e.class == ClassPulsed {
+		return f.Start
+	}
+	lvl := e.frameLevel / 2
+	if lvl <= 0 {
+		return f.Start
+	}
+	first := -1
+	for i := 0; i < f.Frames; i++ {
+		if e.frameExcess(f.Frame(i), in.Floor) > lvl {
+			first = i
+			break
+		}
+	}
+	if first < 0 {
+		return f.Start
+	}
+	if first == 0 && t.prevF.Frames > 0 {
+		pf := &t.prevF
+		n := pf.N
+		back := 0
+		for i := pf.Frames - 1; i >= 0; i-- {
+			if e.frameExcess(t.prev[i*n:(i+1)*n], in.Floor) > lvl {
+				back++
+			} else {
+				break
+			}
+		}
+		return f.Start - int64(back*n)
+	}
+	return f.Start + int64(first*f.N)
+}
+
+// activeEnd is the end of the last active frame of the event in a block.
+func (t *tracker) activeEnd(in *BlockInput, e *trackedEvent) int64 {
+	f := in.F
+	lvl := e.frameLevel / 2
+	end := int64(0)
+	if lvl <= 0 {
+		return 0
+	}
+	for i := 0; i < f.Frames; i++ {
+		if e.frameExcess(f.Frame(i), in.Floor) > lvl {
+			end = f.Start + int64((i+1)*f.N)
+		}
+	}
+	return end
+}
+
+func (e *trackedEvent) absorb(in *BlockInput, x Finding, all []Finding) {
+	f := in.F
+	e.hits++
+	e.detectors[x.Detector] = true
+	for _, s := range all {
+		if s.Class != "" || !overlaps(s.LowHz, s.HighHz, x.LowHz, x.HighHz) {
+			continue
+		}
+		if (s.Evidence == "sk_low" && (x.Class == ClassCW || x.Class == ClassSwept)) ||
+			(s.Evidence == "sk_high" && x.Class == ClassPulsed) {
+			e.detectors[s.Detector] = true
+		}
+	}
+	e.lo, e.hi = math.Min(e.lo, x.LowHz), math.Max(e.hi, x.HighHz)
+	e.jnSum += x.JN
+	e.jnPeak = math.Max(e.jnPeak, x.JN)
+	for k := range e.excess {
+		if !in.Excluded[k] {
+			e.excess[k] += in.excess(k)
+		}
+	}
+	// Activity within this block.
+	switch {
+	case x.Class == ClassPulsed && x.End > 0:
+		if e.hits == 1 {
+			e.start = x.Start
+		}
+		e.end = x.End
+	default:
+		e.frameLevel += (x.JN*in.NoisePower - e.frameLevel) / float64(e.hits)
+		if end := (&tracker{}).activeEnd(in, e); end > 0 {
+			e.end = end
+		} else {
+			e.end = f.Start + int64(f.Samples)
+		}
+	}
+	switch x.Class {
+	case ClassCW:
+		e.tones = mergeTones(e.tones, x.Tones, f.Fs/float64(f.N)*3)
+		e.setBand(f, Finding{Class: ClassCW, Tones: e.tones})
+	case ClassSwept:
+		if e.sweep == nil || x.Sweep.Coherent > e.sweep.Coherent {
+			s := *x.Sweep
+			e.sweep = &s
+		}
+	case ClassPulsed:
+		p := x.Pulse
+		e.pulseHits++
+		e.pulse.Pulses += p.Pulses
+		e.widthSum += p.WidthS
+		e.priSum += p.PRIS
+		if p.PairSpacingS > 0 {
+			e.pairSum += p.PairSpacingS
+			e.pairHits++
+		}
+	case ClassWidebandNoise:
+		e.riseSum += x.FloorRiseDB
+	}
+}
+
+// mergeTones adds the tones of a block to those already known, averaging
+// the ones within tol Hz of each other.
+func mergeTones(have, add []ToneParam, tol float64) []ToneParam {
+	for _, a := range add {
+		found := false
+		for i := range have {
+			if math.Abs(have[i].OffsetHz-a.OffsetHz) <= tol {
+				have[i].OffsetHz = (have[i].OffsetHz + a.OffsetHz) / 2
+				have[i].JNDB = math.Max(have[i].JNDB, a.JNDB)
+				found = true
+				break
+			}
+		}
+		if !found {
+			have = append(have, a)
+		}
+	}
+	sort.Slice(have, func(i, j int) bool { return have[i].OffsetHz < have[j].OffsetHz })
+	return have
+}
+
+// toEvent writes the tracked event as an event record (id and episode are
+// set by the caller).
+func (e *trackedEvent) toEvent(c *ingest.Capture, name string, cfg Config, fs, center float64, hasCenter bool, noise float64) Event {
+	start, end := max(e.start, 0), min(e.end, c.Samples)
+	if end <= start {
+		end = min(start+int64(cfg.FFTSize), c.Samples)
+	}
+	ev := Event{Class: e.class, Capture: name, SampleStart: start, SampleCount: end - start,
+		Start: c.SampleTime(start), End: c.SampleTime(end), Detectors: sortedKeys(e.detectors)}
+	jn := e.jnSum / float64(max(e.hits, 1))
+	ev.OffsetHz = (e.lo + e.hi) / 2
+	ev.BandwidthHz = e.hi - e.lo
+	meanPower := jn * noise
+	switch e.class {
+	case ClassCW:
+		strongest := e.tones[0]
+		for _, t := range e.tones {
+			if t.JNDB > strongest.JNDB {
+				strongest = t
+			}
+		}
+		ev.OffsetHz = strongest.OffsetHz
+		ev.BandwidthHz = e.hi - e.lo
+		ev.Params.Tones = e.tones
+	case ClassSwept:
+		s := e.sweep
+		ev.OffsetHz = (s.LowHz + s.HighHz) / 2
+		ev.BandwidthHz = s.HighHz - s.LowHz
+		ev.Params.SweepPeriodS = ptr(s.PeriodS)
+		ev.Params.SweepLowHz = ptr(s.LowHz)
+		ev.Params.SweepHighHz = ptr(s.HighHz)
+		ev.Params.SweepRateHzPerS = ptr(s.RateHzS)
+		ev.Params.Shape = s.Shape
+	case ClassPulsed:
+		h := float64(max(e.pulseHits, 1))
+		w := e.widthSum / h
+		ev.Params.PulseWidthS = ptr(w)
+		ev.Params.PRIS = ptr(e.priSum / h)
+		ev.Params.Pulses = ptr(e.pulse.Pulses)
+		dur := float64(ev.SampleCount) / fs
+		duty := math.Min(1, float64(e.pulse.Pulses)*w/math.Max(dur, 1/fs))
+		ev.Params.DutyCycle = ptr(duty)
+		if e.pairHits > 0 {
+			ev.Params.PairSpacingS = ptr(e.pairSum / float64(e.pairHits))
+		}
+		jn = e.jnPeak
+		meanPower = jn * noise * duty
+	case ClassWidebandNoise:
+		ev.Params.FloorRiseDB = ptr(e.riseSum / float64(max(e.hits, 1)))
+		ev.OffsetHz, ev.BandwidthHz = 0, fs
+	case ClassNarrowbandNoise:
+		ev.Params.FloorRiseDB = ptr(10 * math.Log10(1+jn*fs/math.Max(ev.BandwidthHz, fs/float64(cfg.FFTSize))))
+	}
+	if ev.BandwidthHz <= 0 {
+		ev.BandwidthHz = fs / float64(cfg.FFTSize)
+	}
+	ev.JNDB = 10 * math.Log10(math.Max(jn, 1e-30))
+	ev.PowerDBFS = 10 * math.Log10(math.Max(jn*noise, 1e-30))
+	if hasCenter {
+		ev.CenterHz = ptr(center + ev.OffsetHz)
+		if math.Abs(center-L1) < fs/2 {
+			n := len(e.excess)
+			off := func(i int) float64 { return center - L1 + float64(i-n/2)*fs/float64(n) }
+			ev.Impact = &Impact{CN0DegradationDB: CN0Degradation(e.excess, off, meanPower, noise/fs, cfg.ReceiverBandwidthHz)}
+		}
+	}
+	return ev
+}
+
+func sortedKeys(m map[string]bool) []string {
+	out := make([]string, 0, len(m))
+	for k := range m {
+		out = append(out, k)
+	}
+	sort.Strings(out)
+	return out
+}
+
+var _ = time.Second
+
+// isComb reports whether tones form a long regular comb: the line spectrum
+// of a periodic sweep seen in a block where the sweep itself could not be
+// measured (it covers only part of the block). Such a block raises no cw
+// event; the sweep is picked up where it fills a block, and its start is
+// then refined back into this one.
+func isComb(t []ToneParam) bool {
+	if len(t) < 8 {
+		return false
+	}
+	gaps := make([]float64, len(t)-1)
+	for i := range gaps {
+		gaps[i] = t[i+1].OffsetHz - t[i].OffsetHz
+	}
+	med := medianOf(gaps)
+	regular := 0
+	for _, g := range gaps {
+		if math.Abs(g-med) < 0.1*med {
+			regular++
+		}
+	}
+	return regular >= len(gaps)*2/3
+}

@@ -1,0 +1,127 @@
+package detect
+
+import (
+	"time"
+)
+
+// Event classes of the event log (DESIGN.md; classes may be added, never
+// renamed).
+const (
+	ClassCW              = "cw"
+	ClassSwept           = "swept"
+	ClassPulsed          = "pulsed"
+	ClassWidebandNoise   = "wideband_noise"
+	ClassNarrowbandNoise = "narrowband_noise"
+	ClassCN0Drop         = "cn0_drop"
+)
+
+// Classes lists the event classes in a stable order.
+var Classes = []string{ClassCW, ClassSwept, ClassPulsed, ClassWidebandNoise, ClassNarrowbandNoise, ClassCN0Drop}
+
+// Event is one detected interference within one capture: the body of a
+// `kind: "event"` record of the event log. Field names are the log's
+// contract.
+type Event struct {
+	ID          string    `json:"id"`
+	Episode     string    `json:"episode"`
+	Class       string    `json:"class"`
+	Capture     string    `json:"capture"`
+	SampleStart int64     `json:"sample_start"`
+	SampleCount int64     `json:"sample_count"`
+	Start       time.Time `json:"start"`
+	End         time.Time `json:"end"`
+	OffsetHz    float64   `json:"offset_hz"`
+	CenterHz    *float64  `json:"center_hz,omitempty"`
+	BandwidthHz float64   `json:"bandwidth_hz"`
+	JNDB        float64   `json:"jn_db"`
+	PowerDBFS   float64   `json:"power_dbfs"`
+	Params      Params    `json:"params"`
+	Impact      *Impact   `json:"impact,omitempty"`
+	Detectors   []string  `json:"detectors"`
+	// Related lists the ids of events of this capture that overlap this
+	// one in time and that the classifier links to it (a cn0_drop and the
+	// interference that explains it).
+	Related []string `json:"related,omitempty"`
+}
+
+// Params holds the class-specific parameters; only those of the event's
+// class are set.
+type Params struct {
+	// cw
+	Tones []ToneParam `json:"tones,omitempty"`
+	// swept
+	SweepPeriodS     *float64 `json:"sweep_period_s,omitempty"`
+	SweepLowHz       *float64 `json:"sweep_low_hz,omitempty"`
+	SweepHighHz      *float64 `json:"sweep_high_hz,omitempty"`
+	SweepRateHzPerS  *float64 `json:"sweep_rate_hz_per_s,omitempty"`
+	Shape            string   `json:"shape,omitempty"`
+	PulseWidthS      *float64 `json:"pulse_width_s,omitempty"`
+	PRIS             *float64 `json:"pri_s,omitempty"`
+	DutyCycle        *float64 `json:"duty_cycle,omitempty"`
+	Pulses           *int     `json:"pulses,omitempty"`
+	PairSpacingS     *float64 `json:"pair_spacing_s,omitempty"`
+	FloorRiseDB      *float64 `json:"floor_rise_db,omitempty"`
+	DropDB           *float64 `json:"drop_db,omitempty"`
+	BaselineDBHz     *float64 `json:"baseline_dbhz,omitempty"`
+	CN0DBHz          *float64 `json:"cn0_dbhz,omitempty"`
+	PRNs             []int    `json:"prns,omitempty"`
+	SatellitesLost   []int    `json:"satellites_lost,omitempty"`
+	OccupiedFraction *float64 `json:"occupied_fraction,omitempty"`
+}
+
+// ToneParam is one tone of a cw event.
+type ToneParam struct {
+	OffsetHz float64 `json:"offset_hz"`
+	JNDB     float64 `json:"jn_db"`
+}
+
+// Impact is the predicted effect of an event on a GPS L1 C/A receiver.
+type Impact struct {
+	CN0DegradationDB float64 `json:"cn0_degradation_db"`
+}
+
+// CaptureRecord is the body of a `kind: "capture"` record: written after
+// the capture's events, it marks the capture done.
+type CaptureRecord struct {
+	Capture    string     `json:"capture"`
+	SHA256     string     `json:"sha256,omitempty"`
+	Format     string     `json:"format,omitempty"`
+	SampleRate float64    `json:"sample_rate_hz,omitempty"`
+	CenterHz   *float64   `json:"center_hz,omitempty"`
+	Start      *time.Time `json:"start,omitempty"`
+	Samples    int64      `json:"samples"`
+	Status     string     `json:"status"`
+	Error      string     `json:"error,omitempty"`
+	Events     int        `json:"events"`
+	Stats      *Stats     `json:"stats,omitempty"`
+}
+
+// Capture statuses.
+const (
+	StatusOK          = "ok"
+	StatusQuarantined = "quarantined"
+)
+
+// Stats summarise a whole capture.
+type Stats struct {
+	PowerDBFS      float64     `json:"power_dbfs"`
+	NoiseFloorDBFS float64     `json:"noise_floor_dbfs"`
+	AGCDeviationDB float64     `json:"agc_deviation_db"`
+	SKMax          float64     `json:"sk_max"`
+	ClipFraction   float64     `json:"clip_fraction"`
+	KurtosisRatio  float64     `json:"kurtosis_ratio"`
+	Baseline       string      `json:"baseline"` // "learning", "learned" or "loaded"
+	Satellites     []Satellite `json:"satellites"`
+	GNSSSkipped    string      `json:"gnss_skipped,omitempty"`
+}
+
+// Satellite is one satellite measured in a capture.
+type Satellite struct {
+	System         string  `json:"system"`
+	PRN            int     `json:"prn"`
+	CN0DBHz        float64 `json:"cn0_dbhz"`
+	DopplerHz      float64 `json:"doppler_hz"`
+	CodePhaseChips float64 `json:"code_phase_chips"`
+}
+
+func ptr[T any](v T) *T { return &v }

@@ -1,0 +1,91 @@
+package detect
+
+import "math"
+
+// NoiseBand finds band-limited noise: contiguous runs of bins whose power
+// ratio to the floor exceeds the bin threshold, wider than a tone, with SK
+// near 1 (Gaussian), covering less than three quarters of the band (a wider
+// rise is wideband noise, NoiseFloor's).
+//
+// Bandwidth is measured at half of the run's median excess (−3 dB), the
+// edges interpolated linearly between bins; the centre is the midpoint.
+// J/N is the run's excess power over the noise power in the capture
+// bandwidth. The mean SK over the run must lie within 4 standard errors
+// of 1 (σ_SK/√bins; Nita & Gary 2010b eq. 9 for σ_SK): a constant-envelope
+// run (SK low) belongs to CW or Swept, an intermittent one (SK high) to
+// Pulse.
+type NoiseBand struct{}
+
+// Name implements Detector.
+func (NoiseBand) Name() string { return "noise_band" }
+
+// minBandBins is the narrowest run reported as a noise band.
+const minBandBins = 4
+
+// Detect implements Detector.
+func (d NoiseBand) Detect(in *BlockInput, out []Finding) []Finding {
+	f := in.F
+	if f.Frames == 0 {
+		return out
+	}
+	above := func(k int) bool { return !in.Excluded[k] && in.Ratio[k] > in.BinThreshold }
+	for k := 0; k < f.N; {
+		if !above(k) {
+			k++
+			continue
+		}
+		// Extend the run, bridging gaps of up to 2 bins.
+		j, last := k, k
+		for j < f.N && j-last <= 2 {
+			if above(j) {
+				last = j
+			}
+			j++
+		}
+		lo, hi := k, last
+		k = last + 1
+		if hi-lo+1 < minBandBins || hi-lo+1 > f.N*3/4 {
+			continue
+		}
+		sk, nb := in.meanSK(lo, hi)
+		if nb == 0 || math.Abs(sk-1) > 4*in.SKSigma/math.Sqrt(float64(nb)) {
+			continue
+		}
+		ex := make([]float64, 0, hi-lo+1)
+		for i := lo; i <= hi; i++ {
+			ex = append(ex, in.excess(i))
+		}
+		half := medianOf(ex) / 2
+		lowEdge := edge(in, lo, -1, half)
+		highEdge := edge(in, hi, +1, half)
+		out = append(out, Finding{Detector: d.Name(), Class: ClassNarrowbandNoise, LowHz: lowEdge, HighHz: highEdge,
+			OffsetHz: (lowEdge + highEdge) / 2, JN: in.bandPower(lo-1, hi+1) / in.NoisePower})
+	}
+	return out
+}
+
+// edge walks from bin k in direction dir to where the excess falls below
+// level and returns the interpolated frequency of the crossing.
+func edge(in *BlockInput, k, dir int, level float64) float64 {
+	f := in.F
+	bin := f.Fs / float64(f.N)
+	// Move inward first if the run's end bin is itself below the level.
+	for in.excess(k) < level && k-dir >= 0 && k-dir < f.N {
+		k -= dir
+	}
+	for {
+		nx := k + dir
+		if nx < 0 || nx >= f.N {
+			return f.Offset(k) + float64(dir)*bin/2
+		}
+		a, b := in.excess(k), in.excess(nx)
+		if b < level {
+			t := 0.5
+			if a > b {
+				t = (a - level) / (a - b)
+			}
+			return f.Offset(k) + float64(dir)*t*bin
+		}
+		k = nx
+	}
+}

@@ -1,0 +1,313 @@
+package detect
+
+import (
+	"context"
+	"crypto/sha256"
+	"encoding/hex"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"time"
+
+	"quietband/ingest"
+)
+
+// minFrames is the fewest frames a block needs for the spectral detectors
+// (a capture's short last block may have fewer; only pulses are sought
+// there).
+const minFrames = 16
+
+// Version is folded into event ids: a new detection code gives new ids.
+const Version = "quietband-detect/1"
+
+// Pipeline runs the detector bank over captures, one at a time, sharing a
+// State (baselines, open episodes) across them.
+type Pipeline struct {
+	cfg   Config
+	state *State
+	// GNSS, when set, measures the satellites of each capture; see
+	// SatelliteMeter.
+	GNSS SatelliteMeter
+}
+
+// SatelliteMeter measures satellites in a capture (acquisition on a
+// snapshot, then C/N0 over the blocks). The pipeline feeds it every block.
+type SatelliteMeter interface {
+	// Start prepares for a capture; skip is a reason to measure nothing.
+	Start(fs, centerHz float64, hasCenter bool) (skip string)
+	// Block takes the next block of samples.
+	Block(start int64, x []complex64)
+	// Result returns the satellites measured.
+	Result() []Satellite
+}
+
+// Result is the outcome of one capture.
+type Result struct {
+	Events  []Event
+	Record  CaptureRecord
+	Elapsed time.Duration
+	// Spectra holds per-block summaries for reports (decimated PSD rows).
+	Blocks int
+}
+
+// NewPipeline makes a pipeline with cfg (zero fields take defaults) and a
+// shared state (nil: a fresh one).
+func NewPipeline(cfg Config, state *State) *Pipeline {
+	if state == nil {
+		state = NewState()
+	}
+	return &Pipeline{cfg: cfg, state: state}
+}
+
+// State is what the pipeline remembers between captures: baselines and the
+// interference episodes open at the end of the last capture of each input.
+type State struct {
+	Baselines *Baselines
+	episodes  map[string][]openEpisode
+}
+
+type openEpisode struct {
+	id     string
+	class  string
+	lo, hi float64
+	end    time.Time
+}
+
+// NewState returns an empty state.
+func NewState() *State {
+	return &State{Baselines: NewBaselines(), episodes: map[string][]openEpisode{}}
+}
+
+// episodeGap is how long an interference may be unseen between the end
+// of one capture and the start of the next and still be the same episode.
+const episodeGap = 10 * time.Minute
+
+// Fingerprint is a short hash of the effective configuration for a
+// capture at rate fs, folded into event ids.
+func (p *Pipeline) Fingerprint(fs float64) string {
+	b, _ := json.Marshal(p.cfg.Defaults(fs))
+	h := sha256.Sum256(append(b, Version...))
+	return hex.EncodeToString(h[:8])
+}
+
+// Process analyses one capture. name is the capture's name relative to the
+// watched root (it goes into the records). A read error mid-way returns the
+// error; nothing is learned from such a capture.
+func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) (*Result, error) {
+	t0 := time.Now()
+	fs := c.SampleRate
+	cfg := p.cfg.Defaults(fs)
+	if err := cfg.Validate(); err != nil {
+		return nil, err
+	}
+	center, hasCenter := c.CenterHz()
+	key := BaselineKey(c.Format.String(), fs, center, hasCenter, cfg.FFTSize)
+	base := p.state.Baselines.snapshot(key)
+	var floor []float64
+	if len(base.PSD) == cfg.FFTSize {
+		floor = base.PSD
+	}
+	blockLen := cfg.FFTSize * cfg.Frames
+	r, err := c.NewReader(blockLen)
+	if err != nil {
+		return nil, err
+	}
+	defer r.Close()
+
+	eng := NewSpectrum(cfg.FFTSize, cfg.Frames, fs)
+	sk := &SpectralKurtosis{}
+	pulse := &Pulse{}
+	bank := []Detector{sk, CW{}, NoiseBand{}, &Swept{}, pulse}
+	var thr thresholdCache
+	in := &BlockInput{}
+	tr := newTracker(cfg, fs, blockLen)
+	st := statsAcc{skMax: math.Inf(-1)}
+	psdSum := make([]float64, cfg.FFTSize)
+	var psdBlocks int
+	if p.GNSS != nil {
+		if why := p.GNSS.Start(fs, center, hasCenter); why != "" {
+			st.gnssSkipped = why
+		}
+	}
+	var findings []Finding
+	for {
+		if err := ctx.Err(); err != nil {
+			return nil, err
+		}
+		blk, err := r.Next()
+		if errors.Is(err, io.EOF) {
+			break
+		}
+		if err != nil {
+			return nil, err
+		}
+		f := eng.Analyze(blk.Start, blk.Samples, blk.Clipped)
+		in.F, in.Samples = f, blk.Samples
+		in.prepare(floor, &cfg, center, hasCenter, &thr)
+		sk.Compute(in)
+		findings = findings[:0]
+		if f.Frames >= minFrames {
+			// A wideband rise lifts the floor every narrow detector compares
+			// against (a sweep's leakage between its lines can mimic one;
+			// the classifier then lets the sweep claim it).
+			findings = NoiseFloor{}.Detect(in, findings)
+			if len(findings) > 0 {
+				in.raiseFloor(findings[0].FloorRiseDB)
+			}
+			for _, d := range bank {
+				findings = d.Detect(in, findings)
+			}
+		} else {
+			findings = pulse.Detect(in, findings)
+		}
+		tr.block(in, findings)
+		st.add(in, blk.Clipped)
+		if f.Frames == cfg.Frames {
+			for k, v := range f.PSD {
+				psdSum[k] += v
+			}
+			psdBlocks++
+		}
+		if p.GNSS != nil && st.gnssSkipped == "" {
+			p.GNSS.Block(blk.Start, blk.Samples)
+		}
+	}
+	sha := r.SHA256()
+	tr.finish()
+
+	res := &Result{Blocks: st.blocks}
+	fp := p.Fingerprint(fs)
+	stats := st.stats(base.Power)
+	if p.GNSS != nil && st.gnssSkipped == "" {
+		stats.Satellites = p.GNSS.Result()
+	}
+	if stats.Satellites == nil {
+		stats.Satellites = []Satellite{}
+	}
+	stats.GNSSSkipped = st.gnssSkipped
+	switch {
+	case base.Loaded:
+		stats.Baseline = "loaded"
+	case floor != nil:
+		stats.Baseline = "learned"
+	default:
+		stats.Baseline = "learning"
+	}
+	prev := p.state.episodes[key]
+	var stillOpen []openEpisode
+	for _, ev := range tr.events {
+		e := ev.toEvent(c, name, cfg, fs, center, hasCenter, in.NoisePower)
+		e.ID = eventID(sha, e.Class, e.SampleStart, e.OffsetHz, fp)
+		e.Episode = e.ID
+		if ev.firstBlock == 0 {
+			for _, o := range prev {
+				if o.class == e.Class && overlaps(o.lo, o.hi, ev.lo, ev.hi) && !o.end.IsZero() &&
+					!e.Start.IsZero() && e.Start.Sub(o.end) <= episodeGap && e.Start.Sub(o.end) >= -time.Second {
+					e.Episode = o.id
+					break
+				}
+			}
+		}
+		if ev.openAtEnd {
+			stillOpen = append(stillOpen, openEpisode{id: e.Episode, class: e.Class, lo: ev.lo, hi: ev.hi, end: e.End})
+		}
+		res.Events = append(res.Events, e)
+	}
+	p.state.episodes[key] = stillOpen
+
+	if len(res.Events) == 0 && psdBlocks > 0 {
+		for k := range psdSum {
+			psdSum[k] /= float64(psdBlocks)
+		}
+		p.state.Baselines.update(key, func(b *Baseline) {
+			b.FFTSize = cfg.FFTSize
+			b.learn(psdSum, st.power(), c.Start(), cfg.BaselineWarmup, cfg.BaselineWeight)
+		})
+	}
+
+	rec := CaptureRecord{Capture: name, SHA256: sha, Format: c.Format.String(), SampleRate: fs,
+		Samples: c.Samples, Status: StatusOK, Events: len(res.Events), Stats: &stats}
+	if hasCenter {
+		rec.CenterHz = ptr(center)
+	}
+	if t := c.Start(); !t.IsZero() {
+		rec.Start = ptr(t)
+	}
+	res.Record = rec
+	res.Elapsed = time.Since(t0)
+	return res, nil
+}
+
+func eventID(sha, class string, start int64, offset float64, fp string) string {
+	h := sha256.Sum256(fmt.Appendf(nil, "%s|%s|%d|%.0f|%s", sha, class, start, offset, fp))
+	return hex.EncodeToString(h[:12])
+}
+
+func overlaps(a0, a1, b0, b1 float64) bool { return a0 <= b1 && b0 <= a1 }
+
+// statsAcc accumulates the capture statistics over blocks.
+type statsAcc struct {
+	blocks      int
+	samples     int64
+	p2, p4      float64
+	clipped     int64
+	skMax       float64
+	floors      []float64
+	gnssSkipped string
+}
+
+func (s *statsAcc) add(in *BlockInput, clipped int) {
+	f := in.F
+	n := float64(f.Samples)
+	s.blocks++
+	s.samples += int64(f.Samples)
+	s.p2 += f.Power * n
+	s.p4 += f.Moment4 * n
+	s.clipped += int64(clipped)
+	if f.Frames >= 16 {
+		for k, v := range in.SK {
+			if !in.Excluded[k] && v > s.skMax {
+				s.skMax = v
+			}
+		}
+	}
+	if f.Frames > 0 {
+		// Noise floor: the median bin ratio to the reference shape, scaled
+		// to the band (robust against narrow interference).
+		s.floors = append(s.floors, medianOf(in.Ratio)/(1-1/(3*float64(f.Frames)))*in.NoisePower)
+	}
+}
+
+func (s *statsAcc) power() float64 {
+	if s.samples == 0 {
+		return 0
+	}
+	return s.p2 / float64(s.samples)
+}
+
+func (s *statsAcc) stats(basePower float64) Stats {
+	p := s.power()
+	st := Stats{PowerDBFS: dB(p), ClipFraction: float64(s.clipped) / math.Max(float64(s.samples), 1)}
+	if len(s.floors) > 0 {
+		st.NoiseFloorDBFS = dB(medianOf(s.floors))
+	}
+	if basePower > 0 && p > 0 {
+		st.AGCDeviationDB = 10 * math.Log10(p/basePower)
+	}
+	if !math.IsInf(s.skMax, 0) {
+		st.SKMax = s.skMax
+	}
+	if p > 0 {
+		st.KurtosisRatio = s.p4 / float64(s.samples) / (p * p)
+	}
+	return st
+}
+
+func dB(x float64) float64 {
+	if x <= 0 {
+		return -300
+	}
+	return 10 * math.Log10(x)
+}

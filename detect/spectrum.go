@@ -1,0 +1,149 @@
+package detect
+
+import (
+	"math"
+
+	"quietband/detect/fft"
+)
+
+// Spectrum is the spectrum engine: it makes the one FFT pass over a block
+// that every spectral detector reads. Frames of N samples, non-overlapping
+// (overlap would correlate the SK accumulations and change their variance,
+// Nita & Gary 2010b), each multiplied by a periodic Hann window
+// w[n] = sin²(πn/N) and transformed.
+//
+// For bin k of frame i, the normalized power is
+//
+//	P_i(k) = |Σ_n w[n]·x[n]·e^{−j2πkn/N}|² / (N·Σ_n w[n]²),
+//
+// so that white noise of variance σ² gives E[Σ_k P_i(k)] = σ² and a tone of
+// amplitude A gives Σ_k P_i(k) = A². A Hann-windowed bin of complex
+// Gaussian noise is still complex Gaussian, so P_i(k) stays exponential
+// (SK shape factor d = 1).
+//
+// A Spectrum is not safe for concurrent use; make one per goroutine.
+type Spectrum struct {
+	n      int
+	fs     float64
+	win    []float32
+	norm   float32
+	plan   *fft.Plan
+	buf    []complex64
+	feat   Features
+	frames int
+}
+
+// Features is what the engine extracts from one block. Bins are in
+// centred order: index i is the frequency offset (i − N/2)·fs/N.
+type Features struct {
+	Start   int64 // first sample of the block in the capture
+	Samples int   // block length
+	Frames  int   // complete frames in the block (M)
+	N       int   // FFT size
+	Fs      float64
+
+	S1, S2 []float64 // Σ P_i(k) and Σ P_i(k)² over the frames
+	PSD    []float64 // S1/M: mean power per bin
+	// FramePSD is the M×N matrix of P_i(k), frame-major.
+	FramePSD []float32
+	// FramePower is the total power of each frame, Σ_k P_i(k).
+	FramePower []float64
+
+	Power   float64 // mean |x|² over the block
+	Moment4 float64 // mean |x|⁴ over the block
+	Clipped int
+}
+
+// NewSpectrum makes an engine for frames of n samples (a power of two) at
+// sample rate fs, for blocks of up to frames frames.
+func NewSpectrum(n, frames int, fs float64) *Spectrum {
+	s := &Spectrum{n: n, fs: fs, plan: fft.NewPlan(n), buf: make([]complex64, n),
+		win: make([]float32, n), frames: frames}
+	var sum2 float64
+	for i := range s.win {
+		v := math.Sin(math.Pi * float64(i) / float64(n))
+		s.win[i] = float32(v * v)
+		sum2 += float64(s.win[i]) * float64(s.win[i])
+	}
+	s.norm = float32(1 / (float64(n) * sum2))
+	f := &s.feat
+	f.N, f.Fs = n, fs
+	f.S1, f.S2, f.PSD = make([]float64, n), make([]float64, n), make([]float64, n)
+	f.FramePSD = make([]float32, frames*n)
+	f.FramePower = make([]float64, frames)
+	return s
+}
+
+// BinHz is the bin spacing fs/N.
+func (s *Spectrum) BinHz() float64 { return s.fs / float64(s.n) }
+
+// Analyze makes the FFT pass over one block and returns its features. The
+// result is owned by the engine and valid until the next call. It does not
+// allocate.
+func (s *Spectrum) Analyze(start int64, samples []complex64, clipped int) *Features {
+	f := &s.feat
+	n := s.n
+	m := min(len(samples)/n, s.frames)
+	f.Start, f.Samples, f.Frames, f.Clipped = start, len(samples), m, clipped
+	clear(f.S1)
+	clear(f.S2)
+	half := n / 2
+	for i := 0; i < m; i++ {
+		frame := samples[i*n : (i+1)*n]
+		for j, v := range frame {
+			w := s.win[j]
+			s.buf[j] = complex(real(v)*w, imag(v)*w)
+		}
+		s.plan.Forward(s.buf, s.buf)
+		row := f.FramePSD[i*n : (i+1)*n]
+		var tot float64
+		for k, v := range s.buf {
+			p := (real(v)*real(v) + imag(v)*imag(v)) * s.norm
+			// Centred order: FFT bin k goes to index (k + N/2) mod N.
+			c := k + half
+			if c >= n {
+				c -= n
+			}
+			row[c] = p
+			pf := float64(p)
+			f.S1[c] += pf
+			f.S2[c] += pf * pf
+			tot += pf
+		}
+		f.FramePower[i] = tot
+	}
+	if m > 0 {
+		inv := 1 / float64(m)
+		for k := range f.PSD {
+			f.PSD[k] = f.S1[k] * inv
+		}
+	} else {
+		clear(f.PSD)
+	}
+	var p2, p4 float64
+	for _, v := range samples {
+		p := float64(real(v))*float64(real(v)) + float64(imag(v))*float64(imag(v))
+		p2 += p
+		p4 += p * p
+	}
+	if len(samples) > 0 {
+		f.Power = p2 / float64(len(samples))
+		f.Moment4 = p4 / float64(len(samples))
+	}
+	return f
+}
+
+// Offset is the frequency offset of centred bin index i.
+func (f *Features) Offset(i int) float64 { return float64(i-f.N/2) * f.Fs / float64(f.N) }
+
+// Bin is the centred bin index nearest to offset hz, clamped to the band.
+func (f *Features) Bin(hz float64) int {
+	i := int(math.Round(hz*float64(f.N)/f.Fs)) + f.N/2
+	return min(max(i, 0), f.N-1)
+}
+
+// Frame returns the normalized powers of frame i.
+func (f *Features) Frame(i int) []float32 { return f.FramePSD[i*f.N : (i+1)*f.N] }
+
+// FrameSamples is the number of samples per frame.
+func (f *Features) FrameSamples() int { return f.N }

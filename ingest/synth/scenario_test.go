@@ -1,0 +1,387 @@
+package synth
+
+import (
+	"bytes"
+	"encoding/json"
+	"math"
+	"os"
+	"path/filepath"
+	"reflect"
+	"strings"
+	"testing"
+	"time"
+
+	"quietband/ingest"
+)
+
+// everyKind is a short scenario with a satellite and one emitter of every
+// kind, all inside the band.
+func everyKind(seed uint64) Scenario {
+	return Scenario{Name: "every-kind", Site: "bench", Format: "ci16_le", SampleRate: 4e6, NoiseDBFS: -30,
+		Start: testStart, Seed: seed, Captures: []Capture{
+			{Name: "a", DurationS: 0.02, Satellites: []Satellite{{PRN: 12, CN0DBHz: 44, DopplerHz: -900, CodePhaseChips: 3.5}},
+				Emitters: []Emitter{
+					{Kind: KindCW, OffsetHz: 1e5, JNDB: 3},
+					{Kind: KindSwept, JNDB: 6, LowHz: -1e6, HighHz: 1e6, PeriodS: 1e-5, StartS: 0.005},
+					{Kind: KindPulsed, JNDB: 10, PRIS: 4e-4, OffsetHz: -3e5},
+					{Kind: KindPulsed, Pulse: "rect", JNDB: 10, WidthS: 1e-5, PRIS: 1e-3},
+					{Kind: KindWidebandNoise, FloorRiseDB: 1, EndS: 0.015},
+					{Kind: KindNarrowbandNoise, JNDB: 0, OffsetHz: 6e5, BandwidthHz: 1e5},
+				}},
+			{Name: "b", OffsetS: 60, DurationS: 0.01, AttenuationDB: 4,
+				Satellites: []Satellite{{PRN: 12, CN0DBHz: 44, DopplerHz: -900, CodePhaseChips: 3.5}}},
+		}}
+}
+
+// dirFiles reads every file of dir, by name.
+func dirFiles(t *testing.T, dir string) map[string][]byte {
+	t.Helper()
+	ents, err := os.ReadDir(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	out := map[string][]byte{}
+	for _, e := range ents {
+		b, err := os.ReadFile(filepath.Join(dir, e.Name()))
+		if err != nil {
+			t.Fatal(err)
+		}
+		out[e.Name()] = b
+	}
+	return out
+}
+
+// TestDeterminism: one scenario and seed give byte-identical files (data,
+// SigMF metadata and truth) however often it is written; another seed gives
+// other samples.
+func TestDeterminism(t *testing.T) {
+	t.Parallel()
+	d1, t1 := writeScenario(t, everyKind(9))
+	d2, t2 := writeScenario(t, everyKind(9))
+	d3, _ := writeScenario(t, everyKind(10))
+	if !reflect.DeepEqual(t1, t2) {
+		t.Errorf("truths differ between two runs with the same seed")
+	}
+	f1, f2, f3 := dirFiles(t, d1), dirFiles(t, d2), dirFiles(t, d3)
+	want := []string{"a.sigmf-data", "a.sigmf-meta", "a" + TruthExt, "b.sigmf-data", "b.sigmf-meta", "b" + TruthExt}
+	if len(f1) != len(want) {
+		names := make([]string, 0, len(f1))
+		for k := range f1 {
+			names = append(names, k)
+		}
+		t.Errorf("files written: %v, want %v", names, want)
+	}
+	for _, name := range want {
+		if _, ok := f1[name]; !ok {
+			t.Errorf("%s not written", name)
+			continue
+		}
+		if !bytes.Equal(f1[name], f2[name]) {
+			t.Errorf("%s differs between two runs with seed 9", name)
+		}
+		if strings.HasSuffix(name, ingest.DataExt) {
+			if len(f3[name]) != len(f1[name]) {
+				t.Errorf("%s: seed 10 wrote %d bytes, seed 9 %d", name, len(f3[name]), len(f1[name]))
+			}
+			if bytes.Equal(f1[name], f3[name]) {
+				t.Errorf("%s is the same for seeds 9 and 10", name)
+			}
+		}
+	}
+	// The sidecar on disk is the truth Write returned.
+	for _, tr := range t1 {
+		var got Truth
+		name := strings.TrimSuffix(tr.Capture, ingest.MetaExt) + TruthExt
+		if err := json.Unmarshal(f1[name], &got); err != nil {
+			t.Fatalf("%s: %v", name, err)
+		}
+		if !reflect.DeepEqual(got, tr) {
+			t.Errorf("%s on disk:\n%+v\nreturned:\n%+v", name, got, tr)
+		}
+	}
+	// What the SigMF metadata says agrees with the truth.
+	for _, tr := range t1 {
+		c, err := ingest.Open(filepath.Join(d1, tr.Capture), ingest.RawSettings{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		fc, ok := c.CenterHz()
+		if c.Format.String() != tr.Format || c.SampleRate != tr.SampleRate || !ok || fc != tr.CenterHz ||
+			!c.Start().Equal(tr.Start) || c.Samples != tr.Samples {
+			t.Errorf("%s: metadata %s %g Hz centre %g (%v) start %v, %d samples; truth %s %g centre %g start %v, %d samples",
+				tr.Capture, c.Format, c.SampleRate, fc, ok, c.Start(), c.Samples, tr.Format, tr.SampleRate, tr.CenterHz, tr.Start, tr.Samples)
+		}
+	}
+	if got, want := t1[1].Start, testStart.Add(60*time.Second); !got.Equal(want) {
+		t.Errorf("second capture starts %v, want scenario start + offset_s = %v", got, want)
+	}
+	if got, want := t1[1].Satellites[0].CN0DBHz, 40.0; got != want {
+		t.Errorf("attenuated truth C/N0 %g, want %g", got, want)
+	}
+}
+
+// TestRaw: raw: true writes bare sample files named by format, with the
+// samples a SigMF run of the same seed writes, and a modification time at
+// the end of the capture, so that a reader taking start = mtime − duration
+// (the ingest convention for raw files) recovers the truth's start.
+func TestRaw(t *testing.T) {
+	t.Parallel()
+	for _, tc := range []struct{ format, ext string }{{"ci16_le", ".ci16"}, {"cf32_le", ".cf32"}, {"ci8", ".ci8"}} {
+		t.Run(tc.format, func(t *testing.T) {
+			t.Parallel()
+			s := everyKind(4)
+			s.Format = tc.format
+			sigmfDir, _ := writeScenario(t, s)
+			s.Raw = true
+			dir, truths := writeScenario(t, s)
+			for _, tr := range truths {
+				if ext := filepath.Ext(tr.Capture); ext != tc.ext {
+					t.Errorf("raw %s capture %q, want extension %s", tc.format, tr.Capture, tc.ext)
+				}
+				path := filepath.Join(dir, tr.Capture)
+				st, err := os.Stat(path)
+				if err != nil {
+					t.Fatal(err)
+				}
+				end := tr.Start.Add(time.Duration(float64(tr.Samples) / tr.SampleRate * float64(time.Second)))
+				if d := st.ModTime().Sub(end); d < -time.Millisecond || d > time.Millisecond {
+					t.Errorf("%s: mtime %v, want start + duration = %v", tr.Capture, st.ModTime().UTC(), end)
+				}
+				c, err := ingest.Open(path, ingest.RawSettings{SampleRate: tr.SampleRate})
+				if err != nil {
+					t.Fatal(err)
+				}
+				if d := c.Start().Sub(tr.Start); d < -time.Millisecond || d > time.Millisecond {
+					t.Errorf("%s: reader start %v, truth %v", tr.Capture, c.Start(), tr.Start)
+				}
+				raw, _ := os.ReadFile(path)
+				base := strings.TrimSuffix(tr.Capture, tc.ext)
+				sig, _ := os.ReadFile(filepath.Join(sigmfDir, base+ingest.DataExt))
+				if !bytes.Equal(raw, sig) || len(raw) == 0 {
+					t.Errorf("%s: raw samples differ from the SigMF data of the same seed", tr.Capture)
+				}
+				if _, err := os.Stat(filepath.Join(dir, base+ingest.MetaExt)); err == nil {
+					t.Errorf("raw run wrote SigMF metadata for %s", base)
+				}
+				if _, err := os.Stat(filepath.Join(dir, base+TruthExt)); err != nil {
+					t.Errorf("raw run wrote no truth for %s: %v", base, err)
+				}
+			}
+		})
+	}
+}
+
+const yamlAllKinds = `
+name: yaml-test
+description: every emitter kind
+site: test-bench
+format: cf32_le
+sample_rate: 2.0e6
+center_hz: 1575.42e6
+noise_dbfs: -35
+seed: 42
+start: 2026-01-02T03:04:05Z
+captures:
+  - name: all-kinds
+    duration_s: 0.01
+    attenuation_db: 2
+    satellites:
+      - {prn: 5, cn0_dbhz: 45, doppler_hz: -1200, code_phase_chips: 17.5}
+    emitters:
+      - {kind: cw, tones: [{offset_hz: 1.0e5, jn_db: 3}, {offset_hz: -2.0e5, jn_db: 0}]}
+      - {kind: cw, label: spur, offset_hz: 3.0e5, jn_db: -2}
+      - {kind: swept, jn_db: 10, low_hz: -5.0e5, high_hz: 5.0e5, period_s: 2.0e-5, shape: triangle, start_s: 0.002, end_s: 0.008}
+      - {kind: pulsed, jn_db: 15, pri_s: 4.0e-4, offset_hz: 1.0e5}
+      - {kind: pulsed, pulse: rect, width_s: 1.0e-5, pri_s: 1.0e-3, jn_db: 12}
+      - {kind: wideband_noise, floor_rise_db: 3}
+      - {kind: narrowband_noise, jn_db: 0, offset_hz: 4.0e5, bandwidth_hz: 1.0e5}
+  - duration_s: 0.005
+`
+
+// TestParseScenario: a YAML scenario with every emitter kind parses, gets
+// its defaults, and writes.
+func TestParseScenario(t *testing.T) {
+	t.Parallel()
+	s, err := ParseScenario(strings.NewReader(yamlAllKinds), "all.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if s.Name != "yaml-test" || s.Site != "test-bench" || s.Format != "cf32_le" || s.SampleRate != 2e6 ||
+		s.NoiseDBFS != -35 || s.Seed != 42 || !s.Start.Equal(time.Date(2026, 1, 2, 3, 4, 5, 0, time.UTC)) {
+		t.Errorf("scenario header %+v", s)
+	}
+	if len(s.Captures) != 2 || s.Captures[1].Name != "yaml-test-002" {
+		t.Fatalf("captures %+v (the unnamed one should be yaml-test-002)", s.Captures)
+	}
+	c := s.Captures[0]
+	if c.DurationS != 0.01 || c.AttenuationDB != 2 || len(c.Satellites) != 1 || c.Satellites[0] != (Satellite{5, 45, -1200, 17.5}) {
+		t.Errorf("capture %+v", c)
+	}
+	em := c.Emitters
+	if len(em) != 7 {
+		t.Fatalf("%d emitters, want 7", len(em))
+	}
+	if len(em[0].Tones) != 2 || em[0].Tones[1] != (Tone{-2e5, 0}) {
+		t.Errorf("cw tones %+v", em[0].Tones)
+	}
+	if len(em[1].Tones) != 1 || em[1].Tones[0] != (Tone{3e5, -2}) || em[1].Label != "spur" {
+		t.Errorf("cw offset_hz/jn_db should become one tone: %+v", em[1])
+	}
+	if em[2].Shape != "triangle" || em[2].StartS != 0.002 || em[2].EndS != 0.008 {
+		t.Errorf("swept %+v", em[2])
+	}
+	// Defaults: the DME-like pair, 12 µs apart (ICAO Annex 10, X channel),
+	// 3.51 µs wide at half amplitude (REFERENCES §6 [C]).
+	if em[3].Pulse != "gaussian_pair" || em[3].PairSpacingS != 12e-6 || math.Abs(em[3].WidthS-3.51e-6) > 0.005e-6 {
+		t.Errorf("pulsed defaults %+v", em[3])
+	}
+	if em[4].Pulse != "rect" || em[4].WidthS != 1e-5 {
+		t.Errorf("rect %+v", em[4])
+	}
+	// 3 dB rise is J/N = 10·log10(10^0.3 − 1) = −0.0207 dB (REFERENCES §9).
+	if math.Abs(em[5].JNDB-(-0.0207)) > 1e-3 || em[5].EndS != 0.01 {
+		t.Errorf("wideband %+v", em[5])
+	}
+	if em[6].BandwidthHz != 1e5 || em[6].OffsetHz != 4e5 {
+		t.Errorf("narrowband %+v", em[6])
+	}
+	truths, err := Write(s, t.TempDir())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if truths[0].Samples != 20000 || truths[1].Samples != 10000 || len(truths[0].Emitters) != 7 {
+		t.Errorf("truths %+v", truths)
+	}
+	if got, want := truths[0].Satellites[0].CN0DBHz, 43.0; got != want {
+		t.Errorf("C/N0 after attenuation %g, want %g", got, want)
+	}
+}
+
+// TestParseScenarioErrors: unknown keys and bad values are rejected with a
+// message that names the file, the key or value, and what is wrong.
+func TestParseScenarioErrors(t *testing.T) {
+	t.Parallel()
+	const head = "sample_rate: 4.0e6\ncaptures:\n  - name: c1\n    duration_s: 0.1\n"
+	cases := []struct {
+		name, yaml string
+		want       []string
+	}{
+		{"unknown top-level key", "sample_rat: 4.0e6\ncaptures: [{name: c1}]\n", []string{"bad.yaml", "sample_rat"}},
+		{"unknown emitter key", head + "    emitters: [{kind: narrowband_noise, jn_db: 3, bandwith_hz: 1.0e5}]\n", []string{"bad.yaml", "bandwith_hz"}},
+		{"unknown satellite key", head + "    satellites: [{prn: 3, cno_dbhz: 40}]\n", []string{"cno_dbhz"}},
+		{"shape sideways", head + "    emitters: [{kind: swept, jn_db: 3, low_hz: -1.0e5, high_hz: 1.0e5, period_s: 1.0e-4, shape: sideways}]\n",
+			[]string{"bad.yaml", "c1", "emitters[0]", `"sideways"`, "up, down or triangle"}},
+		{"tone beyond fs/2", head + "    emitters: [{kind: cw, offset_hz: 2.5e6, jn_db: 0}]\n", []string{"c1", "2.5e+06", "outside ±fs/2"}},
+		{"one of several tones beyond fs/2", head + "    emitters: [{kind: cw, tones: [{offset_hz: 0, jn_db: 0}, {offset_hz: -2.0e6, jn_db: 0}]}]\n",
+			[]string{"-2e+06", "outside ±fs/2"}},
+		{"start after end", head + "    emitters: [{kind: cw, offset_hz: 1000, jn_db: 0, start_s: 0.06, end_s: 0.05}]\n", []string{"c1", "start_s 0.06", "end_s 0.05"}},
+		{"start at end", head + "    emitters: [{kind: cw, offset_hz: 1000, jn_db: 0, start_s: 0.05, end_s: 0.05}]\n", []string{"start_s 0.05", "start < end"}},
+		{"end beyond the capture", head + "    emitters: [{kind: cw, offset_hz: 1000, jn_db: 0, end_s: 0.2}]\n", []string{"end_s 0.2", "0.1"}},
+		{"prn 40", head + "    satellites: [{prn: 40, cn0_dbhz: 40}]\n", []string{"c1", "satellites[0]", "prn 40", "1..32"}},
+		{"tone J/N out of range", head + "    emitters: [{kind: cw, tones: [{offset_hz: 1000, jn_db: 90}]}]\n", []string{"jn_db 90", "out of range"}},
+		// Not-a-number and infinite values: each would write NaN samples or
+		// index the C/A code out of range.
+		{"noise NaN", "noise_dbfs: .nan\n" + head, []string{"noise_dbfs NaN"}},
+		{"Doppler NaN", head + "    satellites: [{prn: 3, cn0_dbhz: 40, doppler_hz: .nan}]\n", []string{"satellites[0]", "finite"}},
+		{"code phase infinite", head + "    satellites: [{prn: 3, cn0_dbhz: 40, code_phase_chips: .inf}]\n", []string{"satellites[0]", "finite"}},
+		{"emitter start NaN", head + "    emitters: [{kind: wideband_noise, floor_rise_db: 3, start_s: .nan}]\n", []string{"emitters[0]", "finite"}},
+		{"tone offset NaN", head + "    emitters: [{kind: cw, tones: [{offset_hz: .nan, jn_db: 0}]}]\n", []string{"emitters[0]", "offset_hz NaN", "finite"}},
+		{"attenuation infinite", head + "    attenuation_db: -.inf\n", []string{"attenuation_db", "finite"}},
+		{"satellite outside the band", "center_hz: 1176.45e6\n" + head + "    satellites: [{prn: 3, cn0_dbhz: 40}]\n",
+			[]string{"satellites[0]", "outside ±fs/2"}},
+		{"narrow band beyond fs/2", head + "    emitters: [{kind: narrowband_noise, jn_db: 0, offset_hz: 1.95e6, bandwidth_hz: 2.0e5}]\n", []string{"within ±fs/2"}},
+		{"no captures", "name: empty\n", []string{"no captures"}},
+		{"bad format", "format: ci12\n" + head, []string{"format", "ci12"}},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			_, err := ParseScenario(strings.NewReader(tc.yaml), "bad.yaml")
+			if err == nil {
+				t.Fatalf("accepted:\n%s", tc.yaml)
+			}
+			t.Log(err)
+			for _, w := range tc.want {
+				if !strings.Contains(err.Error(), w) {
+					t.Errorf("error %q does not mention %q", err, w)
+				}
+			}
+		})
+	}
+}
+
+// TestBuiltins: every built-in scenario normalizes and writes. The
+// captures are cut to 0.02 s (emitter times scaled with them) to stay fast.
+func TestBuiltins(t *testing.T) {
+	t.Parallel()
+	names := BuiltinNames()
+	if len(names) == 0 {
+		t.Fatal("no built-in scenarios")
+	}
+	if _, err := Builtin("no-such-scenario"); err == nil || !strings.Contains(err.Error(), "demo") {
+		t.Errorf("unknown built-in: error %v should list the known ones", err)
+	}
+	for _, name := range names {
+		t.Run(name, func(t *testing.T) {
+			t.Parallel()
+			s, err := Builtin(name)
+			if err != nil {
+				t.Fatal(err)
+			}
+			const dur = 0.02
+			for i := range s.Captures {
+				c := &s.Captures[i]
+				f := dur / c.DurationS
+				c.DurationS = dur
+				for j := range c.Emitters {
+					c.Emitters[j].StartS *= f
+					c.Emitters[j].EndS *= f
+				}
+			}
+			dir, truths := writeScenario(t, s)
+			for i, tr := range truths {
+				if tr.Samples != int64(math.Round(dur*s.SampleRate)) {
+					t.Errorf("%s: %d samples", tr.Capture, tr.Samples)
+				}
+				if tr.Clipped != 0 {
+					t.Errorf("%s: %d samples clipped", tr.Capture, tr.Clipped)
+				}
+				if len(tr.Satellites) != len(s.Captures[i].Satellites) || len(tr.Emitters) != len(s.Captures[i].Emitters) {
+					t.Errorf("%s: truth has %d satellites and %d emitters, scenario %d and %d", tr.Capture,
+						len(tr.Satellites), len(tr.Emitters), len(s.Captures[i].Satellites), len(s.Captures[i].Emitters))
+				}
+				x := readCapture(t, dir, tr)
+				// The floor plus what the truth says is there: every
+				// satellite adds C = C/N0·σ²/fs, emitters their J (time
+				// averaged). Checked loosely (0.5 dB) since pulses are
+				// sparse; it catches silent or missing sources.
+				sigma2 := undb(tr.NoiseDBFS)
+				want := sigma2
+				for _, sat := range tr.Satellites {
+					want += undb(sat.CN0DBHz) * sigma2 / tr.SampleRate
+				}
+				for _, e := range tr.Emitters {
+					frac := float64(e.EndSample-e.StartSample) / float64(tr.Samples)
+					switch e.Kind {
+					case KindCW:
+						for _, tone := range e.Tones {
+							want += frac * undb(tone.JNDB) * sigma2
+						}
+					case KindPulsed:
+						// A Gaussian pair carries 2·√(π/α) seconds of peak
+						// power; a rect pulse width_s.
+						on := e.WidthS
+						if e.Pulse == "gaussian_pair" {
+							on = 2 * math.Sqrt(math.Pi/DMEAlpha)
+						}
+						want += frac * on / e.PRIS * undb(e.JNDB) * sigma2
+					default:
+						want += frac * undb(e.JNDB) * sigma2
+					}
+				}
+				if got := meanPower(x); math.Abs(db(got/want)) > 0.5 {
+					t.Errorf("%s: mean power %.4g, truth implies %.4g (%.2f dB off)", tr.Capture, got, want, db(got/want))
+				}
+			}
+		})
+	}
+}

@@ -1,0 +1,73 @@
+package synth
+
+import (
+	"runtime"
+	"testing"
+)
+
+// busy20MSps is a 20 MS/s scenario with the eight satellites of the
+// built-in site and the given emitters.
+func busy20MSps(dur float64, emitters ...Emitter) Scenario {
+	c := Capture{Name: "busy", DurationS: dur, Satellites: siteSky(0), Emitters: emitters}
+	return oneCapture("ci16_le", 20e6, -30, dur, 1, c)
+}
+
+// chirp20 is a chirp jammer sweeping ±8 MHz every 12 µs.
+var chirp20 = Emitter{Kind: KindSwept, JNDB: 10, LowHz: -8e6, HighHz: 8e6, PeriodS: 12e-6, Shape: "up"}
+
+// BenchmarkWrite20MSps synthesizes and writes 0.1 s at 20 MS/s (ci16_le
+// SigMF, data synced) with 8 satellites and a chirp, and reports the
+// throughput in complex samples per second.
+func BenchmarkWrite20MSps(b *testing.B) {
+	dir := b.TempDir()
+	s := busy20MSps(0.1, chirp20)
+	if err := s.Normalize(); err != nil {
+		b.Fatal(err)
+	}
+	var samples int64
+	for b.Loop() {
+		truths, err := Write(&s, dir)
+		if err != nil {
+			b.Fatal(err)
+		}
+		samples += truths[0].Samples
+	}
+	b.ReportMetric(float64(samples)/b.Elapsed().Seconds()/1e6, "MS/s")
+}
+
+// TestWriteStreams writes a 2 s capture at 20 MS/s (4·10⁷ samples, 160 MB
+// of ci16) with every kind of source and checks that the bytes allocated
+// on the heap stay under 16 MiB: a writer that held the capture in memory
+// would need 320 MB of complex64 for it. Not a timing test.
+func TestWriteStreams(t *testing.T) {
+	if testing.Short() {
+		t.Skip("writes 160 MB")
+	}
+	// The chirp is on for 0.1 s only: it is the slowest source (two
+	// math.Mod per sample) and holds no buffers.
+	ch := chirp20
+	ch.StartS, ch.EndS = 0.9, 1.0
+	s := busy20MSps(2, ch,
+		Emitter{Kind: KindCW, OffsetHz: 1.5e6, JNDB: 0},
+		Emitter{Kind: KindPulsed, JNDB: 10, PRIS: 370e-6, OffsetHz: -2e6},
+		Emitter{Kind: KindWidebandNoise, FloorRiseDB: 1, StartS: 0.5, EndS: 1.5},
+		Emitter{Kind: KindNarrowbandNoise, JNDB: 0, OffsetHz: 3e6, BandwidthHz: 1e4},
+	)
+	dir := t.TempDir()
+	var before, after runtime.MemStats
+	runtime.GC()
+	runtime.ReadMemStats(&before)
+	truths, err := Write(&s, dir)
+	runtime.ReadMemStats(&after)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if truths[0].Samples != 40_000_000 {
+		t.Fatalf("%d samples written", truths[0].Samples)
+	}
+	grow := after.TotalAlloc - before.TotalAlloc
+	t.Logf("TotalAlloc grew by %.2f MiB for %d samples", float64(grow)/(1<<20), truths[0].Samples)
+	if grow > 16<<20 {
+		t.Errorf("writing 2 s at 20 MS/s allocated %.1f MiB, want < 16 MiB (streaming)", float64(grow)/(1<<20))
+	}
+}
