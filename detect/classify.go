@@ -3,7 +3,6 @@ package detect
 import (
 	"math"
 	"sort"
-	"time"
 
 	"quietband/ingest"
 )
@@ -335,7 +334,7 @@ func (e *trackedEvent) toEvent(c *ingest.Capture, name string, cfg Config, fs, c
 		end = min(start+int64(cfg.FFTSize), c.Samples)
 	}
 	ev := Event{Class: e.class, Capture: name, SampleStart: start, SampleCount: end - start,
-		Start: c.SampleTime(start), End: c.SampleTime(end), Detectors: sortedKeys(e.detectors)}
+		Start: Time{c.SampleTime(start)}, End: Time{c.SampleTime(end)}, Detectors: sortedKeys(e.detectors)}
 	jn := e.jnSum / float64(max(e.hits, 1))
 	ev.OffsetHz = (e.lo + e.hi) / 2
 	ev.BandwidthHz = e.hi - e.lo
@@ -405,7 +404,6 @@ func sortedKeys(m map[string]bool) []string {
 	return out
 }
 
-var _ = time.Second
 
 // isComb reports whether tones form a long regular comb: the line spectrum
 // of a periodic sweep seen in a block where the sweep itself could not be

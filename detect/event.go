@@ -28,8 +28,8 @@ type Event struct {
 	Capture     string    `json:"capture"`
 	SampleStart int64     `json:"sample_start"`
 	SampleCount int64     `json:"sample_count"`
-	Start       time.Time `json:"start"`
-	End         time.Time `json:"end"`
+	Start       Time      `json:"start"`
+	End         Time      `json:"end"`
 	OffsetHz    float64   `json:"offset_hz"`
 	CenterHz    *float64  `json:"center_hz,omitempty"`
 	BandwidthHz float64   `json:"bandwidth_hz"`
@@ -88,7 +88,7 @@ type CaptureRecord struct {
 	Format     string     `json:"format,omitempty"`
 	SampleRate float64    `json:"sample_rate_hz,omitempty"`
 	CenterHz   *float64   `json:"center_hz,omitempty"`
-	Start      *time.Time `json:"start,omitempty"`
+	Start      *Time      `json:"start,omitempty"`
 	Samples    int64      `json:"samples"`
 	Status     string     `json:"status"`
 	Error      string     `json:"error,omitempty"`
@@ -125,3 +125,25 @@ type Satellite struct {
 }
 
 func ptr[T any](v T) *T { return &v }
+
+// Time is a record timestamp: RFC 3339 in UTC with all nine fractional
+// digits, so that records sort and compare as plain strings.
+type Time struct{ time.Time }
+
+// TimeLayout is the layout of record timestamps.
+const TimeLayout = "2006-01-02T15:04:05.000000000Z"
+
+// MarshalJSON implements json.Marshaler.
+func (t Time) MarshalJSON() ([]byte, error) {
+	return []byte(`"` + t.UTC().Format(TimeLayout) + `"`), nil
+}
+
+// UnmarshalJSON implements json.Unmarshaler (any RFC 3339 form).
+func (t *Time) UnmarshalJSON(b []byte) error {
+	var v time.Time
+	if err := v.UnmarshalJSON(b); err != nil {
+		return err
+	}
+	t.Time = v.UTC()
+	return nil
+}

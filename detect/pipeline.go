@@ -211,7 +211,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) 
 			}
 		}
 		if ev.openAtEnd {
-			stillOpen = append(stillOpen, openEpisode{id: e.Episode, class: e.Class, lo: ev.lo, hi: ev.hi, end: e.End})
+			stillOpen = append(stillOpen, openEpisode{id: e.Episode, class: e.Class, lo: ev.lo, hi: ev.hi, end: e.End.Time})
 		}
 		res.Events = append(res.Events, e)
 	}
@@ -233,7 +233,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) 
 		rec.CenterHz = ptr(center)
 	}
 	if t := c.Start(); !t.IsZero() {
-		rec.Start = ptr(t)
+		rec.Start = &Time{t}
 	}
 	res.Record = rec
 	res.Elapsed = time.Since(t0)

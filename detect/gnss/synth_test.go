@@ -14,6 +14,7 @@ type satSpec struct {
 	dopplerHz float64 // carrier frequency − L1
 	codePhase float64 // chips at sample 0
 	carrier   float64 // carrier phase at sample 0, rad
+	powerW    float64 // if > 0, the carrier power C = A² (overrides cn0)
 	bitChips  float64 // chips of the current data bit already elapsed at sample 0 (codePhase + 1023·j)
 }
 
@@ -49,6 +50,9 @@ func addSat(rng *rand.Rand, x []complex64, fs, centerHz, sigma2 float64, st satS
 		panic(err)
 	}
 	amp := math.Sqrt(math.Pow(10, st.cn0/10) * sigma2 / fs)
+	if st.powerW > 0 {
+		amp = math.Sqrt(st.powerW)
+	}
 	rate := gpsca.CodeRate(st.dopplerHz)
 	fc := gpsca.L1 - centerHz + st.dopplerHz
 	const bitChips = 20 * gpsca.CodeLength

@@ -1,0 +1,50 @@
+package main
+
+import (
+	"fmt"
+	"io"
+	"time"
+
+	"quietband/metrics/eventlog"
+)
+
+func init() {
+	register("verify", "check an event log's records, sequence and hash chain", runVerify)
+}
+
+func runVerify(args []string, out, errOut io.Writer) error {
+	fs := newFlags("verify", "LOG...", `
+Checks an event log: every line is a whole JSON record with the schema
+header (v, kind, seq, prev), seq runs 1, 2, 3 ... without gap, and each
+record's prev is the SHA-256 of the line before it. Given one file, its
+rotated segments are checked with it, oldest first; given several, they are
+taken in the order given. Prints the first bad record (file, line, what is
+wrong) and exits 1, or a one-line summary and exits 0.`, errOut)
+	if err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	if fs.NArg() == 0 {
+		fs.Usage()
+		return errUsage
+	}
+	paths := fs.Args()
+	if len(paths) == 1 {
+		segs, err := eventlog.Segments(paths[0])
+		if err != nil {
+			return err
+		}
+		paths = segs
+	}
+	sum, err := eventlog.Verify(paths...)
+	if err != nil {
+		fmt.Fprintf(out, "BAD  %v\n", err)
+		return exitCode(1)
+	}
+	span := "no times"
+	if !sum.First.IsZero() {
+		span = sum.First.Format(time.RFC3339) + " .. " + sum.Last.Format(time.RFC3339)
+	}
+	fmt.Fprintf(out, "OK   %d records (%d events, %d captures) in %d file(s), %s, head %s\n",
+		sum.Records, sum.Events, sum.Captures, sum.Files, span, sum.Head)
+	return nil
+}
