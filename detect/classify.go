@@ -404,7 +404,6 @@ func sortedKeys(m map[string]bool) []string {
 	return out
 }
 
-
 // isComb reports whether tones form a long regular comb: the line spectrum
 // of a periodic sweep seen in a block where the sweep itself could not be
 // measured (it covers only part of the block). Such a block raises no cw

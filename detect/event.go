@@ -22,22 +22,22 @@ var Classes = []string{ClassCW, ClassSwept, ClassPulsed, ClassWidebandNoise, Cla
 // `kind: "event"` record of the event log. Field names are the log's
 // contract.
 type Event struct {
-	ID          string    `json:"id"`
-	Episode     string    `json:"episode"`
-	Class       string    `json:"class"`
-	Capture     string    `json:"capture"`
-	SampleStart int64     `json:"sample_start"`
-	SampleCount int64     `json:"sample_count"`
-	Start       Time      `json:"start"`
-	End         Time      `json:"end"`
-	OffsetHz    float64   `json:"offset_hz"`
-	CenterHz    *float64  `json:"center_hz,omitempty"`
-	BandwidthHz float64   `json:"bandwidth_hz"`
-	JNDB        float64   `json:"jn_db"`
-	PowerDBFS   float64   `json:"power_dbfs"`
-	Params      Params    `json:"params"`
-	Impact      *Impact   `json:"impact,omitempty"`
-	Detectors   []string  `json:"detectors"`
+	ID          string   `json:"id"`
+	Episode     string   `json:"episode"`
+	Class       string   `json:"class"`
+	Capture     string   `json:"capture"`
+	SampleStart int64    `json:"sample_start"`
+	SampleCount int64    `json:"sample_count"`
+	Start       Time     `json:"start"`
+	End         Time     `json:"end"`
+	OffsetHz    float64  `json:"offset_hz"`
+	CenterHz    *float64 `json:"center_hz,omitempty"`
+	BandwidthHz float64  `json:"bandwidth_hz"`
+	JNDB        float64  `json:"jn_db"`
+	PowerDBFS   float64  `json:"power_dbfs"`
+	Params      Params   `json:"params"`
+	Impact      *Impact  `json:"impact,omitempty"`
+	Detectors   []string `json:"detectors"`
 	// Related lists the ids of events of this capture that overlap this
 	// one in time and that the classifier links to it (a cn0_drop and the
 	// interference that explains it).
@@ -83,17 +83,17 @@ type Impact struct {
 // CaptureRecord is the body of a `kind: "capture"` record: written after
 // the capture's events, it marks the capture done.
 type CaptureRecord struct {
-	Capture    string     `json:"capture"`
-	SHA256     string     `json:"sha256,omitempty"`
-	Format     string     `json:"format,omitempty"`
-	SampleRate float64    `json:"sample_rate_hz,omitempty"`
-	CenterHz   *float64   `json:"center_hz,omitempty"`
-	Start      *Time      `json:"start,omitempty"`
-	Samples    int64      `json:"samples"`
-	Status     string     `json:"status"`
-	Error      string     `json:"error,omitempty"`
-	Events     int        `json:"events"`
-	Stats      *Stats     `json:"stats,omitempty"`
+	Capture    string   `json:"capture"`
+	SHA256     string   `json:"sha256,omitempty"`
+	Format     string   `json:"format,omitempty"`
+	SampleRate float64  `json:"sample_rate_hz,omitempty"`
+	CenterHz   *float64 `json:"center_hz,omitempty"`
+	Start      *Time    `json:"start,omitempty"`
+	Samples    int64    `json:"samples"`
+	Status     string   `json:"status"`
+	Error      string   `json:"error,omitempty"`
+	Events     int      `json:"events"`
+	Stats      *Stats   `json:"stats,omitempty"`
 }
 
 // Capture statuses.

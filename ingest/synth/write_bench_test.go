@@ -43,15 +43,17 @@ func TestWriteStreams(t *testing.T) {
 	if testing.Short() {
 		t.Skip("writes 160 MB")
 	}
-	// The chirp is on for 0.1 s only: it is the slowest source (two
-	// math.Mod per sample) and holds no buffers.
+	// The chirp and the band noise, the slowest sources per sample (two
+	// math.Mod per sample; a 65536-point FFT per 32768 samples for a
+	// 10 kHz band at 20 MS/s), are on for 0.1 s and 0.2 s only; their
+	// state is the same size whatever the span.
 	ch := chirp20
 	ch.StartS, ch.EndS = 0.9, 1.0
 	s := busy20MSps(2, ch,
 		Emitter{Kind: KindCW, OffsetHz: 1.5e6, JNDB: 0},
 		Emitter{Kind: KindPulsed, JNDB: 10, PRIS: 370e-6, OffsetHz: -2e6},
 		Emitter{Kind: KindWidebandNoise, FloorRiseDB: 1, StartS: 0.5, EndS: 1.5},
-		Emitter{Kind: KindNarrowbandNoise, JNDB: 0, OffsetHz: 3e6, BandwidthHz: 1e4},
+		Emitter{Kind: KindNarrowbandNoise, JNDB: 0, OffsetHz: 3e6, BandwidthHz: 1e4, StartS: 1.2, EndS: 1.4},
 	)
 	dir := t.TempDir()
 	var before, after runtime.MemStats
