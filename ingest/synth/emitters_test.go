@@ -10,9 +10,10 @@ import (
 	"gonum.org/v1/gonum/dsp/fourier"
 )
 
-// TestCW: each tone's J/N, measured by correlating with e^{j2πfn/fs} over
-// the emitter's span, is its configured J/N, and the tones are where the
-// truth puts them (peaks of a Hann-windowed FFT, gonum).
+// TestCW: each tone's J/N (tone power over the noise power σ² in the
+// capture bandwidth, DESIGN), measured by correlating with e^{j2πfn/fs}
+// over the emitter's span, is its configured J/N, and the tones are where
+// the truth puts them (peaks of a Hann-windowed FFT, gonum).
 //
 // The tone estimate |(1/M)Σ x e^{−j2πfn/fs}|² − σ̂²/M has relative σ
 // √(2/(M·J/N)) (the cross term of tone and noise); with M ≥ 2·10⁵ and
@@ -20,9 +21,8 @@ import (
 func TestCW(t *testing.T) {
 	t.Parallel()
 	cases := []struct {
-		name       string
-		e          Emitter
-		start, end float64
+		name string
+		e    Emitter
 	}{
 		{name: "one tone", e: Emitter{Kind: KindCW, OffsetHz: 100017, JNDB: 0}},
 		{name: "strong, below centre", e: Emitter{Kind: KindCW, OffsetHz: -612345.5, JNDB: 10}},
@@ -37,7 +37,11 @@ func TestCW(t *testing.T) {
 			tr, x := writeAndRead(t, oneCapture("ci16_le", fs, -30, 0.1, uint64(500+i), Capture{Emitters: []Emitter{tc.e}}))
 			te := tr.Emitters[0]
 			lo, hi := int(te.StartSample), int(te.EndSample)
-			if wantLo, wantHi := int(math.Round(te.StartS*fs)), int(math.Round(te.EndS*fs)); lo != wantLo || hi != wantHi {
+			wantLo, wantHi := int(math.Round(tc.e.StartS*fs)), int(math.Round(tc.e.EndS*fs))
+			if tc.e.EndS == 0 {
+				wantHi = len(x)
+			}
+			if lo != wantLo || hi != wantHi {
 				t.Fatalf("truth span [%d, %d), want [%d, %d)", lo, hi, wantLo, wantHi)
 			}
 			if len(te.Tones) == 0 {

@@ -11,7 +11,7 @@ import (
 
 // caCorrelations correlates x with the GPS L1 C/A replica of sat over
 // windows of one code period, each aligned to a code epoch, and returns
-// |P_k|² for every whole window and the window length N in samples.
+// P_k for every whole window and the window length N in samples.
 //
 // The replica follows IS-GPS-200: the code (gpsca.Code, Table 3-Ia) at
 // the code phase p(n) = chip0 + n·R/fs with R = 1.023 MHz·(1 + f_D/L1),
@@ -24,7 +24,7 @@ import (
 // than the whole samples of a code period, so every window lies inside one
 // epoch. The 50 bit/s navigation data change sign only on 20-epoch
 // boundaries (IS-GPS-200 §3.3.3), so no bit flip falls inside a window.
-func caCorrelations(t testing.TB, x []complex64, fs, centerHz float64, sat Satellite) (p2 []float64, n int) {
+func caCorrelations(t testing.TB, x []complex64, fs, centerHz float64, sat Satellite) (p []complex128, n int) {
 	t.Helper()
 	code, err := gpsca.Code(sat.PRN)
 	if err != nil {
@@ -48,9 +48,9 @@ func caCorrelations(t testing.TB, x []complex64, fs, centerHz float64, sat Satel
 			acc += complex128(x[i]) * complex(float64(code[c]), 0) * ph
 			ph *= rot
 		}
-		p2 = append(p2, real(acc)*real(acc)+imag(acc)*imag(acc))
+		p = append(p, acc)
 	}
-	return p2, n
+	return p, n
 }
 
 // caEstimate estimates the carrier amplitude A² and the noise variance σ²
@@ -65,7 +65,11 @@ func caCorrelations(t testing.TB, x []complex64, fs, centerHz float64, sat Satel
 // and the per-sample form of REFERENCES §3, C/N0 = A²/(σ²·T_s) = A²·fs/σ².
 func caEstimate(t testing.TB, x []complex64, fs, centerHz float64, sat Satellite) (a2, sigma2, cn0 float64, windows int, perWindow int) {
 	t.Helper()
-	p2, n := caCorrelations(t, x, fs, centerHz, sat)
+	p, n := caCorrelations(t, x, fs, centerHz, sat)
+	p2 := make([]float64, len(p))
+	for k, v := range p {
+		p2[k] = real(v)*real(v) + imag(v)*imag(v)
+	}
 	m, _ := meanStd(p2)
 	pd := meanPower(x)
 	nf := float64(n)
@@ -130,6 +134,22 @@ func TestSatelliteCN0(t *testing.T) {
 				cn0, tc.cn0, sd, a2, sigma2, k, n)
 			if d := cn0 - tc.cn0; math.Abs(d) > tc.tolDB {
 				t.Errorf("measured C/N0 %.3f dB-Hz, truth %g: off by %.3f dB > %.2f dB", cn0, tc.cn0, d, tc.tolDB)
+			}
+			// Carrier coherence across the whole second: squaring P_k
+			// removes the ±1 data bits (BPSK), leaving A²N²·e^{2jθ} with
+			// one θ for every window if the carrier frequency is exactly
+			// L1 − fc + f_D. R = |Σ P_k²|/Σ|P_k|² ≈ λ/(λ+1) (0.97 at
+			// 45 dB-Hz); a carrier 1.3 Hz off turns 2θ through 2.6 cycles
+			// and R falls to ~0.1.
+			p, _ := caCorrelations(t, x, tr.SampleRate, tr.CenterHz, tr.Satellites[0])
+			var num complex128
+			var den float64
+			for _, v := range p {
+				num += v * v
+				den += real(v)*real(v) + imag(v)*imag(v)
+			}
+			if r := cmplx.Abs(num) / den; r < 0.9 {
+				t.Errorf("carrier coherence over %d ms %.3f, want ≥ 0.9 (a carrier off frequency, or data not ±1)", len(p), r)
 			}
 			// σ² = 10^(NoiseDBFS/10): the package's level definition.
 			if want := undb(tr.NoiseDBFS); math.Abs(sigma2/want-1) > 0.01 {

@@ -44,7 +44,7 @@ func newGaussian(rng *rand.Rand, sigma2 float64, on span) *gaussian {
 func (g *gaussian) add(dst []complex64, n0 int64) {
 	d, _ := g.on.clip(dst, n0)
 	for i := range d {
-		d[i] += complex(float32(g.rng.NormFloat64()*g.sd*1.01), float32(g.rng.NormFloat64()*g.sd*0.99))
+		d[i] += complex(float32(g.rng.NormFloat64()*g.sd), float32(g.rng.NormFloat64()*g.sd))
 	}
 }
 
