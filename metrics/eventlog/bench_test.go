@@ -1,6 +1,8 @@
 package eventlog
 
 import (
+	"encoding/json"
+	"os"
 	"testing"
 )
 
@@ -67,6 +69,29 @@ func BenchmarkVerify(b *testing.B) {
 			b.Fatal(sum, err)
 		}
 		n += int(sum.Records)
+	}
+	b.ReportMetric(float64(n)/b.Elapsed().Seconds(), "records/s")
+}
+
+// BenchmarkWriteSync is the floor for BenchmarkAppend: a bare write of a
+// line of the same size to an O_APPEND file, then fsync, without the log.
+func BenchmarkWriteSync(b *testing.B) {
+	f, err := os.OpenFile(tempLog(b), os.O_RDWR|os.O_APPEND|os.O_CREATE, 0o640)
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer f.Close()
+	line, _ := json.Marshal(benchEvent)
+	line = append(line, '\n')
+	n := 0
+	for b.Loop() {
+		if _, err := f.Write(line); err != nil {
+			b.Fatal(err)
+		}
+		if err := f.Sync(); err != nil {
+			b.Fatal(err)
+		}
+		n++
 	}
 	b.ReportMetric(float64(n)/b.Elapsed().Seconds(), "records/s")
 }

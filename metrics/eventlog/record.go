@@ -35,9 +35,12 @@ type Record struct {
 	Prev string // "prev" header member: hex SHA-256 of the previous line
 	// Line holds the exact bytes of the line without its newline; the
 	// SHA-256 of Line is the next record's Prev.
-	Line   []byte
-	File   string // file the line is in
-	LineNo int    // 1-based line number within File
+	Line []byte
+	// File is the file the line is in. For records returned by Append it
+	// is the active file at the time of writing, which a later rotation
+	// renames (to SegmentName(path, first seq of the file)).
+	File   string
+	LineNo int // 1-based line number within File
 }
 
 // Decode unmarshals the whole line, header members included, into v with

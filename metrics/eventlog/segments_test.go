@@ -2,6 +2,7 @@ package eventlog
 
 import (
 	"bytes"
+	"errors"
 	"fmt"
 	"io"
 	"os"
@@ -297,5 +298,68 @@ func TestOpenRefusesBadSegment(t *testing.T) {
 				t.Errorf("Open: %v, want an error containing %q", err, tt.want)
 			}
 		})
+	}
+}
+
+// TestRotationFailure: a rotation that cannot rename (the segment name is
+// taken) fails the log; once the obstacle is gone, Reopen resumes it and
+// the next append rotates as it should have.
+func TestRotationFailure(t *testing.T) {
+	path := tempLog(t)
+	l := openLog(t, path, Options{MaxBytes: 300})
+	fill(t, l, 2)
+	blocker := SegmentName(path, 1)
+	writeFile(t, blocker, []byte("not a segment\n"))
+	var err error
+	for i := 0; err == nil && i < 10; i++ {
+		_, err = l.Append(KindEvent, testEvent{ID: fmt.Sprint("r", i)})
+	}
+	if !errors.Is(err, ErrFailed) || !strings.Contains(err.Error(), "already exists") {
+		t.Fatalf("append needing rotation: %v, want ErrFailed (segment exists)", err)
+	}
+	if _, err := l.Append(KindEvent, testEvent{}); !errors.Is(err, ErrFailed) {
+		t.Fatalf("append in failed state: %v", err)
+	}
+	os.Remove(blocker)
+	if err := l.Reopen(); err != nil {
+		t.Fatal(err)
+	}
+	before := l.LastSeq()
+	r, err := l.Append(KindEvent, testEvent{ID: "after"})
+	if err != nil || r.Seq != before+1 || r.LineNo != 1 {
+		t.Fatalf("append after Reopen: %+v, %v", r, err)
+	}
+	segs := segments(t, path)
+	if len(segs) != 2 || segs[0] != blocker {
+		t.Errorf("segments %q", segs)
+	}
+	if sum, err := Verify(segs...); err != nil || sum.Records != before+1 || sum.Head != sha(r.Line) {
+		t.Errorf("Verify: %+v, %v", sum, err)
+	}
+}
+
+// TestReopenFailure: Reopen of a file that was corrupted while open fails
+// and leaves the log failed; after repair, Reopen clears the failed state.
+func TestReopenFailure(t *testing.T) {
+	path := tempLog(t)
+	l := openLog(t, path, Options{})
+	fill(t, l, 5)
+	good := readFile(t, path)
+	ls := splitLines(good)
+	ls[1] = []byte("scribble")
+	writeFile(t, path, joinLines(ls))
+	err := l.Reopen()
+	if err == nil || !strings.Contains(err.Error(), path+":2: not valid JSON") {
+		t.Fatalf("Reopen of a corrupt file: %v", err)
+	}
+	if _, err := l.Append(KindEvent, testEvent{}); !errors.Is(err, ErrFailed) {
+		t.Fatalf("append after failed Reopen: %v, want ErrFailed", err)
+	}
+	writeFile(t, path, good)
+	if err := l.Reopen(); err != nil {
+		t.Fatal(err)
+	}
+	if r, err := l.Append(KindEvent, testEvent{}); err != nil || r.Seq != 6 {
+		t.Fatalf("append after repair: %+v, %v", r, err)
 	}
 }
