@@ -192,19 +192,21 @@ type Acquirer struct {
 	gamma   float64
 	pfaCell float64
 
-	plan     transformer
-	prns     []prnState
-	grid     []complex64 // binned, L1-centred snapshot, nBlock·nGrid
-	spectra  []complex64 // per-Doppler spectra of all blocks, nBlock·nGrid
-	work     []complex64
-	row      []float64
-	msBuf    []int8 // one millisecond of code samples for the refinement
-	msBuf2   []int8
-	prompts  []complex128
-	nSamples int // input samples consumed: ⌈nBlock·nGrid·fs/fa⌉
+	plan       transformer
+	prns       []prnState
+	grid       []complex64 // binned, L1-centred snapshot, nBlock·nGrid
+	spectra    []complex64 // per-Doppler spectra of all blocks, nBlock·nGrid
+	work       []complex64
+	row        []float64
+	msBuf      []int8 // one millisecond of code samples for the refinement
+	modelChips []int8 // code samples of a detection model, nSamples
+	prompts    []complex128
+	nSamples   int // input samples consumed: ⌈nBlock·nGrid·fs/fa⌉
 
 	// rowHook, if set (by tests), sees every accumulated Doppler row S(f_D, ·).
 	rowHook func(prn, dop int, row []float64)
+	// keepCrossCorr (tests only) disables rejectCrossCorrelation.
+	keepCrossCorr bool
 }
 
 // NewAcquirer returns an Acquirer for complex-baseband snapshots sampled at
@@ -250,7 +252,7 @@ func NewAcquirer(cfg AcqConfig, fs, centerHz float64) (*Acquirer, error) {
 	a.work = make([]complex64, a.nGrid)
 	a.row = make([]float64, gridPerMs)
 	a.msBuf = make([]int8, int(math.Ceil(fs*1e-3))+1)
-	a.msBuf2 = make([]int8, len(a.msBuf))
+	a.modelChips = make([]int8, a.nSamples)
 	a.prompts = make([]complex128, a.nBlock*a.coh)
 
 	// Code replica binned exactly like the data: the cell value is the mean
@@ -340,12 +342,17 @@ func DetectionThreshold(k int, pfaCell float64) float64 {
 //     the PRN's replica r at every code lag.
 //  3. S(f_D, τ) = Σ_k |z_k(τ)|² over K blocks (non-coherent sum), with the
 //     lag of block k shifted by the code Doppler f_D/1540 chips/s.
-//  4. The noise power σ̂² per block and cell is the mean of S/K over the
-//     grid excluding the code lags within ±1.5 chips of the peak (in every
-//     Doppler bin). Under H0, S/σ̂² ≈ Gamma(K, 1); the PRN is detected if
-//     max S/σ̂² > γ, γ = DetectionThreshold(K, Pfa/N_cells) with N_cells =
-//     Doppler bins × 4096 code cells (REFERENCES §4: overall P_FA ≈
-//     N_cells · P_fa, a union bound, conservative for correlated cells).
+//  4. The noise power σ̂² per block and cell is estimated for each Doppler
+//     row as the mean of S/K over the row without the lags within ±1.5
+//     chips of the row's maximum (per row, because a narrowband interferer
+//     leaks into the correlation through the code's 1 kHz line spectrum,
+//     REFERENCES §1.3, with a power that depends on its offset from each
+//     Doppler bin). Under H0, S/σ̂² ≈ Gamma(K, 1); the PRN is
+//     detected if max S/σ̂² > γ, γ = DetectionThreshold(K, Pfa/N_cells)
+//     with N_cells = Doppler bins × 4096 code cells (REFERENCES §4: overall
+//     P_FA ≈ N_cells · P_fa, a union bound, conservative for correlated
+//     cells). Detections explained by a stronger satellite's
+//     cross-correlation are removed (see rejectCrossCorrelation).
 //  5. Refinement: the code phase by parabolic interpolation of S over the
 //     peak cell and its two neighbours; the Doppler from the mean phase
 //     rotation between consecutive 1 ms prompts at the peak,
@@ -374,16 +381,16 @@ func (a *Acquirer) Acquire(dst []Acquired, x []complex64) ([]Acquired, error) {
 			dst = append(dst, r)
 		}
 	}
-	dst = a.rejectCrossCorrelation(dst, x)
+	if !a.keepCrossCorr {
+		dst = a.rejectCrossCorrelation(dst)
+	}
 	slices.SortFunc(dst, func(u, v Acquired) int { return u.PRN - v.PRN })
 	return dst, nil
 }
 
-// Cross-correlation rejection parameters (see rejectCrossCorrelation).
-const (
-	xcStronger = 4   // the interfering detection's λ̂ is at least 4× (6 dB) larger
-	xcShare    = 0.1 // predicted cross-correlation share of the weak λ̂ that rejects it
-)
+// xcStronger: only detections with λ̂ at least 4× (6 dB) larger are
+// considered as cross-correlation sources (see rejectCrossCorrelation).
+const xcStronger = 4
 
 // rejectCrossCorrelation removes detections explained by the
 // cross-correlation of their code with a much stronger detected signal.
@@ -391,57 +398,98 @@ const (
 // The C/A Gold codes cross-correlate at −23.9 dB (65/1023) at equal
 // Doppler (Gold 1967; REFERENCES §1.3) and somewhat higher at Doppler
 // differences that are multiples of 1 kHz (Kaplan & Hegarty 2006, from
-// memory: about −21 dB), so a 50 dB-Hz satellite puts peaks of λ ≈ 0.5–1
-// per millisecond into other PRNs' grids, which with the noise can cross the
-// threshold. With λ̂ = PeakMetric/K − 1 the estimated per-block SNR of a
-// detection (E[S/σ²] = K(1 + λ)), a detection w is rejected when a detection
-// s with λ̂_s ≥ 4·λ̂_w predicts at w's Doppler and code phase a
-// cross-correlation λ̂_s·ρ ≥ 0.1·λ̂_w, where
-//
-//	ρ = |Σ_n c_w(n)·c_s(n)·e^{j2π(f_s − f_w)n/fs}|² / N²
-//
-// is the normalized cross-correlation power of the two replicas over the
-// first millisecond (N samples) at the detected code phases and Doppler
-// frequencies. For a genuine satellite ρ at its own cell is that of a random
-// lag, about 1/1023, so the test seldom removes one.
-func (a *Acquirer) rejectCrossCorrelation(det []Acquired, x []complex64) []Acquired {
+// memory: about −21 dB), so a satellite above about 50 dB-Hz puts peaks of
+// λ ≈ 1–2 per millisecond into other PRNs' grids, which with the noise can
+// cross the threshold. With λ̂ = PeakMetric/K − 1 the estimated per-block
+// SNR of a detection (E[S/σ²] = K(1 + λ)), each detection w is checked
+// against every detection s with λ̂_s ≥ 4·λ̂_w: a noise-free model of s
+// (its code at the detected code phase and code rate, its carrier at the
+// detected Doppler) is binned onto the grid and passed through the search
+// twice, giving P_w, the power it produces in w's detection cell (w's
+// Doppler bin, code lag and replica), and P_s, the power in its own cell.
+// The cross-correlation it predicts in w's cell is X = K·λ̂_s·P_w/P_s
+// (in units of σ², like the metric); w is rejected when it would not pass
+// the threshold without it, PeakMetric − X ≤ γ (signal, cross-correlation
+// and noise add in power on average). A genuine satellite's cell sees the
+// strong code at a random lag, about 1/1023 of its power, so the test
+// seldom removes one.
+func (a *Acquirer) rejectCrossCorrelation(det []Acquired) []Acquired {
 	if len(det) < 2 {
 		return det
 	}
 	k := float64(a.nBlock)
 	lam := func(d Acquired) float64 { return d.PeakMetric/k - 1 }
-	n := int(math.Round(1e-3 * a.fs))
-	bw, bs := a.msBuf[:n], a.msBuf2[:n]
-	out := det[:0]
-	for _, w := range det {
-		reject := false
+	var rejected uint64 // bit i: det[i] rejected (at most 37 PRNs)
+	for i, w := range det {
+		pw := &a.prns[slices.Index(a.cfg.PRNs, w.PRN)]
 		for _, s := range det {
 			if s.PRN == w.PRN || lam(s) < xcStronger*lam(w) {
 				continue
 			}
-			cw := &a.prns[slices.Index(a.cfg.PRNs, w.PRN)].code
-			cs := &a.prns[slices.Index(a.cfg.PRNs, s.PRN)].code
-			gpsca.Sample(bw, cw, a.fs, gpsca.CodeRate(w.DopplerHz), w.CodePhaseChips)
-			gpsca.Sample(bs, cs, a.fs, gpsca.CodeRate(s.DopplerHz), s.CodePhaseChips)
-			rot := newRotator((s.DopplerHz-w.DopplerHz)/a.fs, 0)
-			var acc complex128
-			for i := 0; i < n; {
-				rot.reset(float64(i))
-				for e := min(i+1024, n); i < e; i++ {
-					acc += complex128(rot.next()) * complex(float64(bw[i]*bs[i]), 0)
-				}
-			}
-			rho := (real(acc)*real(acc) + imag(acc)*imag(acc)) / float64(n*n)
-			if lam(s)*rho >= xcShare*lam(w) {
-				reject = true
+			ps := &a.prns[slices.Index(a.cfg.PRNs, s.PRN)]
+			a.modelGrid(ps, s)
+			own := a.cellPower(ps, ps.bestDop, ps.bestCell)
+			cross := a.cellPower(pw, pw.bestDop, pw.bestCell)
+			if own > 0 && w.PeakMetric-k*lam(s)*cross/own <= a.gamma {
+				rejected |= 1 << i
 				break
 			}
 		}
-		if !reject {
+	}
+	out := det[:0]
+	for i, w := range det {
+		if rejected&(1<<i) == 0 {
 			out = append(out, w)
 		}
 	}
 	return out
+}
+
+// modelGrid overwrites a.grid (the data grid is no longer needed once the
+// search is done) with the noise-free, unit-amplitude, L1-centred
+// model of detection d (code of p), binned like the data.
+func (a *Acquirer) modelGrid(p *prnState, d Acquired) {
+	clear(a.grid)
+	chips := a.modelChips
+	gpsca.Sample(chips, &p.code, a.fs, gpsca.CodeRate(d.DopplerHz), d.CodePhaseChips)
+	rot := newRotator(d.DopplerHz/a.fs, 0)
+	for n := 0; n < len(chips); {
+		rot.reset(float64(n))
+		for end := min(n+1024, len(chips)); n < end; n++ {
+			g := a.cellOf(n)
+			if g >= len(a.grid) {
+				return
+			}
+			a.grid[g] += rot.next() * complex(float32(chips[n]), 0)
+		}
+	}
+}
+
+// cellPower returns S(f_D, cell) of PRN p for Doppler bin dop computed over
+// the current a.grid, with the code-Doppler lag shift of correlate.
+func (a *Acquirer) cellPower(p *prnState, dop, cell int) float64 {
+	fd := a.dops[dop]
+	a.wipeAndTransform(fd)
+	var sum float64
+	for k := range a.nBlock {
+		spec := a.spectra[k*a.nGrid : (k+1)*a.nGrid]
+		w := a.work
+		for g, v := range spec {
+			w[g] = v * p.replica[g]
+		}
+		a.plan.Inverse(w, w)
+		v := w[(cell+a.lagShift(k, fd))&(gridPerMs-1)]
+		sum += float64(real(v)*real(v) + imag(v)*imag(v))
+	}
+	return sum
+}
+
+// lagShift returns the cell shift that undoes the code Doppler of block k
+// (see correlate): row[c] collects lag c + lagShift(k, fd).
+func (a *Acquirer) lagShift(k int, fd float64) int {
+	drift := float64(k*a.coh) * 1e-3 * fd / gpsca.CarrierToCodeRatio // chips
+	shift := int(math.Round(drift * float64(gridPerMs) / gpsca.CodeLength))
+	return ((-shift)%gridPerMs + gridPerMs) % gridPerMs
 }
 
 // bin mixes x to L1-centred baseband and integrates it onto the grid.
@@ -492,7 +540,6 @@ func (a *Acquirer) correlate(p *prnState, d int, fd float64) {
 	// Code Doppler: the received code runs fd/1540 chips/s fast, so in block
 	// k the correlation peak sits k·T·fd/1540 chips earlier in lag; shift it
 	// back by the nearest whole cell.
-	cellsPerChip := float64(gridPerMs) / gpsca.CodeLength
 	for k := range a.nBlock {
 		spec := a.spectra[k*a.nGrid : (k+1)*a.nGrid]
 		w := a.work
@@ -501,9 +548,7 @@ func (a *Acquirer) correlate(p *prnState, d int, fd float64) {
 			w[g] = complex(real(v)*real(r)-imag(v)*imag(r), real(v)*imag(r)+imag(v)*real(r))
 		}
 		a.plan.Inverse(w, w)
-		drift := float64(k*a.coh) * 1e-3 * fd / gpsca.CarrierToCodeRatio // chips
-		shift := int(math.Round(drift * cellsPerChip))
-		shift = ((-shift)%gridPerMs + gridPerMs) % gridPerMs
+		shift := a.lagShift(k, fd)
 		// Lags τ and τ + 4096 are identical for a coherent block of several
 		// code periods, so only one period of lags is used:
 		// row[c] += |w[(c + shift) mod 4096]|².

@@ -132,3 +132,28 @@ func TestMomentCN0Exact(t *testing.T) {
 		t.Error("empty estimator valid")
 	}
 }
+
+// TestMomentCN0NoiseFloor checks the H0 spread documented on
+// Tracker.Result: without signal, 2U − M4 has mean 0 and standard deviation
+// 2N²/√K (computed, delta method with the exponential moments
+// E|n|^{2m} = m!·N^m), checked by Monte Carlo (2000 runs of K = 190).
+func TestMomentCN0NoiseFloor(t *testing.T) {
+	rng := rand.New(rand.NewPCG(34, 1))
+	const runs, k = 2000, 190
+	var s, s2 float64
+	for range runs {
+		var est MomentCN0
+		prompts(rng, -200, k, &est)
+		kk := float64(est.n)
+		m2, m4 := est.s2/kk, est.s4/kk
+		h := 2*(kk*m2*m2-m4)/(kk-1) - m4 // noise power N = 1
+		s += h
+		s2 += h * h
+	}
+	mean := s / runs
+	std := math.Sqrt(s2/runs - mean*mean)
+	want := 2 / math.Sqrt(k)
+	if math.Abs(mean) > 4*want/math.Sqrt(runs) || math.Abs(std/want-1) > 0.08 {
+		t.Errorf("H0: mean %.4f, std %.4f, want 0 and %.4f", mean, std, want)
+	}
+}

@@ -63,22 +63,28 @@ func addSat(rng *rand.Rand, x []complex64, fs, centerHz, sigma2 float64, st satS
 	}
 	w := 2 * math.Pi * fc / fs
 	step := complex(math.Cos(w), math.Sin(w))
-	var ph complex128
-	for n := range x {
-		if n%1024 == 0 {
-			sn, cs := math.Sincos(math.Mod(w*float64(n)+st.carrier, 2*math.Pi))
-			ph = complex(cs, sn)
+	chips := make([]float32, 1024)
+	for n0 := 0; n0 < len(x); n0 += len(chips) {
+		blk := x[n0:min(n0+len(chips), len(x))]
+		ch := chips[:len(blk)]
+		// Code phase of sample n: codePhase + n·rate/fs (chips).
+		gpsca.SampleFloat32(ch, &code, fs, rate, st.codePhase+float64(n0)*rate/fs)
+		sn, cs := math.Sincos(math.Mod(w*float64(n0)+st.carrier, 2*math.Pi))
+		ph := complex(cs, sn)
+		// Data bit of sample n: ⌊(bitChips + n·rate/fs)/(20·1023)⌋.
+		bitOf := func(n int) float64 {
+			return bits[int(math.Floor((st.bitChips+float64(n)*rate/fs)/bitChips))]
 		}
-		u := st.codePhase + float64(n)*rate/fs // chips since the reference epoch
-		chip := int(math.Floor(u))
-		chip %= gpsca.CodeLength
-		if chip < 0 {
-			chip += gpsca.CodeLength
+		b0, b1 := bitOf(n0), bitOf(n0+len(blk)-1)
+		for i := range blk {
+			b := b0
+			if b0 != b1 {
+				b = bitOf(n0 + i)
+			}
+			v := complex(amp*b*float64(ch[i]), 0) * ph
+			blk[i] += complex64(v)
+			ph *= step
 		}
-		b := bits[int(math.Floor((u-st.codePhase+st.bitChips)/bitChips))]
-		v := complex(amp*b*float64(code[chip]), 0) * ph
-		x[n] += complex64(v)
-		ph *= step
 	}
 }
 

@@ -38,13 +38,16 @@ func perturbed(rng *rand.Rand, s satSpec) Acquired {
 // REFERENCES §3 model), at 4 and 10 MS/s. Requirement: RMS error ≤ 1 dB over
 // all levels and |bias| ≤ 0.5 dB at each level from 35 to 50 dB-Hz. Expected
 // spread (REFERENCES §3 Monte Carlo, computed): moment method std 0.2–0.3 dB
-// with 1000 prompts, so about 0.4–0.7 dB with the ~190 prompts used here.
+// with 1000 prompts, so about 0.45–0.7 dB with the ~190 prompts used here
+// (observed: about 0.85 dB at 35 dB-Hz, 0.45 dB at 38 dB-Hz and above).
 // One satellite per capture because other C/A signals raise the effective
 // N0 (spectral separation coefficient −61.9 dB/Hz, REFERENCES §7): a 50 dB-Hz
 // companion would lower a weak satellite's true C/N0 by about 0.3 dB.
 func TestTrackCN0Accuracy(t *testing.T) {
-	levels := []float64{35, 38, 41, 44, 47, 50}
-	trials := 5
+	levels := []float64{35, 38, 42, 46, 50}
+	// Ten trials per level: the standard error of each bias is then about
+	// 0.2 dB at 35 dB-Hz, well inside the 0.5 dB bound.
+	trials := 10
 	for _, fs := range []float64{4e6, 10e6} {
 		t.Run(fmt.Sprintf("%gMSps", fs/1e6), func(t *testing.T) {
 			rng := rand.New(rand.NewPCG(61, uint64(fs)))
@@ -63,7 +66,13 @@ func TestTrackCN0Accuracy(t *testing.T) {
 					bias += e / float64(trials)
 					sq += e * e
 					n++
-					if d := r[0].DopplerHz - s.dopplerHz; math.Abs(d) > 8 {
+					// Doppler: FLL output averaged over the estimation interval;
+					// about 6 Hz standard deviation at 35 dB-Hz, 1 Hz at 38 (computed).
+					dopTol := 10.0
+					if cn0 < 38 {
+						dopTol = 30
+					}
+					if d := r[0].DopplerHz - s.dopplerHz; math.Abs(d) > dopTol {
 						t.Errorf("%g dB-Hz: Doppler error %.2f Hz", cn0, d)
 					}
 					if d := chipErr(r[0].CodePhaseChips, s.codePhase); math.Abs(d) > 0.08 {
@@ -155,8 +164,10 @@ func analyze(t testing.TB, c capture) ([]Acquired, []Satellite) {
 // IS-GPS-200 minimum received L1 C/A power (REFERENCES §8), and N0 = kT + NF
 // = −204 dBW/Hz + 2 dB = −202 dBW/Hz, so C/N0 = 43.5 dB-Hz (REFERENCES §7
 // worked example). Samples are in √W: A² = C and σ² = N0·fs. Four
-// satellites, acquired and tracked end to end over 0.25 s; each must read
-// 43.5 ± 1 dB-Hz.
+// satellites, acquired and tracked end to end over 1 s (moment-method
+// spread about 0.25 dB); each must read 43.5 ± 1 dB-Hz. The three
+// companions lower each one's effective C/N0 by about 0.13 dB (SSC
+// −61.9 dB/Hz, REFERENCES §7), well inside the tolerance.
 func TestLinkBudget(t *testing.T) {
 	// kT at 290 K = −203.98 dBW/Hz (REFERENCES §8, k = 1.380649e-23 J/K).
 	if kt := 10 * math.Log10(1.380649e-23*290); math.Abs(kt-(-204)) > 0.05 {
@@ -178,7 +189,7 @@ func TestLinkBudget(t *testing.T) {
 		s.powerW = cw
 		sats = append(sats, s)
 	}
-	c := synthesize(rng, fs, gpsca.L1, n0*fs, int(0.25*fs), sats)
+	c := synthesize(rng, fs, gpsca.L1, n0*fs, int(fs), sats)
 	acq, res := analyze(t, c)
 	if len(acq) != 4 || len(res) != 4 {
 		t.Fatalf("acquired %v, tracked %v", acq, res)
@@ -191,9 +202,11 @@ func TestLinkBudget(t *testing.T) {
 	}
 }
 
-// TestCentreOffset: a capture centred 1.5 MHz below L1 (L1 at +1.5 MHz in
-// the baseband) at 10 MS/s is acquired and tracked; the same centre at
-// 4 MS/s is skipped with ErrL1NotInBand (TestBandCheck).
+// TestCentreOffset: a 0.5 s capture centred 1.5 MHz below L1 (L1 at
+// +1.5 MHz in the baseband) at 10 MS/s is acquired and tracked: C/N0 within
+// 1 dB (spread about 0.35 dB over 0.5 s), Doppler within 10 Hz, code phase
+// within 0.08 chip. The same centre at 4 MS/s is skipped with
+// ErrL1NotInBand (TestBandCheck).
 func TestCentreOffset(t *testing.T) {
 	const fs = 10e6
 	center := gpsca.L1 - 1.5e6
@@ -202,16 +215,38 @@ func TestCentreOffset(t *testing.T) {
 	for _, prn := range []int{2, 15, 21} {
 		sats = append(sats, randomSat(rng, prn, 45, 5000))
 	}
-	c := synthesize(rng, fs, center, 1, int(0.2*fs), sats)
+	c := synthesize(rng, fs, center, 1, int(0.5*fs), sats)
 	acq, res := analyze(t, c)
 	if len(acq) != 3 || len(res) != 3 {
 		t.Fatalf("acquired %v, tracked %v", acq, res)
 	}
 	for i, r := range res {
 		s := sats[i]
-		if r.PRN != s.prn || math.Abs(r.CN0dBHz-45) > 1 || math.Abs(r.DopplerHz-s.dopplerHz) > 8 ||
+		if r.PRN != s.prn || math.Abs(r.CN0dBHz-45) > 1 || math.Abs(r.DopplerHz-s.dopplerHz) > 10 ||
 			math.Abs(chipErr(r.CodePhaseChips, s.codePhase)) > 0.08 || r.System != "GPS" {
 			t.Errorf("%+v, true %+v", r, s)
+		}
+	}
+}
+
+// TestTrackNoiseOnly: channels started on pure noise (a false acquisition)
+// must stay below the H0 floor documented on Tracker.Result, 33 dB-Hz at
+// the 1e-3 level for 0.25 s (computed, delta method; the spread is checked
+// by TestMomentCN0NoiseFloor). Under H0 the moment estimate is also often
+// invalid (REFERENCES §3.2: 2·M2² − M4 can go negative at low C/N0).
+func TestTrackNoiseOnly(t *testing.T) {
+	const fs = 4e6
+	rng := rand.New(rand.NewPCG(65, 1))
+	c := synthesize(rng, fs, gpsca.L1, 1, int(0.25*fs), nil)
+	var acq []Acquired
+	for prn := 1; prn <= 16; prn++ {
+		acq = append(acq, Acquired{PRN: prn, DopplerHz: 600*float64(prn) - 5000, CodePhaseChips: 60 * float64(prn)})
+	}
+	res := track(t, fs, gpsca.L1, acq, c.x, 65536)
+	t.Logf("%d of %d channels report a value: %v", len(res), len(acq), res)
+	for _, r := range res {
+		if r.CN0dBHz > 33 {
+			t.Errorf("noise only: PRN %d reads %.1f dB-Hz", r.PRN, r.CN0dBHz)
 		}
 	}
 }
