@@ -57,10 +57,15 @@ type trackedEvent struct {
 	priSum     float64
 	pairSum    float64
 	pairHits   int
+	groups     []float64 // pulse (pair) arrival times, capture samples
 	riseSum    float64
 	bandBins   [][2]int
 	frameLevel float64 // mean per-frame excess while present
 }
+
+// maxEventGroups bounds the pulse arrival times an event keeps for its PRI
+// fit (memory stays bounded on long captures).
+const maxEventGroups = 1 << 14
 
 func newTracker(cfg Config, fs float64, blockLen int) *tracker {
 	return &tracker{cfg: cfg, fs: fs, blockLen: blockLen}
@@ -91,21 +96,41 @@ func (t *tracker) block(in *BlockInput, fs []Finding) {
 	bin := f.Fs / float64(f.N)
 	claimed := func(x Finding) bool {
 		for _, c := range claims {
-			if c.Class != x.Class && overlaps(x.LowHz, x.HighHz, c.LowHz-2*bin, c.HighHz+2*bin) {
+			// A sweep's spectrum has skirts beyond its edges.
+			margin := 2 * bin
+			if c.Class == ClassSwept {
+				margin = math.Max(margin, 0.05*(c.HighHz-c.LowHz))
+			}
+			if c.Class != x.Class && overlaps(x.LowHz, x.HighHz, c.LowHz-margin, c.HighHz+margin) {
 				return true
 			}
 		}
 		return false
+	}
+	sweeping := len(swept) > 0
+	for _, o := range t.open {
+		if o.class == ClassSwept && o.missed == 0 {
+			sweeping = true
+		}
 	}
 	var classed []Finding
 	for _, x := range fs {
 		if x.Class == "" || (x.Class == ClassCW && isComb(x.Tones)) {
 			continue
 		}
-		if (x.Class == ClassNarrowbandNoise || x.Class == ClassCW && isComb(x.Tones)) && claimed(x) {
+		if x.Class == ClassNarrowbandNoise && claimed(x) {
 			continue
 		}
-		if (x.Class == ClassCW || x.Class == ClassWidebandNoise) && len(swept) > 0 && claimed(x) {
+		// While a sweep is on (in this block or the last), the tones and
+		// the floor rise inside its band are its own: partial blocks at its
+		// start and end show its lines and leakage without the sweep
+		// itself being measurable. A real CW inside an active sweep's band
+		// is not reported separately until the sweep stops.
+		if (x.Class == ClassCW || x.Class == ClassWidebandNoise) && sweeping && claimed(x) {
+			continue
+		}
+		// A periodic pulse train has a line spectrum too.
+		if x.Class == ClassCW && claimedBy(claims, x, ClassPulsed, bin) {
 			continue
 		}
 		classed = append(classed, x)
@@ -123,7 +148,7 @@ func (t *tracker) block(in *BlockInput, fs []Finding) {
 			ev = &trackedEvent{class: x.Class, lo: x.LowHz, hi: x.HighHz, detectors: map[string]bool{},
 				firstBlock: t.blockNo, start: f.Start, excess: make([]float64, f.N)}
 			ev.setBand(f, x)
-			ev.frameLevel = x.JN * in.NoisePower
+			ev.frameLevel = x.JN * in.NoisePower / in.Rise
 			ev.start = t.refineStart(in, ev)
 			t.open = append(t.open, ev)
 			t.events = append(t.events, ev)
@@ -131,6 +156,13 @@ func (t *tracker) block(in *BlockInput, fs []Finding) {
 		matched[ev] = true
 		ev.absorb(in, x, fs)
 		ev.missed = 0
+		if ev.firstBlock == t.blockNo-1 && ev.hits == 2 && ev.class != ClassPulsed {
+			// The event opened in the previous block, which the
+			// interference may have filled too little to measure it well:
+			// with the band and level now known, find its start again
+			// among that block's frames.
+			ev.start = t.startInPrevious(in, ev)
+		}
 	}
 	for _, o := range t.open {
 		if !matched[o] {
@@ -156,11 +188,35 @@ func (t *tracker) block(in *BlockInput, fs []Finding) {
 	t.blockNo++
 }
 
-// finish marks the events still active in the last block.
+// finish marks the events still active in the last block and drops the
+// events a sweep explains: tones, floor rises and noise bands inside a
+// sweep's band that began with it (in the block where the sweep started
+// but filled too little of the block to be measured) or during it.
 func (t *tracker) finish() {
 	for _, o := range t.open {
 		o.openAtEnd = o.missed == 0
 	}
+	kept := t.events[:0]
+	for _, e := range t.events {
+		explained := false
+		if e.class == ClassCW || e.class == ClassWidebandNoise || e.class == ClassNarrowbandNoise {
+			for _, s := range t.events {
+				if s.class != ClassSwept && (s.class != ClassPulsed || e.class == ClassWidebandNoise) {
+					continue
+				}
+				margin := 0.05 * (s.hi - s.lo)
+				if overlaps(e.lo, e.hi, s.lo-margin, s.hi+margin) &&
+					e.start >= s.start-int64(t.blockLen) && e.start <= s.end {
+					explained = true
+					break
+				}
+			}
+		}
+		if !explained {
+			kept = append(kept, e)
+		}
+	}
+	t.events = kept
 	sort.SliceStable(t.events, func(i, j int) bool {
 		if t.events[i].start != t.events[j].start {
 			return t.events[i].start < t.events[j].start
@@ -181,12 +237,13 @@ func (e *trackedEvent) setBand(f *Features, x Finding) {
 	e.bandBins = append(e.bandBins, [2]int{f.Bin(x.LowHz), f.Bin(x.HighHz)})
 }
 
-// frameExcess is the excess power of frame i of a block in the event band.
-func (e *trackedEvent) frameExcess(frame []float32, floor []float64) float64 {
+// frameExcess is the excess power of a frame in the event band over the
+// thermal floor (the block's floor without any wideband rise).
+func (e *trackedEvent) frameExcess(frame []float32, in *BlockInput) float64 {
 	var s float64
 	for _, b := range e.bandBins {
 		for k := b[0]; k <= b[1]; k++ {
-			s += float64(frame[k]) - floor[k]
+			s += float64(frame[k]) - in.Floor[k]/in.Rise
 		}
 	}
 	return s
@@ -205,7 +262,7 @@ func (t *tracker) refineStart(in *BlockInput, e *trackedEvent) int64 {
 	}
 	first := -1
 	for i := 0; i < f.Frames; i++ {
-		if e.frameExcess(f.Frame(i), in.Floor) > lvl {
+		if e.frameExcess(f.Frame(i), in) > lvl {
 			first = i
 			break
 		}
@@ -218,7 +275,7 @@ func (t *tracker) refineStart(in *BlockInput, e *trackedEvent) int64 {
 		n := pf.N
 		back := 0
 		for i := pf.Frames - 1; i >= 0; i-- {
-			if e.frameExcess(t.prev[i*n:(i+1)*n], in.Floor) > lvl {
+			if e.frameExcess(t.prev[i*n:(i+1)*n], in) > lvl {
 				back++
 			} else {
 				break
@@ -227,6 +284,27 @@ func (t *tracker) refineStart(in *BlockInput, e *trackedEvent) int64 {
 		return f.Start - int64(back*n)
 	}
 	return f.Start + int64(first*f.N)
+}
+
+// startInPrevious is the start of the run of active frames that ends the
+// previous block (this block's start if there is none).
+func (t *tracker) startInPrevious(in *BlockInput, e *trackedEvent) int64 {
+	pf := &t.prevF
+	n := pf.N
+	lvl := e.frameLevel / 2
+	back := 0
+	for i := pf.Frames - 1; i >= 0 && lvl > 0; i-- {
+		if e.frameExcess(t.prev[i*n:(i+1)*n], in) <= lvl {
+			break
+		}
+		back++
+	}
+	if back == pf.Frames {
+		// Active all through: the start found when the event opened,
+		// possibly earlier still, stands.
+		return min(e.start, in.F.Start-int64(back*n))
+	}
+	return in.F.Start - int64(back*n)
 }
 
 // activeEnd is the end of the last active frame of the event in a block.
@@ -238,7 +316,7 @@ func (t *tracker) activeEnd(in *BlockInput, e *trackedEvent) int64 {
 		return 0
 	}
 	for i := 0; i < f.Frames; i++ {
-		if e.frameExcess(f.Frame(i), in.Floor) > lvl {
+		if e.frameExcess(f.Frame(i), in) > lvl {
 			end = f.Start + int64((i+1)*f.N)
 		}
 	}
@@ -258,7 +336,9 @@ func (e *trackedEvent) absorb(in *BlockInput, x Finding, all []Finding) {
 			e.detectors[s.Detector] = true
 		}
 	}
-	e.lo, e.hi = math.Min(e.lo, x.LowHz), math.Max(e.hi, x.HighHz)
+	if x.Class != ClassSwept {
+		e.lo, e.hi = math.Min(e.lo, x.LowHz), math.Max(e.hi, x.HighHz)
+	}
 	e.jnSum += x.JN
 	e.jnPeak = math.Max(e.jnPeak, x.JN)
 	for k := range e.excess {
@@ -274,7 +354,7 @@ func (e *trackedEvent) absorb(in *BlockInput, x Finding, all []Finding) {
 		}
 		e.end = x.End
 	default:
-		e.frameLevel += (x.JN*in.NoisePower - e.frameLevel) / float64(e.hits)
+		e.frameLevel += (x.JN*in.NoisePower/in.Rise - e.frameLevel) / float64(e.hits)
 		if end := (&tracker{}).activeEnd(in, e); end > 0 {
 			e.end = end
 		} else {
@@ -286,21 +366,35 @@ func (e *trackedEvent) absorb(in *BlockInput, x Finding, all []Finding) {
 		e.tones = mergeTones(e.tones, x.Tones, f.Fs/float64(f.N)*3)
 		e.setBand(f, Finding{Class: ClassCW, Tones: e.tones})
 	case ClassSwept:
+		// The most coherent fold measures the sweep best (a block the
+		// sweep only partly fills folds poorly); its band is the event's.
 		if e.sweep == nil || x.Sweep.Coherent > e.sweep.Coherent {
 			s := *x.Sweep
 			e.sweep = &s
+			e.lo, e.hi = s.LowHz, s.HighHz
+			e.setBand(f, Finding{LowHz: s.LowHz, HighHz: s.HighHz})
 		}
+	case ClassNarrowbandNoise, ClassPulsed, ClassWidebandNoise:
+		e.setBand(f, Finding{LowHz: e.lo, HighHz: e.hi})
+	}
+	switch x.Class {
 	case ClassPulsed:
 		p := x.Pulse
 		e.pulseHits++
 		e.pulse.Pulses += p.Pulses
 		e.widthSum += p.WidthS
 		e.priSum += p.PRIS
+		for _, g := range p.Groups {
+			if len(e.groups) < maxEventGroups {
+				e.groups = append(e.groups, float64(g))
+			}
+		}
 		if p.PairSpacingS > 0 {
 			e.pairSum += p.PairSpacingS
 			e.pairHits++
 		}
-	case ClassWidebandNoise:
+	}
+	if x.Class == ClassWidebandNoise {
 		e.riseSum += x.FloorRiseDB
 	}
 }
@@ -363,7 +457,11 @@ func (e *trackedEvent) toEvent(c *ingest.Capture, name string, cfg Config, fs, c
 		h := float64(max(e.pulseHits, 1))
 		w := e.widthSum / h
 		ev.Params.PulseWidthS = ptr(w)
-		ev.Params.PRIS = ptr(e.priSum / h)
+		prival := e.priSum / h
+		if len(e.groups) >= 2 {
+			prival = pri(e.groups) / fs
+		}
+		ev.Params.PRIS = ptr(prival)
 		ev.Params.Pulses = ptr(e.pulse.Pulses)
 		dur := float64(ev.SampleCount) / fs
 		duty := math.Min(1, float64(e.pulse.Pulses)*w/math.Max(dur, 1/fs))
@@ -425,4 +523,14 @@ func isComb(t []ToneParam) bool {
 		}
 	}
 	return regular >= len(gaps)*2/3
+}
+
+// claimedBy reports whether a finding of class by among claims overlaps x.
+func claimedBy(claims []Finding, x Finding, by string, bin float64) bool {
+	for _, c := range claims {
+		if c.Class == by && overlaps(x.LowHz, x.HighHz, c.LowHz-2*bin, c.HighHz+2*bin) {
+			return true
+		}
+	}
+	return false
 }

@@ -27,7 +27,8 @@ type Config struct {
 	// envelope threshold. Default 1e-9.
 	PulsePfa float64 `yaml:"pulse_pfa" json:"pulse_pfa"`
 	// MinPulses is how many pulses a block needs before a pulse train is
-	// reported. Default 4.
+	// reported. Default 2 (a 5 ms PRI leaves two or three pulses per block;
+	// the event gathers them across blocks).
 	MinPulses int `yaml:"min_pulses" json:"min_pulses"`
 	// HoldBlocks is the hysteresis: an event stays open through this many
 	// blocks without a finding before it closes. Default 2.
@@ -80,7 +81,7 @@ func (c Config) Defaults(fs float64) Config {
 		c.PulsePfa = 1e-9
 	}
 	if c.MinPulses == 0 {
-		c.MinPulses = 4
+		c.MinPulses = 2
 	}
 	if c.HoldBlocks == 0 {
 		c.HoldBlocks = 2

@@ -91,6 +91,10 @@ type PulseParams struct {
 	PairSpacingS float64
 	DutyCycle    float64
 	FirstS       float64 // first pulse start, seconds into the block
+	// Groups are the arrival times (capture samples) of the pulses, or of
+	// the first pulse of each pair, so that the event's PRI can be fitted
+	// over all its blocks.
+	Groups []int64
 }
 
 // prepare fills the references shared by all detectors. floor is the

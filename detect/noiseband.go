@@ -34,11 +34,15 @@ func (d NoiseBand) Detect(in *BlockInput, out []Finding) []Finding {
 			k++
 			continue
 		}
-		// Extend the run, bridging gaps of up to 2 bins.
-		j, last := k, k
-		for j < f.N && j-last <= 2 {
-			if above(j) {
-				last = j
+		// Extend the run, bridging gaps of up to 2 bins and excluded bins
+		// (the DC bin inside a band must not split it).
+		j, last, gap := k, k, 0
+		for j < f.N && gap <= 2 {
+			switch {
+			case above(j):
+				last, gap = j, 0
+			case !in.Excluded[j]:
+				gap++
 			}
 			j++
 		}

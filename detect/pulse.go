@@ -19,10 +19,10 @@ import (
 // (REFERENCES §9–10). Runs above the threshold are pulses.
 //
 // Measurement: the raw envelopes of the pulses, aligned on their power
-// centroids and averaged, give one clean pulse profile; its width is taken
-// at half amplitude (a quarter of the peak power above the noise), the
-// ICAO way of stating DME pulse duration (3.5 µs). Peak J/N is the
-// profile's peak power above the noise over the noise power. Pairs: when
+// centroids and averaged, give one pulse profile (see measureProfile); its
+// width is taken at half amplitude (a quarter of the peak power above the
+// noise), the ICAO way of stating DME pulse duration (3.5 µs). Peak J/N is
+// the profile's peak power above the noise over the noise power. Pairs: when
 // most gaps between consecutive pulses cluster at one short spacing (12,
 // 30 or 36 µs for DME), the pulses are grouped in pairs and that spacing
 // reported. PRI is the least-squares slope of group arrival time against
@@ -37,10 +37,15 @@ type Pulse struct {
 	starts   []int
 	ends     []int
 	prof     []float64
+	sm       []float64
 }
 
 // Name implements Detector.
 func (*Pulse) Name() string { return "pulse" }
+
+// maxGapLevel is the highest mean power between pulses, relative to the
+// reference, that still counts as a return to the floor (1.76 dB).
+const maxGapLevel = 1.5
 
 // maxPulseWidth is the longest pulse reported, in seconds.
 const maxPulseWidth = 200e-6
@@ -55,6 +60,14 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 	if len(x) == 0 || in.NoisePower <= 0 {
 		return out
 	}
+	// Cheap gate from the engine's pass: pulses make the envelope
+	// impulsive, raising the kurtosis ratio E|x|⁴/(E|x|²)² above the
+	// Gaussian 2 (by far more than six standard deviations, 2/√K each, for
+	// any train this detector can measure). Band-limited noise keeps it at
+	// 2 while its slow envelope would cross a per-sample threshold.
+	if f := in.F; f.Power <= 0 || f.Moment4/(f.Power*f.Power) < 2+12/math.Sqrt(float64(len(x))) {
+		return out
+	}
 	l := max(2, int(math.Round(1e-6*fs)))
 	if cap(d.env) < len(x) {
 		d.env = make([]float64, len(x))
@@ -66,6 +79,7 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 	ns := d.reference(env, l, in.NoisePower, in.Cfg.PulsePfa)
 	gamma := d.threshold(l, in.Cfg.PulsePfa)
 	thr := gamma * ns * float64(l) // on the running sum
+	thrLow := (1 + gamma) / 2 * ns * float64(l)
 	// Runs of the L-sample running sum above the threshold.
 	d.starts, d.ends = d.starts[:0], d.ends[:0]
 	var run float64
@@ -78,12 +92,13 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 		if i < l-1 {
 			continue
 		}
-		if run > thr {
-			if !inRun {
-				d.starts = append(d.starts, i-l+1)
-				inRun = true
-			}
-		} else if inRun {
+		// Hysteresis: a pulse starts above thr and ends below thrLow, half
+		// way down to the reference, so that noise on a long pulse's top
+		// does not split it.
+		if !inRun && run > thr {
+			d.starts = append(d.starts, i-l+1)
+			inRun = true
+		} else if inRun && run < thrLow {
 			d.ends = append(d.ends, i)
 			inRun = false
 		}
@@ -124,6 +139,21 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 	if float64(maxLen) > maxPulseWidth*fs {
 		return out
 	}
+	// Between pulses the envelope returns to the reference. Noise that
+	// switches on for part of the block (band-limited or wideband) crosses
+	// the threshold on its own fluctuations, and between those crossings
+	// it stays well above the reference.
+	var gapSum float64
+	var gapN int
+	for p := 0; p+1 < n; p++ {
+		for i := d.ends[p]; i < d.starts[p+1]; i++ {
+			gapSum += env[i]
+		}
+		gapN += d.starts[p+1] - d.ends[p]
+	}
+	if gapN > 0 && gapSum/float64(gapN) > maxGapLevel*ns {
+		return out
+	}
 	half := maxLen + 2*l
 	width := 2*half + 1
 	if cap(d.prof) < width {
@@ -145,13 +175,12 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 	if used == 0 {
 		return out
 	}
-	peak := 0.0
 	for j := range prof {
 		prof[j] = prof[j]/float64(used) - ns
-		peak = math.Max(peak, prof[j])
 	}
-	w := halfAmplitudeWidth(prof, peak) / fs
-	if w <= 0 {
+	peak, w := measureProfile(prof, max(1, int(math.Round(0.25e-6*fs))), &d.sm)
+	w /= fs
+	if w <= 0 || peak <= 0 {
 		return out
 	}
 	pp := &PulseParams{WidthS: w, Pulses: n}
@@ -161,6 +190,10 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 		groups = firstOfPairs(d.centers, sp)
 	}
 	pp.PRIS = pri(groups) / fs
+	pp.Groups = make([]int64, len(groups))
+	for i, g := range groups {
+		pp.Groups[i] = in.F.Start + int64(math.Round(g))
+	}
 	dur := float64(len(x)) / fs
 	pp.DutyCycle = float64(n) * w / dur
 	pp.FirstS = float64(d.starts[0]) / fs
@@ -227,31 +260,79 @@ func (d *Pulse) threshold(l int, pfa float64) float64 {
 	return v
 }
 
-// halfAmplitudeWidth is the width in samples of prof at a quarter of its
-// peak power (half amplitude), with linear interpolation at both edges.
-func halfAmplitudeWidth(prof []float64, peak float64) float64 {
+// measureProfile returns the peak power and the half-amplitude width (in
+// samples) of an averaged pulse profile (noise already subtracted). With
+// few pulses averaged the profile is noisy, so: it is smoothed over ls
+// samples (a quarter microsecond, which widens a pulse by at most ls/2);
+// the pulse's extent is where the smoothed profile first reaches half its
+// maximum, searching inwards from both ends (noise dips on a long pulse's
+// top do not cut it short); the peak is the raw profile's mean over the
+// middle half of that extent (the maximum of a noisy plateau would be
+// biased upwards; on a Gaussian pulse the mean is about 0.3 dB under the
+// peak); the width is where the smoothed profile crosses a quarter of the
+// peak power, again inwards from both ends, interpolated linearly.
+func measureProfile(prof []float64, ls int, scratch *[]float64) (peak, width float64) {
+	n := len(prof)
+	if cap(*scratch) < n {
+		*scratch = make([]float64, n)
+	}
+	sm := (*scratch)[:n]
+	var run float64
+	for i := 0; i < n+ls/2; i++ {
+		if i < n {
+			run += prof[i]
+		}
+		if i >= ls {
+			run -= prof[i-ls]
+		}
+		if j := i - ls/2; j >= 0 && j < n {
+			sm[j] = run / float64(ls)
+		}
+	}
+	smax := 0.0
+	for _, v := range sm {
+		smax = math.Max(smax, v)
+	}
+	if smax <= 0 {
+		return 0, 0
+	}
+	a, b := inward(sm, smax/2)
+	if a < 0 {
+		return 0, 0
+	}
+	q := (b - a) / 4
+	var sum float64
+	for i := a + q; i <= b-q; i++ {
+		sum += prof[i]
+	}
+	peak = sum / float64(b-q-(a+q)+1)
 	lvl := peak / 4
-	ip := 0
-	for i, v := range prof {
-		if v == peak {
-			ip = i
+	l, r := inward(sm, lvl)
+	if l <= 0 || r >= n-1 {
+		return peak, 0
+	}
+	left := float64(l) - (sm[l]-lvl)/(sm[l]-sm[l-1])
+	right := float64(r) + (sm[r]-lvl)/(sm[r]-sm[r+1])
+	return peak, right - left
+}
+
+// inward returns the first index from the left and from the right at which
+// v reaches lvl (−1, −1 if it never does).
+func inward(v []float64, lvl float64) (int, int) {
+	a, b := -1, -1
+	for i := range v {
+		if v[i] >= lvl {
+			a = i
 			break
 		}
 	}
-	l := ip
-	for l > 0 && prof[l-1] >= lvl {
-		l--
+	for i := len(v) - 1; i >= 0; i-- {
+		if v[i] >= lvl {
+			b = i
+			break
+		}
 	}
-	r := ip
-	for r < len(prof)-1 && prof[r+1] >= lvl {
-		r++
-	}
-	if l == 0 || r == len(prof)-1 {
-		return 0
-	}
-	left := float64(l) - (prof[l]-lvl)/(prof[l]-prof[l-1])
-	right := float64(r) + (prof[r]-lvl)/(prof[r]-prof[r+1])
-	return right - left
+	return a, b
 }
 
 // pairSpacing looks for a short gap shared by at least 40 % of the gaps

@@ -27,13 +27,16 @@ import (
 // comes out clean even at J/N = 0 dB. T is refined by maximizing the
 // folded coherence Σ_b |Z_b| over spans that double in length, each step
 // narrowing the search in proportion. The profile then gives the shape
-// (sign pattern of its slopes: up, down, triangle), the rate (least
-// squares line through the ramp, Hz/s) and the edges (the line at the ramp's
-// ends).
+// (the best-correlated template: sawtooth up, down, or triangle), the rate
+// (least squares line through the ramp, Hz/s) and the edges (span = rate ×
+// period for a sawtooth, half that for a triangle, centred on the ramp's
+// mean frequency).
 type Swept struct {
 	plan    *fft.Plan
 	buf     []complex64
 	lag     []float64
+	acc     []float64
+	win     []float32
 	weights []float64
 	z       []complex128
 	prof    []float64
@@ -68,8 +71,8 @@ func (d *Swept) Detect(in *BlockInput, out []Finding) []Finding {
 			nb++
 		}
 	}
-	if lo < 0 || hi-lo+1 < f.N/20 {
-		return out
+	if lo < 0 || nb < f.N/20 {
+		return out // a few tones, not a sweep
 	}
 	sw, ok := d.fold(in.Samples, f.Fs, period)
 	if !ok || sw.Coherent < minSweepCoherence {
@@ -84,58 +87,96 @@ func (d *Swept) Detect(in *BlockInput, out []Finding) []Finding {
 		OffsetHz: (sw.LowHz + sw.HighHz) / 2, JN: jn, Sweep: &sw})
 }
 
-// periodicity returns the period in seconds of the strongest
-// autocorrelation peak of the excess PSD in 1–100 µs, if it is marked.
+// periodicity returns the sweep period in seconds, from the
+// autocorrelation of the instantaneous phase step θ[n] = arg(x[n]·x*[n−1])
+// (2π f/fs; REFERENCES §10). θ follows the sweep's frequency, a sawtooth or
+// a triangle, so its autocorrelation (mean removed) is largest at multiples
+// of T and negative in between (−½ of the peak at T/2 for a sawtooth, −1
+// for a triangle) — and it does so even when the jammer's phase jumps at
+// its flybacks, which blurs x's own line spectrum. Noise makes θ white, a CW
+// makes it constant: neither has such peaks. The autocorrelation is
+// estimated frame by frame with the engine's FFT size (|FFT(w·θ)|²
+// averaged, inverse FFT — Wiener–Khinchin — divided by the window's lag
+// weight). It runs only when the block's kurtosis ratio E|x|⁴/(E|x|²)² is
+// below the Gaussian 2 by more than six standard deviations (2/√K for K
+// samples): a constant envelope is present.
 func (d *Swept) periodicity(in *BlockInput) (float64, bool) {
 	f := in.F
 	n := f.N
+	x := in.Samples
+	if f.Power <= 0 || f.Moment4/(f.Power*f.Power) > 2-12/math.Sqrt(float64(len(x))) {
+		return 0, false
+	}
 	if d.plan == nil || d.plan.Len() != n {
 		d.plan = fft.NewPlan(n)
 		d.buf = make([]complex64, n)
+		d.acc = make([]float64, n)
 		d.lag = make([]float64, n)
 		d.weights = hannLagWeights(n)
-	}
-	var r0 float64
-	for k := 0; k < n; k++ {
-		// Only bins that carry clear excess: the lines of the comb.
-		e := 0.0
-		if !in.Excluded[k] && in.Ratio[k] > in.BinThreshold {
-			e = in.excess(k)
+		d.win = make([]float32, n)
+		for i := range d.win {
+			v := math.Sin(math.Pi * float64(i) / float64(n))
+			d.win[i] = float32(v * v)
 		}
-		r0 += e
-		// Undo the centring: bin k holds FFT bin (k − N/2) mod N.
-		d.buf[(k+n/2)%n] = complex(float32(e), 0)
 	}
-	if r0 <= 0.25*in.NoisePower {
-		return 0, false // J/N below −6 dB: nothing to fold
+	clear(d.acc)
+	for i := 0; i < f.Frames; i++ {
+		base := i * n
+		var mean float64
+		for j := 0; j < n; j++ {
+			k := base + j
+			var th float64
+			if k > 0 {
+				z := complex128(x[k]) * cmplx.Conj(complex128(x[k-1]))
+				th = math.Atan2(imag(z), real(z))
+			}
+			d.buf[j] = complex(float32(th), 0)
+			mean += th
+		}
+		m := float32(mean / float64(n))
+		for j := range d.buf {
+			d.buf[j] = complex((real(d.buf[j])-m)*d.win[j], 0)
+		}
+		d.plan.Forward(d.buf, d.buf)
+		for j, v := range d.buf {
+			d.acc[j] += float64(real(v)*real(v) + imag(v)*imag(v))
+		}
+	}
+	for j, v := range d.acc {
+		d.buf[j] = complex(float32(v), 0)
 	}
 	d.plan.Inverse(d.buf, d.buf)
+	r0 := float64(real(d.buf[0]))
 	lo := max(2, int(math.Ceil(1e-6*f.Fs)))
 	hi := min(n/4, int(100e-6*f.Fs))
-	if hi <= lo+2 {
+	if hi <= lo+2 || r0 <= 0 {
 		return 0, false
 	}
-	best, at := 0.0, 0
+	best := 0.0
 	for t := lo; t <= hi; t++ {
-		v := cmplx.Abs(complex128(d.buf[t])) / d.weights[t]
+		v := float64(real(d.buf[t])) / d.weights[t]
 		d.lag[t] = v
-		if v > best {
-			best, at = v, t
-		}
+		best = math.Max(best, v)
 	}
-	med := medianOf(d.lag[lo : hi+1])
-	if best < 0.5*r0 || best < 4*med {
+	// The peak must stand clear of the estimate's own noise, about
+	// R(0)/√K for K samples.
+	if best < 6*r0/math.Sqrt(float64(f.Frames*n)) {
 		return 0, false
 	}
-	// Every multiple of the period peaks as high: take the first lag
-	// that comes within 80 % of the best.
+	// The first local maximum within 15 % of the best after a dip below
+	// −0.2 of it: the correlation of a periodic sweep falls negative
+	// between its peaks, a slowly decaying one does not.
+	at, dipped := 0, false
 	for t := lo + 1; t < hi; t++ {
-		if d.lag[t] >= 0.8*best && d.lag[t] >= d.lag[t-1] && d.lag[t] >= d.lag[t+1] {
+		if d.lag[t] < -0.2*best {
+			dipped = true
+		}
+		if dipped && d.lag[t] >= 0.85*best && d.lag[t] >= d.lag[t-1] && d.lag[t] >= d.lag[t+1] {
 			at = t
 			break
 		}
 	}
-	if at <= lo || at >= hi {
+	if at == 0 {
 		return 0, false
 	}
 	// Parabolic interpolation of the peak lag.
@@ -183,24 +224,36 @@ func (d *Swept) fold(x []complex64, fs, period float64) (SweepParams, bool) {
 		d.prof = make([]float64, bins)
 	}
 	z := d.z[:bins]
-	// Coarse-to-fine search of T: folding n samples blurs a period error
-	// δ by n·δ/T samples, so each doubling of the span halves the step.
-	span := min(len(x), 64*bins)
-	step := period / float64(span) * 2
+	// Coarse-to-fine search of T. Folding P periods with a period error δ
+	// shifts the last ones by P·δ; the lag product changes little over an
+	// eighth of a period, so a level folding P periods resolves δ ≈ T/(8P).
+	// Start from 8 periods and ±6 % (the autocorrelation's accuracy), then
+	// fold four times as many periods with a step four times finer.
+	span := min(len(x), 8*bins)
+	step := 0.01 * period
 	for {
-		best, bestT := -1.0, period
+		best, bestI := -1.0, 0
+		var cs [13]float64
 		for i := -6; i <= 6; i++ {
-			t := period + float64(i)*step
-			if c := coherence(z, x[:span], fs, t); c > best {
-				best, bestT = c, t
+			cs[i+6] = coherence(z, x[:span], fs, period+float64(i)*step)
+			if cs[i+6] > best {
+				best, bestI = cs[i+6], i
 			}
 		}
-		period = bestT
+		// Parabolic refinement between the grid points.
+		delta := 0.0
+		if bestI > -6 && bestI < 6 {
+			a, b, c := cs[bestI+5], cs[bestI+6], cs[bestI+7]
+			if den := a - 2*b + c; den < 0 {
+				delta = 0.5 * (a - c) / den
+			}
+		}
+		period += (float64(bestI) + delta) * step
 		if span == len(x) {
 			break
 		}
 		span = min(len(x), span*4)
-		step /= 3
+		step /= 4
 	}
 	coh := coherence(z, x, fs, period)
 	prof := d.prof[:bins]
@@ -240,61 +293,78 @@ func coherence(z []complex128, x []complex64, fs, t float64) float64 {
 }
 
 // sweepFromProfile reads shape, rate and edges from one period's
-// instantaneous-frequency profile.
+// instantaneous-frequency profile. The shape is the template (sawtooth ramp
+// or triangle) with the highest correlation coefficient over all circular
+// alignments, which stays reliable where the profile is too noisy for slope
+// signs; the sign of the ramp's correlation tells up from down. Rate and
+// edges come from a least-squares line through the aligned ramp (through
+// the rising half, for a triangle).
 func sweepFromProfile(prof []float64, period float64) (SweepParams, bool) {
 	n := len(prof)
-	// The flyback of a sawtooth is the largest jump between bins.
-	jump, at := 0.0, 0
-	pos := 0
-	for b := 0; b < n; b++ {
-		dlt := prof[(b+1)%n] - prof[b]
-		if math.Abs(dlt) > math.Abs(jump) {
-			jump, at = dlt, b
+	var mean float64
+	for _, v := range prof {
+		mean += v
+	}
+	mean /= float64(n)
+	var ss float64
+	for _, v := range prof {
+		ss += (v - mean) * (v - mean)
+	}
+	if ss == 0 {
+		return SweepParams{}, false
+	}
+	// Templates, zero-mean: ramp r_i = i − (n−1)/2; triangle
+	// t_i = |i − (n−1)/2| − mean. Their norms do not depend on the
+	// alignment.
+	c := float64(n-1) / 2
+	var rr, tm, tt float64
+	for i := 0; i < n; i++ {
+		rr += (float64(i) - c) * (float64(i) - c)
+		tm += math.Abs(float64(i) - c)
+	}
+	tm /= float64(n)
+	for i := 0; i < n; i++ {
+		d := math.Abs(float64(i)-c) - tm
+		tt += d * d
+	}
+	bestRamp, rampAt, bestTri, triAt := 0.0, 0, 0.0, 0
+	for r := 0; r < n; r++ {
+		var sr, st float64
+		for i := 0; i < n; i++ {
+			v := prof[(r+i)%n] - mean
+			sr += v * (float64(i) - c)
+			st += v * (math.Abs(float64(i)-c) - tm)
+		}
+		if cr := sr / math.Sqrt(rr*ss); math.Abs(cr) > math.Abs(bestRamp) {
+			bestRamp, rampAt = cr, r
+		}
+		if ct := st / math.Sqrt(tt*ss); ct > bestTri {
+			// A triangle template peaks at its ends: it is V-shaped, so its
+			// best alignment starts at the profile's maximum.
+			bestTri, triAt = ct, r
 		}
 	}
-	for b := 0; b < n; b++ {
-		if b == at {
-			continue
-		}
-		if prof[(b+1)%n]-prof[b] > 0 {
-			pos++
-		}
-	}
-	frac := float64(pos) / float64(n-1)
 	dt := period / float64(n)
 	sw := SweepParams{PeriodS: period}
-	switch {
-	case frac > 0.75 || frac < 0.25:
+	if math.Abs(bestRamp) >= bestTri {
 		sw.Shape = "up"
-		if frac < 0.25 {
+		if bestRamp < 0 {
 			sw.Shape = "down"
 		}
-		// Rotate so the ramp starts after the flyback; fit its middle 80 %.
 		// Over one period the ramp covers the span once: span = |slope|·n,
 		// centred on the line's mid value.
-		slope, icpt := fitRamp(prof, at+1, n, 0.1)
+		slope, icpt := fitRamp(prof, rampAt, n, 0.1)
 		sw.RateHzS = slope / dt
 		mid, span := icpt+slope*float64(n-1)/2, math.Abs(slope)*float64(n)
 		sw.LowHz, sw.HighHz = mid-span/2, mid+span/2
-	default:
+	} else {
 		sw.Shape = "triangle"
-		imax, imin := 0, 0
-		for b := range prof {
-			if prof[b] > prof[imax] {
-				imax = b
-			}
-			if prof[b] < prof[imin] {
-				imin = b
-			}
-		}
-		// Fit the rising half (from the minimum to the maximum).
-		l := (imax - imin + n) % n
-		if l < 3 {
-			return sw, false
-		}
-		slope, icpt := fitRamp(prof, imin, l, 0.15)
-		sw.RateHzS = slope / dt
-		mid, span := icpt+slope*float64(l-1)/2, math.Abs(slope)*float64(n)/2
+		// The V template aligned at triAt falls over its first half: fit
+		// the falling half, the sweep's down leg.
+		half := n / 2
+		slope, icpt := fitRamp(prof, triAt, half, 0.1)
+		sw.RateHzS = math.Abs(slope) / dt
+		mid, span := icpt+slope*float64(half-1)/2, math.Abs(slope)*float64(n)/2
 		sw.LowHz, sw.HighHz = mid-span/2, mid+span/2
 	}
 	return sw, sw.HighHz > sw.LowHz
