@@ -341,9 +341,11 @@ func (e *trackedEvent) absorb(in *BlockInput, x Finding, all []Finding) {
 	}
 	e.jnSum += x.JN
 	e.jnPeak = math.Max(e.jnPeak, x.JN)
+	// The interference spectrum for the impact estimate, over the thermal
+	// floor (a wideband rise is interference too).
 	for k := range e.excess {
 		if !in.Excluded[k] {
-			e.excess[k] += in.excess(k)
+			e.excess[k] += max(f.PSD[k]-in.Floor[k]/in.Rise, 0)
 		}
 	}
 	// Activity within this block.

@@ -46,6 +46,9 @@ type Config struct {
 	// BaselineWeight is the weight of a new clean capture in the baseline
 	// average once the baseline holds BaselineWarmup captures. Default 0.1.
 	BaselineWeight float64 `yaml:"baseline_weight" json:"baseline_weight"`
+	// CN0DropDB is the fall of the mean C/N0 of the site's satellites
+	// below their baseline that raises a cn0_drop event. Default 3 dB.
+	CN0DropDB float64 `yaml:"cn0_drop_db" json:"cn0_drop_db"`
 	// BaselineWarmup is how many clean captures are averaged equally
 	// before the baseline becomes an exponential average. Default 4.
 	BaselineWarmup int `yaml:"baseline_warmup" json:"baseline_warmup"`
@@ -94,6 +97,9 @@ func (c Config) Defaults(fs float64) Config {
 	}
 	if c.BaselineWeight == 0 {
 		c.BaselineWeight = 0.1
+	}
+	if c.CN0DropDB == 0 {
+		c.CN0DropDB = 3
 	}
 	if c.BaselineWarmup == 0 {
 		c.BaselineWarmup = 4

@@ -198,7 +198,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) 
 	prev := p.state.episodes[key]
 	var stillOpen []openEpisode
 	for _, ev := range tr.events {
-		e := ev.toEvent(c, name, cfg, fs, center, hasCenter, in.NoisePower)
+		e := ev.toEvent(c, name, cfg, fs, center, hasCenter, in.NoisePower/in.Rise)
 		e.ID = eventID(sha, e.Class, e.SampleStart, e.OffsetHz, fp)
 		e.Episode = e.ID
 		if ev.firstBlock == 0 {
@@ -217,6 +217,41 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) 
 	}
 	p.state.episodes[key] = stillOpen
 
+	// C/N0 against the site's satellites: a drop raises a cn0_drop event,
+	// linked to the spectral events that explain it.
+	if drop, ok := cn0Drop(stats.Satellites, &base, cfg.CN0DropDB); ok && st.gnssSkipped == "" {
+		drop.Capture, drop.SampleStart, drop.SampleCount = name, 0, c.Samples
+		drop.Start, drop.End = Time{c.SampleTime(0)}, Time{c.SampleTime(c.Samples)}
+		drop.BandwidthHz = fs
+		drop.PowerDBFS = stats.PowerDBFS
+		if hasCenter {
+			drop.CenterHz = ptr(center)
+		}
+		drop.ID = eventID(sha, drop.Class, 0, 0, fp)
+		drop.Episode = drop.ID
+		for i := range res.Events {
+			drop.Related = append(drop.Related, res.Events[i].ID)
+			res.Events[i].Related = append(res.Events[i].Related, drop.ID)
+		}
+		for _, o := range prev {
+			if o.class == ClassCN0Drop && !o.end.IsZero() && drop.Start.Sub(o.end) <= episodeGap {
+				drop.Episode = o.id
+			}
+		}
+		p.state.episodes[key] = append(p.state.episodes[key], openEpisode{id: drop.Episode, class: ClassCN0Drop, end: drop.End.Time})
+		res.Events = append(res.Events, drop)
+	}
+
+	if len(res.Events) == 0 && len(stats.Satellites) > 0 {
+		cn0 := map[int]float64{}
+		for _, s := range stats.Satellites {
+			cn0[s.PRN] = s.CN0DBHz
+		}
+		mean := strongestMean(stats.Satellites, 4)
+		p.state.Baselines.update(key, func(b *Baseline) {
+			b.learnCN0(cn0, mean, cfg.BaselineWarmup, cfg.BaselineWeight)
+		})
+	}
 	if len(res.Events) == 0 && psdBlocks > 0 {
 		for k := range psdSum {
 			psdSum[k] /= float64(psdBlocks)

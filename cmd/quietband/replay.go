@@ -152,6 +152,7 @@ func replay(ctx context.Context, o replayOptions) (*replaySummary, error) {
 		}
 	}
 	pipe := detect.NewPipeline(detect.Config{}, state)
+	pipe.GNSS = &detect.GNSSMeter{}
 
 	logPath := o.logPath
 	if logPath == "" && o.json {
