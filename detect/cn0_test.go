@@ -128,4 +128,3 @@ func classes(evs []Event) []string {
 	}
 	return out
 }
-
