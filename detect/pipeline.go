@@ -96,6 +96,13 @@ func (p *Pipeline) Fingerprint(fs float64) string {
 // watched root (it goes into the records). A read error mid-way returns the
 // error; nothing is learned from such a capture.
 func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) (*Result, error) {
+	return p.ProcessMeasured(ctx, c, name, nil)
+}
+
+// ProcessMeasured is Process with the satellites already measured (by
+// MeasureSatellites); with sats nil, the pipeline's own GNSS meter, if
+// any, measures them during the pass.
+func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name string, sats *SatelliteResult) (*Result, error) {
 	t0 := time.Now()
 	fs := c.SampleRate
 	cfg := p.cfg.Defaults(fs)
@@ -126,8 +133,12 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) 
 	st := statsAcc{skMax: math.Inf(-1)}
 	psdSum := make([]float64, cfg.FFTSize)
 	var psdBlocks int
-	if p.GNSS != nil {
-		if why := p.GNSS.Start(fs, center, hasCenter); why != "" {
+	meter := p.GNSS
+	if sats != nil {
+		meter = nil
+		st.gnssSkipped = sats.Skipped
+	} else if meter != nil {
+		if why := meter.Start(fs, center, hasCenter); why != "" {
 			st.gnssSkipped = why
 		}
 	}
@@ -170,8 +181,8 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) 
 			}
 			psdBlocks++
 		}
-		if p.GNSS != nil && st.gnssSkipped == "" {
-			p.GNSS.Block(blk.Start, blk.Samples)
+		if meter != nil && st.gnssSkipped == "" {
+			meter.Block(blk.Start, blk.Samples)
 		}
 	}
 	sha := r.SHA256()
@@ -180,8 +191,11 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) 
 	res := &Result{Blocks: st.blocks}
 	fp := p.Fingerprint(fs)
 	stats := st.stats(base.Power)
-	if p.GNSS != nil && st.gnssSkipped == "" {
-		stats.Satellites = p.GNSS.Result()
+	switch {
+	case sats != nil:
+		stats.Satellites = sats.Satellites
+	case meter != nil && st.gnssSkipped == "":
+		stats.Satellites = meter.Result()
 	}
 	if stats.Satellites == nil {
 		stats.Satellites = []Satellite{}
@@ -345,4 +359,10 @@ func dB(x float64) float64 {
 		return -300
 	}
 	return 10 * math.Log10(x)
+}
+
+// BlockLen is the number of samples per block for a capture at rate fs.
+func (p *Pipeline) BlockLen(fs float64) int {
+	c := p.cfg.Defaults(fs)
+	return c.FFTSize * c.Frames
 }

@@ -1,9 +1,13 @@
 package detect
 
 import (
+	"context"
 	"errors"
+	"io"
 	"math"
 	"sort"
+
+	"quietband/ingest"
 
 	"quietband/detect/fft"
 	"quietband/detect/gnss"
@@ -153,7 +157,15 @@ func cn0Drop(sats []Satellite, base *Baseline, margin float64) (Event, bool) {
 	}
 	var prns, lost []int
 	var sumBase, sumNow float64
-	for prn, b := range base.CN0 {
+	// Sorted, so that the sums (and the records) do not depend on map
+	// order.
+	keys := make([]int, 0, len(base.CN0))
+	for prn := range base.CN0 {
+		keys = append(keys, prn)
+	}
+	sort.Ints(keys)
+	for _, prn := range keys {
+		b := base.CN0[prn]
 		if c, ok := now[prn]; ok {
 			prns = append(prns, prn)
 			sumBase += b
@@ -235,4 +247,40 @@ func (m *GNSSMeter) excise(x []complex64) {
 			blk[i] *= complex(1.0/exciseN, 0)
 		}
 	}
+}
+
+// SatelliteResult is what a SatelliteMeter measured in one capture.
+type SatelliteResult struct {
+	Satellites []Satellite
+	Skipped    string // why nothing was measured, if so
+}
+
+// MeasureSatellites reads a capture on its own and measures its
+// satellites with m. It depends on nothing but the capture, so replay runs
+// it for several captures at once (one meter each) ahead of the spectral
+// pass, which must go in time order.
+func MeasureSatellites(ctx context.Context, c *ingest.Capture, m SatelliteMeter, blockLen int) (SatelliteResult, error) {
+	center, hasCenter := c.CenterHz()
+	if why := m.Start(c.SampleRate, center, hasCenter); why != "" {
+		return SatelliteResult{Skipped: why}, nil
+	}
+	r, err := c.NewReader(blockLen)
+	if err != nil {
+		return SatelliteResult{}, err
+	}
+	defer r.Close()
+	for {
+		if err := ctx.Err(); err != nil {
+			return SatelliteResult{}, err
+		}
+		b, err := r.Next()
+		if errors.Is(err, io.EOF) {
+			break
+		}
+		if err != nil {
+			return SatelliteResult{}, err
+		}
+		m.Block(b.Start, b.Samples)
+	}
+	return SatelliteResult{Satellites: m.Result()}, nil
 }

@@ -7,6 +7,7 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"runtime"
 	"sort"
 	"strings"
 	"text/tabwriter"
@@ -29,6 +30,7 @@ type replayOptions struct {
 	json     bool
 	baseline string
 	progress bool
+	workers  int
 	out      io.Writer
 	errOut   io.Writer
 }
@@ -40,7 +42,7 @@ type replaySummary struct {
 	byClass       map[string]int
 	samples       int64
 	audio         time.Duration // capture time analysed
-	busy          time.Duration
+	busy          time.Duration // wall-clock time of the whole replay
 	logPath       string
 }
 
@@ -57,6 +59,7 @@ as quarantined, and replay goes on; the exit status is 1 if any was bad.`, errOu
 	asJSON := fs.Bool("json", false, "print the event-log records (JSON Lines) instead of the table")
 	baseline := fs.String("baseline", "", "baseline file: loaded if it exists, saved at the end")
 	quiet := fs.Bool("quiet", false, "no progress line on the terminal")
+	workers := fs.Int("workers", runtime.NumCPU(), "captures whose satellites are measured at once (the spectral pass and the log stay in time order; output does not depend on this)")
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
@@ -69,7 +72,7 @@ as quarantined, and replay goes on; the exit status is 1 if any was bad.`, errOu
 		return err
 	}
 	sum, err := replay(context.Background(), replayOptions{paths: fs.Args(), raw: settings, logPath: *logPath,
-		json: *asJSON, baseline: *baseline, progress: !*quiet && isTerminal(os.Stderr), out: out, errOut: errOut})
+		json: *asJSON, baseline: *baseline, progress: !*quiet && isTerminal(os.Stderr), workers: *workers, out: out, errOut: errOut})
 	if err != nil {
 		return err
 	}
@@ -152,7 +155,7 @@ func replay(ctx context.Context, o replayOptions) (*replaySummary, error) {
 		}
 	}
 	pipe := detect.NewPipeline(detect.Config{}, state)
-	pipe.GNSS = &detect.GNSSMeter{}
+	measured := measureAhead(ctx, jobs, pipe, max(o.workers, 1))
 
 	logPath := o.logPath
 	if logPath == "" && o.json {
@@ -176,6 +179,7 @@ func replay(ctx context.Context, o replayOptions) (*replaySummary, error) {
 		startSeq = log.LastSeq()
 	}
 	sum := &replaySummary{byClass: map[string]int{}, logPath: o.logPath}
+	t0 := time.Now()
 	for i, j := range jobs {
 		if o.progress {
 			fmt.Fprintf(o.errOut, "\r[%d/%d] %s\033[K", i+1, len(jobs), j.name)
@@ -187,7 +191,12 @@ func replay(ctx context.Context, o replayOptions) (*replaySummary, error) {
 			fmt.Fprintf(o.errOut, "quietband replay: quarantined %s: %v\n", j.name, j.problem)
 			items = append(items, eventlog.Item{Kind: "capture", Body: quarantined(j.name, j.problem)})
 		} else {
-			res, err := pipe.Process(ctx, j.capture, j.name)
+			sat := <-measured[i]
+			var res *detect.Result
+			err := sat.err
+			if err == nil {
+				res, err = pipe.ProcessMeasured(ctx, j.capture, j.name, &sat.result)
+			}
 			if err != nil {
 				sum.bad++
 				fmt.Fprintf(o.errOut, "quietband replay: quarantined %s: %v\n", j.name, err)
@@ -201,7 +210,6 @@ func replay(ctx context.Context, o replayOptions) (*replaySummary, error) {
 				items = append(items, eventlog.Item{Kind: "capture", Body: res.Record})
 				sum.samples += j.capture.Samples
 				sum.audio += j.capture.Duration()
-				sum.busy += res.Elapsed
 			}
 		}
 		if log != nil {
@@ -210,6 +218,7 @@ func replay(ctx context.Context, o replayOptions) (*replaySummary, error) {
 			}
 		}
 	}
+	sum.busy = time.Since(t0)
 	if o.progress && len(jobs) > 0 {
 		fmt.Fprintf(o.errOut, "\r\033[K")
 	}
@@ -314,4 +323,50 @@ func printSummary(w io.Writer, s *replaySummary) {
 	if s.logPath != "" {
 		fmt.Fprintf(w, "event log: %s\n", s.logPath)
 	}
+}
+
+// measured is the satellite measurement of one job.
+type measured struct {
+	result detect.SatelliteResult
+	err    error
+}
+
+// measureAhead measures the satellites of the jobs on workers goroutines,
+// at most workers captures ahead of the consumer, which reads channel i
+// for job i in order. The measurement depends only on the capture, so the
+// results are the same whatever the number of workers.
+func measureAhead(ctx context.Context, jobs []job, pipe *detect.Pipeline, workers int) []chan measured {
+	out := make([]chan measured, len(jobs))
+	for i := range out {
+		out[i] = make(chan measured, 1)
+	}
+	next := make(chan int)
+	slots := make(chan struct{}, workers)
+	go func() {
+		defer close(next)
+		for i := range jobs {
+			select {
+			case slots <- struct{}{}:
+			case <-ctx.Done():
+				return
+			}
+			next <- i
+		}
+	}()
+	for w := 0; w < workers; w++ {
+		go func() {
+			meter := &detect.GNSSMeter{}
+			for i := range next {
+				j := jobs[i]
+				if j.problem != nil {
+					out[i] <- measured{}
+				} else {
+					r, err := detect.MeasureSatellites(ctx, j.capture, meter, pipe.BlockLen(j.capture.SampleRate))
+					out[i] <- measured{result: r, err: err}
+				}
+				<-slots
+			}
+		}()
+	}
+	return out
 }
