@@ -39,6 +39,8 @@ type Swept struct {
 	win     []float32
 	weights []float64
 	z       []complex128
+	lp      []complex64
+	mag     []float64
 	prof    []float64
 }
 
@@ -127,8 +129,9 @@ func (d *Swept) periodicity(in *BlockInput) (float64, bool) {
 			k := base + j
 			var th float64
 			if k > 0 {
-				z := complex128(x[k]) * cmplx.Conj(complex128(x[k-1]))
-				th = math.Atan2(imag(z), real(z))
+				a, b := x[k], x[k-1]
+				z := a * complex(real(b), -imag(b))
+				th = float64(fastAtan2(imag(z), real(z)))
 			}
 			d.buf[j] = complex(float32(th), 0)
 			mean += th
@@ -216,7 +219,7 @@ func hannLagWeights(n int) []float64 {
 // product.
 func (d *Swept) fold(x []complex64, fs, period float64) (SweepParams, bool) {
 	bins := int(math.Round(period * fs))
-	if bins < 6 {
+	if bins < 6 || len(x) < 2 {
 		return SweepParams{}, false
 	}
 	if cap(d.z) < bins {
@@ -224,6 +227,21 @@ func (d *Swept) fold(x []complex64, fs, period float64) (SweepParams, bool) {
 		d.prof = make([]float64, bins)
 	}
 	z := d.z[:bins]
+	// The lag product once for all the folds below, and its magnitudes'
+	// running sum, so that a fold of the first m samples costs one complex
+	// addition per sample.
+	if cap(d.lp) < len(x) {
+		d.lp = make([]complex64, len(x))
+		d.mag = make([]float64, len(x)+1)
+	}
+	lp, mag := d.lp[:len(x)], d.mag[:len(x)+1]
+	lp[0], mag[0], mag[1] = 0, 0, 0
+	for i := 1; i < len(x); i++ {
+		a, b := x[i], x[i-1]
+		p := a * complex(real(b), -imag(b))
+		lp[i] = p
+		mag[i+1] = mag[i] + math.Hypot(float64(real(p)), float64(imag(p)))
+	}
 	// Coarse-to-fine search of T. Folding P periods with a period error δ
 	// shifts the last ones by P·δ; the lag product changes little over an
 	// eighth of a period, so a level folding P periods resolves δ ≈ T/(8P).
@@ -231,18 +249,19 @@ func (d *Swept) fold(x []complex64, fs, period float64) (SweepParams, bool) {
 	// fold four times as many periods with a step four times finer.
 	span := min(len(x), 8*bins)
 	step := 0.01 * period
+	half := 6
 	for {
 		best, bestI := -1.0, 0
 		var cs [13]float64
-		for i := -6; i <= 6; i++ {
-			cs[i+6] = coherence(z, x[:span], fs, period+float64(i)*step)
+		for i := -half; i <= half; i++ {
+			cs[i+6] = coherence(z, lp[:span], mag[span], fs, period+float64(i)*step)
 			if cs[i+6] > best {
 				best, bestI = cs[i+6], i
 			}
 		}
 		// Parabolic refinement between the grid points.
 		delta := 0.0
-		if bestI > -6 && bestI < 6 {
+		if bestI > -half && bestI < half {
 			a, b, c := cs[bestI+5], cs[bestI+6], cs[bestI+7]
 			if den := a - 2*b + c; den < 0 {
 				delta = 0.5 * (a - c) / den
@@ -254,8 +273,9 @@ func (d *Swept) fold(x []complex64, fs, period float64) (SweepParams, bool) {
 		}
 		span = min(len(x), span*4)
 		step /= 4
+		half = 3 // the previous level left the period within a step or two
 	}
-	coh := coherence(z, x, fs, period)
+	coh := coherence(z, lp, mag[len(x)], fs, period)
 	prof := d.prof[:bins]
 	for b, v := range z {
 		prof[b] = fs / (2 * math.Pi) * cmplx.Phase(v)
@@ -265,22 +285,26 @@ func (d *Swept) fold(x []complex64, fs, period float64) (SweepParams, bool) {
 	return sw, ok
 }
 
-// coherence folds z[n] = x[n]x*[n−1] modulo period t into len(z) phase bins
-// and returns Σ|Z_b| / Σ|z[n]|.
-func coherence(z []complex128, x []complex64, fs, t float64) float64 {
+// coherence folds the lag products lp modulo period t into len(z) phase
+// bins and returns Σ_b |Z_b| / tot, tot being Σ|lp[n]|.
+func coherence(z []complex128, lp []complex64, tot, fs, t float64) float64 {
 	clear(z)
 	bins := float64(len(z))
-	inc := 1 / (t * fs)
-	var tot float64
-	for i := 1; i < len(x); i++ {
-		p := complex128(x[i]) * cmplx.Conj(complex128(x[i-1]))
-		ph := float64(i) * inc
-		b := int((ph - math.Floor(ph)) * bins)
-		if b >= len(z) {
-			b = len(z) - 1
+	inc := bins / (t * fs)
+	nb := len(z)
+	// The phase bin advances by inc per sample; keep it as a running
+	// value, wrapped, instead of a floor per sample.
+	ph := 0.0
+	for i := range lp {
+		b := int(ph)
+		if b >= nb {
+			b = nb - 1
 		}
-		z[b] += p
-		tot += cmplx.Abs(p)
+		z[b] += complex128(lp[i])
+		ph += inc
+		if ph >= bins {
+			ph -= bins
+		}
 	}
 	var s float64
 	for _, v := range z {
@@ -393,4 +417,38 @@ func fitRamp(prof []float64, start, length int, trim float64) (slope, icpt float
 	slope = (m*sxy - sx*sy) / den
 	icpt = (sy - slope*sx) / m
 	return slope, icpt
+}
+
+// fastAtan2 approximates atan2(y, x) to within about 0.005 rad with the
+// rational form atan(u) ≈ u/(1 + 0.28125·u²) for |u| ≤ 1 (a common
+// practice approximation; ample for the periodicity statistic, which
+// correlates phase steps over thousands of samples). It does not allocate
+// and avoids math.Atan2's cost in the per-sample loop.
+func fastAtan2(y, x float32) float32 {
+	const pi, halfPi = float32(math.Pi), float32(math.Pi / 2)
+	if x == 0 && y == 0 {
+		return 0
+	}
+	ax, ay := x, y
+	if ax < 0 {
+		ax = -ax
+	}
+	if ay < 0 {
+		ay = -ay
+	}
+	var r float32
+	if ax >= ay {
+		u := ay / ax
+		r = u / (1 + 0.28125*u*u)
+	} else {
+		u := ax / ay
+		r = halfPi - u/(1+0.28125*u*u)
+	}
+	if x < 0 {
+		r = pi - r
+	}
+	if y < 0 {
+		r = -r
+	}
+	return r
 }
