@@ -182,7 +182,7 @@ func replay(ctx context.Context, o replayOptions) (*replaySummary, error) {
 	t0 := time.Now()
 	for i, j := range jobs {
 		if o.progress {
-			fmt.Fprintf(o.errOut, "\r[%d/%d] %s\033[K", i+1, len(jobs), j.name)
+			fmt.Fprintf(o.errOut, "\r%s %s\033[K", progressBar(i, len(jobs), 30), j.name)
 		}
 		sum.captures++
 		var items []eventlog.Item
@@ -369,4 +369,13 @@ func measureAhead(ctx context.Context, jobs []job, pipe *detect.Pipeline, worker
 		}()
 	}
 	return out
+}
+
+// progressBar draws done of total as a bar of width cells with the count.
+func progressBar(done, total, width int) string {
+	if total <= 0 {
+		return ""
+	}
+	fill := done * width / total
+	return fmt.Sprintf("[%s%s] %d/%d", strings.Repeat("#", fill), strings.Repeat(".", width-fill), done, total)
 }

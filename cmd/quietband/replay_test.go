@@ -211,3 +211,14 @@ func TestHelpIsComplete(t *testing.T) {
 		}
 	}
 }
+
+func TestProgressBar(t *testing.T) {
+	for _, tc := range []struct {
+		done, total int
+		want        string
+	}{{0, 4, "[....] 0/4"}, {2, 4, "[##..] 2/4"}, {4, 4, "[####] 4/4"}, {1, 3, "[#...] 1/3"}} {
+		if got := progressBar(tc.done, tc.total, 4); got != tc.want {
+			t.Errorf("progressBar(%d, %d) = %q, want %q", tc.done, tc.total, got, tc.want)
+		}
+	}
+}
