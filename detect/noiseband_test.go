@@ -7,17 +7,10 @@ import (
 	"quietband/ingest/synth"
 )
 
-// TestNoiseBands: a wideband floor rise ≥ 1 dB detected with error ≤ 0.3 dB;
-// band-limited noise at J/N ≥ 0 dB with bandwidth within 15 % and centre
-// within 5 % of the bandwidth.
+// TestNoiseBands: band-limited noise at J/N ≥ 0 dB with bandwidth within
+// 15 % and centre within 5 % of the bandwidth.
 func TestNoiseBands(t *testing.T) {
 	const fs = 4e6
-	for _, rise := range []float64{1, 3, 10} {
-		t.Run(fmt.Sprintf("wideband-%gdB", rise), func(t *testing.T) {
-			ev := only(t, detectOne(t, fs, "ci16_le", 0.1, 8, synth.Emitter{Kind: synth.KindWidebandNoise, FloorRiseDB: rise}), ClassWidebandNoise)
-			within(t, "floor rise", *ev.Params.FloorRiseDB, rise, 0.3)
-		})
-	}
 	for _, tc := range []struct{ off, bw, jn float64 }{
 		{800e3, 200e3, 0}, {-1.2e6, 500e3, 3}, {300e3, 1e6, 0}, {-500e3, 60e3, 6},
 	} {
@@ -35,10 +28,4 @@ func TestNoiseBands(t *testing.T) {
 // band-limited noise.
 func BenchmarkNoiseBand(b *testing.B) {
 	benchDetector(b, NoiseBand{}, benchBlock(b, 10e6, synth.Emitter{Kind: synth.KindNarrowbandNoise, OffsetHz: 1e6, BandwidthHz: 500e3, JNDB: 3}))
-}
-
-// BenchmarkNoiseFloor runs the floor-rise test on a 10 MS/s block with a
-// wideband rise.
-func BenchmarkNoiseFloor(b *testing.B) {
-	benchDetector(b, NoiseFloor{}, benchBlock(b, 10e6, synth.Emitter{Kind: synth.KindWidebandNoise, FloorRiseDB: 3}))
 }
