@@ -30,6 +30,18 @@ type Pipeline struct {
 	// GNSS, when set, measures the satellites of each capture; see
 	// SatelliteMeter.
 	GNSS SatelliteMeter
+	// Observer, when set, sees every block after the detectors ran (for
+	// reports: spectrograms, PSD, SK and pulses come from the same single
+	// FFT pass). It must not keep references to the block's slices.
+	Observer BlockObserver
+}
+
+// BlockObserver watches the pipeline's blocks.
+type BlockObserver interface {
+	// Begin starts a capture (block length in samples, FFT size, rate).
+	Begin(c *ingest.Capture, blockLen, fftSize int)
+	// Block sees one block: its features, references, SK and findings.
+	Block(in *BlockInput, findings []Finding)
 }
 
 // SatelliteMeter measures satellites in a capture (acquisition on a
@@ -124,6 +136,9 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 	defer r.Close()
 
 	eng := NewSpectrum(cfg.FFTSize, cfg.Frames, fs)
+	if p.Observer != nil {
+		p.Observer.Begin(c, blockLen, cfg.FFTSize)
+	}
 	sk := &SpectralKurtosis{}
 	pulse := &Pulse{}
 	bank := []Detector{sk, CW{}, NoiseBand{}, &Swept{}, pulse}
@@ -174,6 +189,9 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 			findings = pulse.Detect(in, findings)
 		}
 		tr.block(in, findings)
+		if p.Observer != nil {
+			p.Observer.Block(in, findings)
+		}
 		st.add(in, blk.Clipped)
 		if f.Frames == cfg.Frames {
 			for k, v := range f.PSD {
