@@ -241,3 +241,35 @@ func BenchmarkBank(b *testing.B) {
 		}
 	}
 }
+
+// BenchmarkBlock is the steady state of the spectral pass: one ci16 block
+// decoded, through the engine, every detector and the tracker, with a
+// learned baseline, single core. It must not allocate.
+func BenchmarkBlock(b *testing.B) {
+	for _, fs := range []float64{10e6, 20e6} {
+		b.Run(fmt.Sprintf("%gMSps", fs/1e6), func(b *testing.B) {
+			in := benchBlock(b, fs)
+			cfg := Config{}.Defaults(fs)
+			p := NewPipeline(Config{}, nil)
+			bk := p.bankFor(cfg, fs)
+			floor := append([]float64(nil), in.Floor...)
+			bk.reset(floor, 1575.42e6, true)
+			// ci16 input: the block is decoded from its bytes each time.
+			raw := make([]byte, len(in.Samples)*ingest.CI16LE.SampleBytes())
+			ingest.CI16LE.Encode(raw, in.Samples)
+			x := make([]complex64, len(in.Samples))
+			blk := ingest.Block{Samples: x}
+			for range 3 { // warm the buffers up
+				ingest.CI16LE.Decode(x, raw)
+				bk.block(blk, nil)
+			}
+			b.ReportAllocs()
+			for b.Loop() {
+				ingest.CI16LE.Decode(x, raw)
+				blk.Start += int64(len(blk.Samples))
+				bk.block(blk, nil)
+			}
+			b.ReportMetric(float64(len(in.Samples))*float64(b.N)/b.Elapsed().Seconds()/1e6, "MS/s")
+		})
+	}
+}

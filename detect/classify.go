@@ -181,9 +181,15 @@ func (t *tracker) block(in *BlockInput, fs []Finding) {
 		}
 	}
 	t.open = kept
-	// Keep this block's frames for the next block's start refinement.
-	t.prev = append(t.prev[:0], f.FramePSD[:f.Frames*f.N]...)
+	// Keep this block's frames for the next block's start refinement: swap
+	// the frame matrix with the one kept from the block before, which the
+	// engine then overwrites (no copy).
 	t.prevF = *f
+	if len(t.prev) == len(f.FramePSD) {
+		t.prev, f.FramePSD = f.FramePSD, t.prev
+	} else {
+		t.prev = append(t.prev[:0], f.FramePSD...)
+	}
 	t.last = in
 	t.blockNo++
 }

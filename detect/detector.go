@@ -2,7 +2,6 @@ package detect
 
 import (
 	"math"
-	"sort"
 
 	"gonum.org/v1/gonum/stat/distuv"
 )
@@ -47,6 +46,9 @@ type BlockInput struct {
 	SKFlag      []int8
 	SKThreshold [2]float64
 	SKSigma     float64 // standard deviation of SK under the null
+
+	scratch  []float64 // for medians
+	scratch2 []float64
 }
 
 // Finding is one detector's report for one block.
@@ -114,7 +116,7 @@ func (in *BlockInput) prepare(floor []float64, cfg *Config, center float64, hasC
 	} else {
 		// A flat floor from the median bin: the median of Gamma(M,1/M) is
 		// about 1 − 1/(3M) of its mean (Wilson–Hilferty).
-		med := medianOf(f.PSD) / (1 - 1/(3*float64(max(f.Frames, 1))))
+		med := medianScratch(&in.scratch, f.PSD) / (1 - 1/(3*float64(max(f.Frames, 1))))
 		for k := range in.Floor {
 			in.Floor[k] = med
 		}
@@ -168,17 +170,79 @@ func (t *thresholdCache) bin(m int, pfa float64) float64 {
 	return v
 }
 
-// medianOf returns the median of v without reordering it.
+// medianOf returns the median of v without reordering it (it allocates a
+// copy; per-block code uses medianScratch).
 func medianOf(v []float64) float64 {
-	if len(v) == 0 {
+	var s []float64
+	return medianScratch(&s, v)
+}
+
+// medianScratch returns the median of v, using *scratch (grown as needed)
+// for a copy, by quickselect: O(len(v)) expected and no allocation once
+// the scratch is large enough.
+func medianScratch(scratch *[]float64, v []float64) float64 {
+	n := len(v)
+	if n == 0 {
 		return 0
 	}
-	c := append([]float64(nil), v...)
-	sort.Float64s(c)
-	if len(c)%2 == 1 {
-		return c[len(c)/2]
+	if cap(*scratch) < n {
+		*scratch = make([]float64, n)
 	}
-	return (c[len(c)/2-1] + c[len(c)/2]) / 2
+	c := (*scratch)[:n]
+	copy(c, v)
+	hi := selectK(c, n/2)
+	if n%2 == 1 {
+		return hi
+	}
+	// The lower middle is the largest of the elements left of n/2.
+	lo := c[0]
+	for _, x := range c[1 : n/2] {
+		lo = max(lo, x)
+	}
+	return (lo + hi) / 2
+}
+
+// selectK reorders c so that c[k] is its k-th smallest element, everything
+// before it no larger and everything after no smaller (Hoare's quickselect
+// with a median-of-three pivot), and returns c[k].
+func selectK(c []float64, k int) float64 {
+	lo, hi := 0, len(c)-1
+	for lo < hi {
+		mid := lo + (hi-lo)/2
+		if c[mid] < c[lo] {
+			c[mid], c[lo] = c[lo], c[mid]
+		}
+		if c[hi] < c[lo] {
+			c[hi], c[lo] = c[lo], c[hi]
+		}
+		if c[hi] < c[mid] {
+			c[hi], c[mid] = c[mid], c[hi]
+		}
+		pivot := c[mid]
+		i, j := lo, hi
+		for i <= j {
+			for c[i] < pivot {
+				i++
+			}
+			for c[j] > pivot {
+				j--
+			}
+			if i <= j {
+				c[i], c[j] = c[j], c[i]
+				i++
+				j--
+			}
+		}
+		switch {
+		case k <= j:
+			hi = j
+		case k >= i:
+			lo = i
+		default:
+			return c[k]
+		}
+	}
+	return c[k]
 }
 
 // excess is the interference power in bin k: what the bin holds above the

@@ -55,11 +55,12 @@ func (d NoiseBand) Detect(in *BlockInput, out []Finding) []Finding {
 		if nb == 0 || math.Abs(sk-1) > 4*in.SKSigma/math.Sqrt(float64(nb)) {
 			continue
 		}
-		ex := make([]float64, 0, hi-lo+1)
+		ex := in.scratch2[:0]
 		for i := lo; i <= hi; i++ {
 			ex = append(ex, in.excess(i))
 		}
-		half := medianOf(ex) / 2
+		in.scratch2 = ex
+		half := medianScratch(&in.scratch, ex) / 2
 		lowEdge := edge(in, lo, -1, half)
 		highEdge := edge(in, hi, +1, half)
 		out = append(out, Finding{Detector: d.Name(), Class: ClassNarrowbandNoise, LowHz: lowEdge, HighHz: highEdge,

@@ -34,6 +34,11 @@ func (d NoiseFloor) Detect(in *BlockInput, out []Finding) []Finding {
 	if !in.HasBaseline || in.F.Frames == 0 {
 		return out
 	}
+	// A rise of R dB across the band raises the block's total power by R
+	// dB: below half the threshold there is nothing to look for.
+	if 10*math.Log10(in.F.Power/in.NoisePower) < in.Cfg.WidebandRiseDB/2 {
+		return out
+	}
 	rise, covered := floorRise(in)
 	if rise < in.Cfg.WidebandRiseDB || covered < wideSubbands*3/4 {
 		return out
@@ -51,7 +56,10 @@ func floorRise(in *BlockInput) (rise float64, covered int) {
 	f := in.F
 	corr := 1 - 1/(3*float64(f.Frames))
 	width := f.N / wideSubbands
-	vals := make([]float64, 0, f.N)
+	if cap(in.scratch2) < f.N {
+		in.scratch2 = make([]float64, f.N)
+	}
+	vals := in.scratch2[:0]
 	for b := 0; b < wideSubbands; b++ {
 		sub := vals[len(vals):]
 		for k := b * width; k < (b+1)*width; k++ {
@@ -59,7 +67,7 @@ func floorRise(in *BlockInput) (rise float64, covered int) {
 				sub = append(sub, in.Ratio[k])
 			}
 		}
-		if len(sub) > 0 && 10*math.Log10(medianOf(sub)/corr) > in.Cfg.WidebandRiseDB/2 {
+		if len(sub) > 0 && 10*math.Log10(medianScratch(&in.scratch, sub)/corr) > in.Cfg.WidebandRiseDB/2 {
 			covered++
 		}
 		vals = vals[:len(vals)+len(sub)]
@@ -67,5 +75,5 @@ func floorRise(in *BlockInput) (rise float64, covered int) {
 	if len(vals) == 0 {
 		return 0, 0
 	}
-	return 10 * math.Log10(medianOf(vals)/corr), covered
+	return 10 * math.Log10(medianScratch(&in.scratch, vals)/corr), covered
 }

@@ -29,7 +29,9 @@ type Pipeline struct {
 	state *State
 	// GNSS, when set, measures the satellites of each capture; see
 	// SatelliteMeter.
-	GNSS SatelliteMeter
+	GNSS  SatelliteMeter
+	banks map[string]*bank
+
 	// Observer, when set, sees every block after the detectors ran (for
 	// reports: spectrograms, PSD, SK and pulses come from the same single
 	// FFT pass). It must not keep references to the block's slices.
@@ -135,19 +137,12 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 	}
 	defer r.Close()
 
-	eng := NewSpectrum(cfg.FFTSize, cfg.Frames, fs)
+	b := p.bankFor(cfg, fs)
+	b.reset(floor, center, hasCenter)
 	if p.Observer != nil {
 		p.Observer.Begin(c, blockLen, cfg.FFTSize)
 	}
-	sk := &SpectralKurtosis{}
-	pulse := &Pulse{}
-	bank := []Detector{sk, CW{}, NoiseBand{}, &Swept{}, pulse}
-	var thr thresholdCache
-	in := &BlockInput{}
-	tr := newTracker(cfg, fs, blockLen)
-	st := statsAcc{skMax: math.Inf(-1)}
-	psdSum := make([]float64, cfg.FFTSize)
-	var psdBlocks int
+	st, tr, in := &b.st, b.tr, &b.in
 	meter := p.GNSS
 	if sats != nil {
 		meter = nil
@@ -157,7 +152,6 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 			st.gnssSkipped = why
 		}
 	}
-	var findings []Finding
 	for {
 		if err := ctx.Err(); err != nil {
 			return nil, err
@@ -169,40 +163,12 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 		if err != nil {
 			return nil, err
 		}
-		f := eng.Analyze(blk.Start, blk.Samples, blk.Clipped)
-		in.F, in.Samples = f, blk.Samples
-		in.prepare(floor, &cfg, center, hasCenter, &thr)
-		sk.Compute(in)
-		findings = findings[:0]
-		if f.Frames >= minFrames {
-			// A wideband rise lifts the floor every narrow detector compares
-			// against (a sweep's leakage between its lines can mimic one;
-			// the classifier then lets the sweep claim it).
-			findings = NoiseFloor{}.Detect(in, findings)
-			if len(findings) > 0 {
-				in.raiseFloor(findings[0].FloorRiseDB)
-			}
-			for _, d := range bank {
-				findings = d.Detect(in, findings)
-			}
-		} else {
-			findings = pulse.Detect(in, findings)
-		}
-		tr.block(in, findings)
-		if p.Observer != nil {
-			p.Observer.Block(in, findings)
-		}
-		st.add(in, blk.Clipped)
-		if f.Frames == cfg.Frames {
-			for k, v := range f.PSD {
-				psdSum[k] += v
-			}
-			psdBlocks++
-		}
+		b.block(blk, p.Observer)
 		if meter != nil && st.gnssSkipped == "" {
 			meter.Block(blk.Start, blk.Samples)
 		}
 	}
+	psdSum, psdBlocks := b.psdSum, b.psdBlocks
 	sha := r.SHA256()
 	tr.finish()
 
@@ -322,8 +288,14 @@ type statsAcc struct {
 	clipped     int64
 	skMax       float64
 	floors      []float64
+	seen        int
+	stride      int
 	gnssSkipped string
 }
+
+// maxFloors bounds the per-block noise-floor values kept for a capture's
+// median.
+const maxFloors = 1024
 
 func (s *statsAcc) add(in *BlockInput, clipped int) {
 	f := in.F
@@ -342,8 +314,21 @@ func (s *statsAcc) add(in *BlockInput, clipped int) {
 	}
 	if f.Frames > 0 {
 		// Noise floor: the median bin ratio to the reference shape, scaled
-		// to the band (robust against narrow interference).
-		s.floors = append(s.floors, medianOf(in.Ratio)/(1-1/(3*float64(f.Frames)))*in.NoisePower)
+		// to the band (robust against narrow interference). One value per
+		// block, kept in a bounded reservoir: past maxFloors values, every
+		// other one is dropped and only every other block is kept, so the
+		// median is over evenly spaced blocks of the whole capture.
+		s.seen++
+		if s.seen%s.stride == 0 {
+			s.floors = append(s.floors, medianScratch(&in.scratch, in.Ratio)/(1-1/(3*float64(f.Frames)))*in.NoisePower)
+			if len(s.floors) == maxFloors {
+				for i := 0; i < maxFloors/2; i++ {
+					s.floors[i] = s.floors[2*i+1]
+				}
+				s.floors = s.floors[:maxFloors/2]
+				s.stride *= 2
+			}
+		}
 	}
 }
 
@@ -383,4 +368,94 @@ func dB(x float64) float64 {
 func (p *Pipeline) BlockLen(fs float64) int {
 	c := p.cfg.Defaults(fs)
 	return c.FFTSize * c.Frames
+}
+
+// bank is the per-capture machinery of the spectral pass: the engine, the
+// detectors and the tracker, with every buffer they need. A pipeline keeps
+// one per FFT size and rate and reuses it, so that the steady state of the
+// pass allocates nothing.
+type bank struct {
+	cfg       Config
+	eng       *Spectrum
+	sk        *SpectralKurtosis
+	pulse     *Pulse
+	detectors []Detector
+	thr       thresholdCache
+	in        BlockInput
+	tr        *tracker
+	st        statsAcc
+	psdSum    []float64
+	psdBlocks int
+	findings  []Finding
+	floor     []float64
+	center    float64
+	hasCenter bool
+}
+
+func (p *Pipeline) bankFor(cfg Config, fs float64) *bank {
+	key := fmt.Sprintf("%d/%d/%g", cfg.FFTSize, cfg.Frames, fs)
+	if p.banks == nil {
+		p.banks = map[string]*bank{}
+	}
+	if b, ok := p.banks[key]; ok {
+		b.cfg = cfg
+		return b
+	}
+	b := &bank{cfg: cfg, eng: NewSpectrum(cfg.FFTSize, cfg.Frames, fs), sk: &SpectralKurtosis{}, pulse: &Pulse{},
+		psdSum: make([]float64, cfg.FFTSize)}
+	b.detectors = []Detector{b.sk, CW{}, NoiseBand{}, &Swept{}, b.pulse}
+	p.banks[key] = b
+	return b
+}
+
+// reset prepares the bank for a new capture.
+func (b *bank) reset(floor []float64, center float64, hasCenter bool) {
+	b.floor, b.center, b.hasCenter = floor, center, hasCenter
+	fs := b.eng.fs
+	var prev []float32
+	if b.tr != nil {
+		prev = b.tr.prev
+	}
+	b.tr = newTracker(b.cfg, fs, b.cfg.FFTSize*b.cfg.Frames)
+	b.tr.prev = prev[:0]
+	b.st = statsAcc{skMax: math.Inf(-1), floors: b.st.floors[:0], stride: 1}
+	clear(b.psdSum)
+	b.psdBlocks = 0
+}
+
+// block runs the spectral pass over one block; obs, if any, sees the block
+// before the tracker takes its frame matrix.
+func (b *bank) block(blk ingest.Block, obs BlockObserver) {
+	f := b.eng.Analyze(blk.Start, blk.Samples, blk.Clipped)
+	in := &b.in
+	in.F, in.Samples = f, blk.Samples
+	in.prepare(b.floor, &b.cfg, b.center, b.hasCenter, &b.thr)
+	b.sk.Compute(in)
+	fnd := b.findings[:0]
+	if f.Frames >= minFrames {
+		// A wideband rise lifts the floor every narrow detector compares
+		// against (a sweep's leakage between its lines can mimic one; the
+		// classifier then lets the sweep claim it).
+		fnd = NoiseFloor{}.Detect(in, fnd)
+		if len(fnd) > 0 {
+			in.raiseFloor(fnd[0].FloorRiseDB)
+		}
+		for _, d := range b.detectors {
+			fnd = d.Detect(in, fnd)
+		}
+	} else {
+		fnd = b.pulse.Detect(in, fnd)
+	}
+	b.findings = fnd
+	if obs != nil {
+		obs.Block(in, fnd)
+	}
+	b.tr.block(in, fnd)
+	b.st.add(in, blk.Clipped)
+	if f.Frames == b.cfg.Frames {
+		for k, v := range f.PSD {
+			b.psdSum[k] += v
+		}
+		b.psdBlocks++
+	}
 }

@@ -88,28 +88,27 @@ func (s *Spectrum) Analyze(start int64, samples []complex64, clipped int) *Featu
 	clear(f.S1)
 	clear(f.S2)
 	half := n / 2
+	var p2, p4 float64
 	for i := 0; i < m; i++ {
 		frame := samples[i*n : (i+1)*n]
+		buf := s.buf[:len(frame)]
+		win := s.win[:len(frame)]
+		// Window, and the sample moments for the Gaussianity statistic, in
+		// one pass over the frame.
 		for j, v := range frame {
-			w := s.win[j]
-			s.buf[j] = complex(real(v)*w, imag(v)*w)
+			re, im := real(v), imag(v)
+			pw := float64(re*re + im*im)
+			p2 += pw
+			p4 += pw * pw
+			w := win[j]
+			buf[j] = complex(re*w, im*w)
 		}
 		s.plan.Forward(s.buf, s.buf)
 		row := f.FramePSD[i*n : (i+1)*n]
-		var tot float64
-		for k, v := range s.buf {
-			p := (real(v)*real(v) + imag(v)*imag(v)) * s.norm
-			// Centred order: FFT bin k goes to index (k + N/2) mod N.
-			c := k + half
-			if c >= n {
-				c -= n
-			}
-			row[c] = p
-			pf := float64(p)
-			f.S1[c] += pf
-			f.S2[c] += pf * pf
-			tot += pf
-		}
+		// Centred order: FFT bin k goes to index (k + N/2) mod N, so the
+		// upper half of the FFT output fills the lower half of the row.
+		tot := s.accumulate(row[half:], f.S1[half:], f.S2[half:], s.buf[:half])
+		tot += s.accumulate(row[:half], f.S1[:half], f.S2[:half], s.buf[half:])
 		f.FramePower[i] = tot
 	}
 	if m > 0 {
@@ -120,17 +119,37 @@ func (s *Spectrum) Analyze(start int64, samples []complex64, clipped int) *Featu
 	} else {
 		clear(f.PSD)
 	}
-	var p2, p4 float64
-	for _, v := range samples {
-		p := float64(real(v))*float64(real(v)) + float64(imag(v))*float64(imag(v))
-		p2 += p
-		p4 += p * p
+	// Samples past the last whole frame count in the moments too.
+	for _, v := range samples[m*n:] {
+		re, im := real(v), imag(v)
+		pw := float64(re*re + im*im)
+		p2 += pw
+		p4 += pw * pw
 	}
 	if len(samples) > 0 {
 		f.Power = p2 / float64(len(samples))
 		f.Moment4 = p4 / float64(len(samples))
 	}
 	return f
+}
+
+// accumulate writes the normalized powers of spectrum x into row and adds
+// them and their squares to s1 and s2; it returns their sum.
+func (s *Spectrum) accumulate(row []float32, s1, s2 []float64, x []complex64) float64 {
+	row = row[:len(x)]
+	s1 = s1[:len(x)]
+	s2 = s2[:len(x)]
+	norm := s.norm
+	var tot float64
+	for k, v := range x {
+		p := (real(v)*real(v) + imag(v)*imag(v)) * norm
+		row[k] = p
+		pf := float64(p)
+		s1[k] += pf
+		s2[k] += pf * pf
+		tot += pf
+	}
+	return tot
 }
 
 // Offset is the frequency offset of centred bin index i.
