@@ -1,0 +1,187 @@
+package main
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+	"runtime"
+	"text/tabwriter"
+	"time"
+
+	"quietband/detect"
+	"quietband/detect/gnss"
+	"quietband/ingest"
+	"quietband/ingest/synth"
+)
+
+func init() {
+	register("bench", "measure whether this machine keeps up with a recorder: throughput per stage, real-time factor", runBench)
+}
+
+func runBench(args []string, out, errOut io.Writer) error {
+	fs := newFlags("bench", "", `
+Synthesizes captures like a recorder's (GPS satellites and noise, and a
+second set with a chirp jammer, which wakes the costlier sweep analysis) at
+the given rate and format into a temporary folder, then measures each stage
+on one core: reading (decode and SHA-256), the spectral detector bank,
+GPS acquisition and C/N0 tracking; and the whole pipeline's real-time factor
+on one core and on all cores. A real-time factor above 1 keeps up.`, errOut)
+	rate := fs.Float64("rate", 10e6, "sample rate in samples/s")
+	format := fs.String("format", "ci16_le", "sample format (SigMF datatype)")
+	seconds := fs.Float64("seconds", 1, "length of each synthesized capture in seconds")
+	captures := fs.Int("captures", 4, "captures per whole-pipeline run")
+	if err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	if _, err := ingest.ParseFormat(*format); err != nil {
+		return fmt.Errorf("--format: %w", err)
+	}
+	if *seconds <= 0 || *captures < 1 {
+		return fmt.Errorf("--seconds must be > 0 and --captures ≥ 1")
+	}
+	dir, err := os.MkdirTemp("", "quietband-bench-")
+	if err != nil {
+		return err
+	}
+	defer os.RemoveAll(dir)
+	fmt.Fprintf(out, "quietband bench: %s at %.4g MS/s, %d × %.3g s captures, %d CPU(s)\n\n", *format, *rate/1e6, *captures, *seconds, runtime.NumCPU())
+
+	clean, err := benchCaptures(filepath.Join(dir, "clean"), *rate, *format, *seconds, *captures, false)
+	if err != nil {
+		return err
+	}
+	jammed, err := benchCaptures(filepath.Join(dir, "chirp"), *rate, *format, *seconds, 1, true)
+	if err != nil {
+		return err
+	}
+	ctx := context.Background()
+	prev := runtime.GOMAXPROCS(1)
+	defer runtime.GOMAXPROCS(prev)
+	tw := tabwriter.NewWriter(out, 2, 4, 2, ' ', 0)
+	fmt.Fprintln(tw, "STAGE (one core)\tTHROUGHPUT\tREAL TIME")
+	samples := float64(clean[0].Samples)
+	row := func(name string, d time.Duration, n float64) {
+		ms := n / d.Seconds() / 1e6
+		fmt.Fprintf(tw, "%s\t%.1f MS/s\t%.1f×\n", name, ms, ms*1e6 / *rate)
+	}
+	d, err := timeRead(clean[0])
+	if err != nil {
+		return err
+	}
+	row("read: decode + SHA-256", d, samples)
+	for _, c := range []struct {
+		name string
+		cap  *ingest.Capture
+	}{{"spectral bank, clean", clean[0]}, {"spectral bank, chirp jammer", jammed[0]}} {
+		p := detect.NewPipeline(detect.Config{}, nil)
+		if _, err := p.Process(ctx, c.cap, "warm-up"); err != nil {
+			return err
+		}
+		t0 := time.Now()
+		if _, err := p.Process(ctx, c.cap, "bench"); err != nil {
+			return err
+		}
+		row(c.name, time.Since(t0), samples)
+	}
+	acq, track, err := timeGNSS(ctx, clean[0])
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(tw, "GPS acquisition (32 PRNs, 10 ms snapshot)\t%.0f ms per capture\t\n", acq.Seconds()*1e3)
+	row("GPS C/N0 tracking", track, samples)
+	tw.Flush()
+
+	fmt.Fprintln(out)
+	tw = tabwriter.NewWriter(out, 2, 4, 2, ' ', 0)
+	fmt.Fprintln(tw, "WHOLE PIPELINE\tCORES\tREAL TIME")
+	for _, cores := range []int{1, runtime.NumCPU()} {
+		runtime.GOMAXPROCS(cores)
+		t0 := time.Now()
+		sum, err := replay(ctx, replayOptions{paths: []string{filepath.Join(dir, "clean")}, workers: cores, out: io.Discard, errOut: io.Discard})
+		if err != nil {
+			return err
+		}
+		el := time.Since(t0)
+		fmt.Fprintf(tw, "%d captures with satellites\t%d\t%.2f×\n", sum.captures, cores, sum.audio.Seconds()/el.Seconds())
+	}
+	return tw.Flush()
+}
+
+// benchCaptures synthesizes n captures (eight satellites and noise, and a
+// chirp jammer when jam) and opens them.
+func benchCaptures(dir string, fs float64, format string, seconds float64, n int, jam bool) ([]*ingest.Capture, error) {
+	s := synth.Demo()
+	s.Name, s.Format, s.SampleRate = "bench", format, fs
+	sky := s.Captures[0].Satellites
+	s.Captures = nil
+	for i := 0; i < n; i++ {
+		c := synth.Capture{Name: fmt.Sprintf("bench-%02d", i), DurationS: seconds, OffsetS: float64(i) * seconds, Satellites: sky}
+		if jam {
+			c.Emitters = []synth.Emitter{{Kind: synth.KindSwept, JNDB: 10, LowHz: -0.3 * fs, HighHz: 0.3 * fs, PeriodS: 12e-6}}
+		}
+		s.Captures = append(s.Captures, c)
+	}
+	truths, err := synth.Write(&s, dir)
+	if err != nil {
+		return nil, err
+	}
+	var out []*ingest.Capture
+	for _, t := range truths {
+		c, err := ingest.Open(filepath.Join(dir, t.Capture), ingest.RawSettings{})
+		if err != nil {
+			return nil, err
+		}
+		out = append(out, c)
+	}
+	return out, nil
+}
+
+func timeRead(c *ingest.Capture) (time.Duration, error) {
+	t0 := time.Now()
+	r, err := c.NewReader(1 << 17)
+	if err != nil {
+		return 0, err
+	}
+	defer r.Close()
+	for {
+		if _, err := r.Next(); errors.Is(err, io.EOF) {
+			break
+		} else if err != nil {
+			return 0, err
+		}
+	}
+	return time.Since(t0), nil
+}
+
+// timeGNSS measures acquisition on the capture's first snapshot, and the
+// whole satellite measurement, whose difference is tracking.
+func timeGNSS(ctx context.Context, c *ingest.Capture) (acq, track time.Duration, err error) {
+	center, _ := c.CenterHz()
+	a, err := gnss.NewAcquirer(gnss.AcqConfig{}, c.SampleRate, center)
+	if err != nil {
+		return 0, 0, err
+	}
+	r, err := c.NewReader(a.SnapshotLen())
+	if err != nil {
+		return 0, 0, err
+	}
+	b, err := r.Next()
+	r.Close()
+	if err != nil {
+		return 0, 0, err
+	}
+	t0 := time.Now()
+	if _, err := a.Acquire(nil, b.Samples); err != nil {
+		return 0, 0, err
+	}
+	acq = time.Since(t0)
+	p := detect.NewPipeline(detect.Config{}, nil)
+	t0 = time.Now()
+	if _, err := detect.MeasureSatellites(ctx, c, &detect.GNSSMeter{}, p.BlockLen(c.SampleRate)); err != nil {
+		return 0, 0, err
+	}
+	return acq, max(time.Since(t0)-acq, time.Nanosecond), nil
+}
