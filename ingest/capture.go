@@ -11,6 +11,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"runtime"
 	"strings"
 	"time"
 )
@@ -241,15 +242,24 @@ type Block struct {
 }
 
 // Reader streams a capture in blocks of a fixed number of samples (the last
-// one may be shorter). Memory is two buffers of one block, whatever the
+// one may be shorter). Memory is a few buffers of one block, whatever the
 // capture size. It hashes the data as it goes (SHA-256 always; SHA-512 too
-// when there is a core:sha512 to check).
+// when there is a core:sha512 to check); with more than one CPU the hashing
+// runs on a goroutine of its own, one block behind, so that it overlaps the
+// caller's work on the block. Close the Reader to stop that goroutine.
 type Reader struct {
 	src     io.Reader
 	closer  io.Closer
 	name    string
 	format  Format
 	raw     []byte
+	bufs    [2][]byte
+	cur     int
+	hashReq chan []byte
+	hashAck chan struct{}
+	pending bool
+	async   bool
+	closed  bool
 	blk     []complex64
 	next    int64
 	left    int64 // samples still expected; <0 when unknown
@@ -266,8 +276,54 @@ func NewReader(src io.Reader, name string, f Format, blockSamples int, total int
 	if blockSamples < 1 {
 		panic("ingest: block size must be positive")
 	}
-	return &Reader{src: src, name: name, format: f, raw: make([]byte, blockSamples*f.SampleBytes()),
-		blk: make([]complex64, blockSamples), left: total, sha256: sha256.New()}
+	r := &Reader{src: src, name: name, format: f, blk: make([]complex64, blockSamples), left: total, sha256: sha256.New()}
+	r.bufs[0] = make([]byte, blockSamples*f.SampleBytes())
+	r.raw = r.bufs[0]
+	r.async = runtime.GOMAXPROCS(0) > 1
+	return r
+}
+
+// hasher hashes the blocks sent to it, in order, acknowledging each.
+func hasher(req <-chan []byte, ack chan<- struct{}, h256, h512 hash.Hash) {
+	for b := range req {
+		h256.Write(b)
+		if h512 != nil {
+			h512.Write(b)
+		}
+		ack <- struct{}{}
+	}
+}
+
+// hash hashes raw, on the hasher goroutine if there is one (waiting for the
+// previous block's hash first, so that at most one is in flight and the
+// buffer it uses is not refilled under it).
+func (r *Reader) hash(raw []byte) {
+	if r.async && r.hashReq == nil && !r.closed {
+		// Started on the first block, when the hashes are all set up.
+		r.bufs[1] = make([]byte, len(r.bufs[0]))
+		r.hashReq, r.hashAck = make(chan []byte, 1), make(chan struct{}, 1)
+		go hasher(r.hashReq, r.hashAck, r.sha256, r.sha512)
+	}
+	if r.hashReq == nil {
+		r.sha256.Write(raw)
+		if r.sha512 != nil {
+			r.sha512.Write(raw)
+		}
+		return
+	}
+	r.waitHash()
+	r.hashReq <- raw
+	r.pending = true
+	r.cur ^= 1
+	r.raw = r.bufs[r.cur]
+}
+
+// waitHash waits for the block being hashed, if any.
+func (r *Reader) waitHash() {
+	if r.pending {
+		<-r.hashAck
+		r.pending = false
+	}
 }
 
 // NewReader opens the capture's data for streaming in blocks of
@@ -318,12 +374,9 @@ func (r *Reader) Next() (Block, error) {
 		return Block{}, captureErr(r.name, "read error at byte offset %d: %w", r.next*int64(sb), err)
 	}
 	raw := r.raw[:want*sb]
-	r.sha256.Write(raw)
-	if r.sha512 != nil {
-		r.sha512.Write(raw)
-	}
 	samples := r.blk[:want]
 	clipped, bad := r.format.Decode(samples, raw)
+	r.hash(raw)
 	if bad > 0 {
 		return Block{}, captureErr(r.name, "sample %d is NaN or infinite (%d such samples in this block)", r.next+int64(firstZeroedNaN(raw, r.format)), bad)
 	}
@@ -358,6 +411,7 @@ func (r *Reader) finish() error {
 	if n, _ := r.src.Read(one[:]); n > 0 {
 		return captureErr(r.name, "data continues past the %d samples it held when opened (still being written?)", r.next)
 	}
+	r.waitHash()
 	if r.sha512 != nil {
 		if got := hex.EncodeToString(r.sha512.Sum(nil)); got != r.want512 {
 			return captureErr(r.name, "SHA-512 of the data is %s…, core:sha512 says %s… (data altered or incomplete)", got[:16], r.want512[:min(16, len(r.want512))])
@@ -368,10 +422,20 @@ func (r *Reader) finish() error {
 
 // SHA256 is the lowercase hex SHA-256 of the bytes read so far; after
 // io.EOF, of the whole data file.
-func (r *Reader) SHA256() string { return hex.EncodeToString(r.sha256.Sum(nil)) }
+func (r *Reader) SHA256() string {
+	r.waitHash()
+	return hex.EncodeToString(r.sha256.Sum(nil))
+}
 
-// Close closes the underlying file, if the Reader opened it.
+// Close stops the hashing goroutine and closes the underlying file, if the
+// Reader opened it.
 func (r *Reader) Close() error {
+	r.closed = true
+	if r.hashReq != nil {
+		r.waitHash()
+		close(r.hashReq)
+		r.hashReq = nil
+	}
 	if r.closer != nil {
 		return r.closer.Close()
 	}
