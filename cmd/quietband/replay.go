@@ -155,7 +155,15 @@ func replay(ctx context.Context, o replayOptions) (*replaySummary, error) {
 		}
 	}
 	pipe := detect.NewPipeline(detect.Config{}, state)
-	measured := measureAhead(ctx, jobs, pipe, max(o.workers, 1))
+	// With one worker the satellites are measured inside the spectral
+	// pass (one read of each capture); with more, ahead of it on their own
+	// reads. Both feed the meter the same blocks: the records are the same.
+	var measured []chan measured
+	if o.workers > 1 {
+		measured = measureAhead(ctx, jobs, pipe, o.workers)
+	} else {
+		pipe.GNSS = &detect.GNSSMeter{}
+	}
 
 	logPath := o.logPath
 	if logPath == "" && o.json {
@@ -191,11 +199,15 @@ func replay(ctx context.Context, o replayOptions) (*replaySummary, error) {
 			fmt.Fprintf(o.errOut, "quietband replay: quarantined %s: %v\n", j.name, j.problem)
 			items = append(items, eventlog.Item{Kind: "capture", Body: quarantined(j.name, j.problem)})
 		} else {
-			sat := <-measured[i]
 			var res *detect.Result
-			err := sat.err
-			if err == nil {
-				res, err = pipe.ProcessMeasured(ctx, j.capture, j.name, &sat.result)
+			var err error
+			if measured != nil {
+				sat := <-measured[i]
+				if err = sat.err; err == nil {
+					res, err = pipe.ProcessMeasured(ctx, j.capture, j.name, &sat.result)
+				}
+			} else {
+				res, err = pipe.Process(ctx, j.capture, j.name)
 			}
 			if err != nil {
 				sum.bad++
