@@ -149,15 +149,7 @@ func benchBlock(b *testing.B, fs float64, em ...synth.Emitter) *BlockInput {
 	st := learnedState(t, fs, "ci16_le", 0.05)
 	s := baseScenario(fs, "ci16_le", 0.05)
 	s.Captures[0].Emitters = em
-	dir := b.TempDir()
-	truths, err := synth.Write(&s, dir)
-	if err != nil {
-		b.Fatal(err)
-	}
-	c, err := ingest.Open(filepath.Join(dir, truths[0].Capture), ingest.RawSettings{})
-	if err != nil {
-		b.Fatal(err)
-	}
+	c := writeOne(b, s)
 	cfg := Config{}.Defaults(fs)
 	r, err := c.NewReader(cfg.FFTSize * cfg.Frames)
 	if err != nil {
@@ -220,15 +212,7 @@ func BenchmarkBank(b *testing.B) {
 				if jam {
 					s.Captures[0].Emitters = []synth.Emitter{{Kind: synth.KindSwept, JNDB: 10, LowHz: -0.3 * fs, HighHz: 0.3 * fs, PeriodS: 12e-6}}
 				}
-				dir := b.TempDir()
-				truths, err := synth.Write(&s, dir)
-				if err != nil {
-					b.Fatal(err)
-				}
-				c, err := ingest.Open(filepath.Join(dir, truths[0].Capture), ingest.RawSettings{})
-				if err != nil {
-					b.Fatal(err)
-				}
+				c := writeOne(b, s)
 				p := NewPipeline(Config{}, st)
 				b.ReportAllocs()
 				for b.Loop() {
@@ -272,4 +256,19 @@ func BenchmarkBlock(b *testing.B) {
 			b.ReportMetric(float64(len(in.Samples))*float64(b.N)/b.Elapsed().Seconds()/1e6, "MS/s")
 		})
 	}
+}
+
+// writeOne synthesizes the scenario's first capture and opens it.
+func writeOne(tb testing.TB, s synth.Scenario) *ingest.Capture {
+	tb.Helper()
+	dir := tb.TempDir()
+	truths, err := synth.Write(&s, dir)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	c, err := ingest.Open(filepath.Join(dir, truths[0].Capture), ingest.RawSettings{})
+	if err != nil {
+		tb.Fatal(err)
+	}
+	return c
 }
