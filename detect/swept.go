@@ -34,6 +34,7 @@ import (
 type Swept struct {
 	plan    *fft.Plan
 	buf     []complex64
+	last    SweepParams // the sweep measured in the previous block
 	lag     []float64
 	acc     []float64
 	win     []float32
@@ -58,8 +59,25 @@ func (d *Swept) Detect(in *BlockInput, out []Finding) []Finding {
 	if f.Frames == 0 || len(in.Samples) < 4*f.N {
 		return out
 	}
-	period, ok := d.periodicity(in)
-	if !ok {
+	period, found := d.periodicity(in)
+	if !found {
+		d.last = SweepParams{}
+		return out
+	}
+	// A sweep measured in the last block at this period is most likely
+	// the same one: one fine fold around its refined period costs a
+	// fraction of the search. (The check against this block's own
+	// estimate keeps a poor fit from a block the sweep only partly filled
+	// from being carried on.)
+	var sw SweepParams
+	var ok bool
+	if d.last.PeriodS > 0 && math.Abs(period-d.last.PeriodS) < 0.02*d.last.PeriodS {
+		sw, ok = d.foldNear(in.Samples, f.Fs, d.last.PeriodS)
+	} else {
+		sw, ok = d.fold(in.Samples, f.Fs, period)
+	}
+	if !ok || sw.Coherent < minSweepCoherence {
+		d.last = SweepParams{}
 		return out
 	}
 	// Occupied span and constant envelope.
@@ -74,12 +92,10 @@ func (d *Swept) Detect(in *BlockInput, out []Finding) []Finding {
 		}
 	}
 	if lo < 0 || nb < f.N/20 {
+		d.last = SweepParams{}
 		return out // a few tones, not a sweep
 	}
-	sw, ok := d.fold(in.Samples, f.Fs, period)
-	if !ok || sw.Coherent < minSweepCoherence {
-		return out
-	}
+	d.last = sw
 	// J/N against the thermal floor: what stands above the (possibly
 	// raised) floor plus the part of the rise inside the span.
 	thermal := in.NoisePower / in.Rise
@@ -106,7 +122,7 @@ func (d *Swept) periodicity(in *BlockInput) (float64, bool) {
 	f := in.F
 	n := f.N
 	x := in.Samples
-	if f.Power <= 0 || f.Moment4/(f.Power*f.Power) > 2-12/math.Sqrt(float64(len(x))) {
+	if !constantEnvelope(f, len(x)) {
 		return 0, false
 	}
 	if d.plan == nil || d.plan.Len() != n {
@@ -215,9 +231,29 @@ func hannLagWeights(n int) []float64 {
 	return c
 }
 
+// constantEnvelope reports whether the block's kurtosis ratio
+// E|x|⁴/(E|x|²)² lies below the Gaussian 2 by more than six standard
+// deviations (2/√K for K samples).
+func constantEnvelope(f *Features, k int) bool {
+	return f.Power > 0 && f.Moment4/(f.Power*f.Power) < 2-12/math.Sqrt(float64(k))
+}
+
+// foldNear folds the block around a known period only, at the finest
+// step of the full search.
+func (d *Swept) foldNear(x []complex64, fs, period float64) (SweepParams, bool) {
+	return d.foldFrom(x, fs, period, len(x), period*float64(period*fs)/(8*float64(len(x))), 3)
+}
+
 // fold refines the period and measures the sweep from the folded lag
 // product.
 func (d *Swept) fold(x []complex64, fs, period float64) (SweepParams, bool) {
+	return d.foldFrom(x, fs, period, int(math.Round(period*fs))*8, 0.01*period, 6)
+}
+
+// foldFrom searches the period from span samples, ±half steps of step,
+// folding four times as many samples with a step four times finer at each
+// level until the whole block is folded, and measures the sweep.
+func (d *Swept) foldFrom(x []complex64, fs, period float64, span int, step float64, half int) (SweepParams, bool) {
 	bins := int(math.Round(period * fs))
 	if bins < 6 || len(x) < 2 {
 		return SweepParams{}, false
@@ -240,21 +276,23 @@ func (d *Swept) fold(x []complex64, fs, period float64) (SweepParams, bool) {
 		a, b := x[i], x[i-1]
 		p := a * complex(real(b), -imag(b))
 		lp[i] = p
-		mag[i+1] = mag[i] + math.Hypot(float64(real(p)), float64(imag(p)))
+		mag[i+1] = mag[i] + math.Sqrt(float64(real(p)*real(p)+imag(p)*imag(p)))
 	}
 	// Coarse-to-fine search of T. Folding P periods with a period error δ
 	// shifts the last ones by P·δ; the lag product changes little over an
 	// eighth of a period, so a level folding P periods resolves δ ≈ T/(8P).
 	// Start from 8 periods and ±6 % (the autocorrelation's accuracy), then
 	// fold four times as many periods with a step four times finer.
-	span := min(len(x), 8*bins)
-	step := 0.01 * period
-	half := 6
+	span = min(len(x), span)
 	for {
+		// Fold the span where the sweep is strongest: in a block it only
+		// partly fills, the start of the block may hold none of it.
+		at := strongestSpan(mag, span)
+		seg, tot := lp[at:at+span], mag[at+span]-mag[at]
 		best, bestI := -1.0, 0
 		var cs [13]float64
 		for i := -half; i <= half; i++ {
-			cs[i+6] = coherence(z, lp[:span], mag[span], fs, period+float64(i)*step)
+			cs[i+6] = coherence(z, seg, tot, fs, period+float64(i)*step)
 			if cs[i+6] > best {
 				best, bestI = cs[i+6], i
 			}
@@ -283,6 +321,24 @@ func (d *Swept) fold(x []complex64, fs, period float64) (SweepParams, bool) {
 	sw, ok := sweepFromProfile(prof, period)
 	sw.Coherent = coh
 	return sw, ok
+}
+
+// strongestSpan returns the start of the span-sample window with the
+// largest Σ|z|, from the running sums mag (mag[i] = Σ_{n<i} |z[n]|),
+// searched in steps of a quarter span.
+func strongestSpan(mag []float64, span int) int {
+	n := len(mag) - 1
+	best, at := -1.0, 0
+	step := max(span/4, 1)
+	for s := 0; s+span <= n; s += step {
+		if e := mag[s+span] - mag[s]; e > best {
+			best, at = e, s
+		}
+	}
+	if e := mag[n] - mag[n-span]; e > best {
+		at = n - span
+	}
+	return at
 }
 
 // coherence folds the lag products lp modulo period t into len(z) phase
