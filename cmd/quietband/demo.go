@@ -23,6 +23,7 @@ jammer, an amplifier spur, a pulsed emitter and a noise jammer) into a
 folder, replays it exactly as 'quietband replay' would, prints the events
 and says where the captures and the event log are. Nothing is transmitted.`, errOut)
 	dir := fs.String("out", "", "folder for the captures and the log (default: a new temporary folder)")
+	reportDir := fs.String("report", "", "also write the analyst's report (index.html and pictures of every capture) into this folder")
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
@@ -45,7 +46,7 @@ and says where the captures and the event log are. Nothing is transmitted.`, err
 	}
 	logPath := filepath.Join(*dir, "events.jsonl")
 	sum, err := replay(context.Background(), replayOptions{paths: []string{capDir}, raw: ingest.RawSettings{},
-		logPath: logPath, out: out, errOut: errOut})
+		logPath: logPath, out: out, errOut: errOut, reportDir: *reportDir, reportAll: *reportDir != ""})
 	if err != nil {
 		return err
 	}

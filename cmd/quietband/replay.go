@@ -33,6 +33,11 @@ type replayOptions struct {
 	workers  int
 	out      io.Writer
 	errOut   io.Writer
+	// analysts' outputs (report.go)
+	reportDir         string
+	reportAll         bool
+	annotate, inPlace bool
+	csvPath           string
 }
 
 // replaySummary is what a replay found, for the closing lines and for demo.
@@ -60,6 +65,11 @@ as quarantined, and replay goes on; the exit status is 1 if any was bad.`, errOu
 	baseline := fs.String("baseline", "", "baseline file: loaded if it exists, saved at the end")
 	quiet := fs.Bool("quiet", false, "no progress line on the terminal")
 	workers := fs.Int("workers", runtime.NumCPU(), "captures whose satellites are measured at once (the spectral pass and the log stay in time order; output does not depend on this)")
+	reportDir := fs.String("report", "", "write the analyst's report into this folder: index.html with PNG pictures beside it")
+	reportAll := fs.Bool("report-all", false, "with --report: draw every capture, not only those with events")
+	annotate := fs.Bool("annotate", false, "write each event as a SigMF annotation into a copy of its capture's metadata, --report folder/annotations/NAME.sigmf-meta (raw captures get none)")
+	inPlace := fs.Bool("in-place", false, "with --annotate: rewrite the captures' own .sigmf-meta instead, atomically (earlier quietband annotations are replaced, everything else is kept)")
+	csvPath := fs.String("csv", "", "write the events to this CSV file, one row per event (columns: see the report package documentation)")
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
@@ -72,7 +82,8 @@ as quarantined, and replay goes on; the exit status is 1 if any was bad.`, errOu
 		return err
 	}
 	sum, err := replay(context.Background(), replayOptions{paths: fs.Args(), raw: settings, logPath: *logPath,
-		json: *asJSON, baseline: *baseline, progress: !*quiet && isTerminal(os.Stderr), workers: *workers, out: out, errOut: errOut})
+		json: *asJSON, baseline: *baseline, progress: !*quiet && isTerminal(os.Stderr), workers: *workers, out: out, errOut: errOut,
+		reportDir: *reportDir, reportAll: *reportAll, annotate: *annotate, inPlace: *inPlace, csvPath: *csvPath})
 	if err != nil {
 		return err
 	}
@@ -141,6 +152,10 @@ func replay(ctx context.Context, o replayOptions) (*replaySummary, error) {
 	if err != nil {
 		return nil, err
 	}
+	aout, err := newAnalystOut(o, "replay", strings.Join(o.paths, " "))
+	if err != nil {
+		return nil, err
+	}
 	state := detect.NewState()
 	if o.baseline != "" {
 		if f, err := os.Open(o.baseline); err == nil {
@@ -201,6 +216,7 @@ func replay(ctx context.Context, o replayOptions) (*replaySummary, error) {
 		} else {
 			var res *detect.Result
 			var err error
+			pipe.Observer = aout.observer()
 			if measured != nil {
 				sat := <-measured[i]
 				if err = sat.err; err == nil {
@@ -229,6 +245,12 @@ func replay(ctx context.Context, o replayOptions) (*replaySummary, error) {
 				return nil, err
 			}
 		}
+		if err := aout.done(j, items); err != nil {
+			return nil, err
+		}
+	}
+	if err := aout.close(); err != nil {
+		return nil, err
 	}
 	sum.busy = time.Since(t0)
 	if o.progress && len(jobs) > 0 {
