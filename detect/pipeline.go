@@ -245,7 +245,7 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 		for _, s := range stats.Satellites {
 			cn0[s.PRN] = s.CN0DBHz
 		}
-		mean := strongestMean(stats.Satellites, 4)
+		mean := StrongestMean(stats.Satellites, 4)
 		p.state.Baselines.update(key, func(b *Baseline) {
 			b.learnCN0(cn0, mean, cfg.BaselineWarmup, cfg.BaselineWeight)
 		})

@@ -121,8 +121,10 @@ func (m *GNSSMeter) Result() []Satellite {
 	return out
 }
 
-// strongestMean is the mean C/N0 (dB-Hz) of the n strongest satellites.
-func strongestMean(sats []Satellite, n int) float64 {
+// StrongestMean is the mean C/N0 (dB-Hz, a mean of the dB values) of the
+// n strongest satellites, NaN when there are none: the figure the site's
+// C/N0 baseline keeps and reports plot.
+func StrongestMean(sats []Satellite, n int) float64 {
 	v := make([]float64, 0, len(sats))
 	for _, s := range sats {
 		v = append(v, s.CN0DBHz)

@@ -5,7 +5,6 @@ import (
 	"image/color"
 	"io"
 	"math"
-	"sort"
 	"time"
 
 	"gonum.org/v1/plot"
@@ -16,27 +15,10 @@ import (
 	"quietband/detect"
 )
 
-// StrongestCN0 is the mean C/N0 (dB-Hz, a mean of the dB values) of the n
-// strongest satellites, NaN when there are none: the quantity the
-// pipeline tracks against the site's C/N0 baseline.
-func StrongestCN0(sats []detect.Satellite, n int) float64 {
-	v := make([]float64, 0, len(sats))
-	for _, s := range sats {
-		v = append(v, s.CN0DBHz)
-	}
-	sort.Sort(sort.Reverse(sort.Float64Slice(v)))
-	if len(v) > n {
-		v = v[:n]
-	}
-	if len(v) == 0 {
-		return math.NaN()
-	}
-	var s float64
-	for _, x := range v {
-		s += x
-	}
-	return s / float64(len(v))
-}
+// StrongestCN0 is detect.StrongestMean: the mean C/N0 of the n strongest
+// satellites, the quantity the pipeline tracks against the site's C/N0
+// baseline.
+func StrongestCN0(sats []detect.Satellite, n int) float64 { return detect.StrongestMean(sats, n) }
 
 // timeline is what the site timeline needs of every capture: a few
 // numbers each, however many captures there are.
