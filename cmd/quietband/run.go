@@ -1,0 +1,952 @@
+package main
+
+import (
+	"bytes"
+	"context"
+	"crypto/sha256"
+	"encoding/hex"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"log/slog"
+	"os"
+	"os/signal"
+	"path/filepath"
+	"slices"
+	"strings"
+	"sync/atomic"
+	"syscall"
+	"time"
+
+	"quietband/detect"
+	"quietband/ingest"
+	"quietband/metrics"
+	"quietband/metrics/eventlog"
+)
+
+func init() {
+	register("run", "the monitoring daemon: watch folders, analyse each capture, log events, serve metrics", runRun)
+}
+
+// Timings of the daemon's housekeeping.
+const (
+	appendRetry    = 2 * time.Second  // first wait before reopening a failed event log
+	baselineEvery  = 10 * time.Second // most frequent baseline save
+	anchorEvery    = time.Hour        // log the event log's head this often
+	retentionEvery = time.Hour        // retention sweep
+	shutdownGrace  = 5 * time.Second  // time the capture in hand gets on SIGTERM
+)
+
+// stringList is a repeatable string flag.
+type stringList []string
+
+func (s *stringList) String() string     { return strings.Join(*s, ",") }
+func (s *stringList) Set(v string) error { *s = append(*s, v); return nil }
+
+func runRun(args []string, out, errOut io.Writer) error {
+	fs := newFlags("run", "", `
+Runs the monitoring daemon. It watches the configured folders (recursively)
+for IQ captures, analyses each complete capture once, in time order, with the
+same detectors as 'quietband replay', appends the events and a capture record
+to the event log (one fsynced write per capture), and serves Prometheus
+metrics, /healthz, /readyz and /api/events.
+
+A capture is complete when it was closed after writing, renamed into place,
+or left unchanged for the input's settle time; a SigMF pair when both files
+are (the metadata last). Captures already recorded in the event log are not
+analysed again; after a crash, those without a capture record are. A capture
+that cannot be read is recorded as quarantined with the reason.
+
+Settings come from --config (YAML, see deploy/config.example.yaml); the flags
+below override it. SIGHUP reopens the event log and reloads the log level and
+the detection settings; SIGTERM or SIGINT stops after the capture in hand (or
+abandons it after a few seconds; it is analysed again on the next start).`, errOut)
+	configPath := fs.String("config", "", "YAML configuration file (default: none, built-in defaults)")
+	var watch stringList
+	fs.Var(&watch, "watch", "folder to watch, repeatable; replaces the configured inputs (raw files take --format, --rate, --center)")
+	raw := addRawFlags(fs)
+	logPath := fs.String("log", "", "event log file (default: state_dir/"+eventLogFileName+")")
+	state := fs.String("state", "", "state folder: baseline, default event log location (default "+defaultStateDir+")")
+	listen := fs.String("listen", "", "address of the HTTP endpoints (default "+metrics.DefaultListen+"; loopback only unless set)")
+	webCfg := fs.String("web.config.file", "", "exporter-toolkit web configuration file for TLS and basic auth (default: plain HTTP)")
+	level := fs.String("log-level", "", "diagnostic log level: debug, info, warn or error (default info)")
+	if err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	if fs.NArg() > 0 {
+		fmt.Fprintf(errOut, "quietband run: unexpected arguments %q\n", fs.Args())
+		return errUsage
+	}
+	rs, err := raw.settings()
+	if err != nil {
+		return err
+	}
+	over := runOverrides{watch: watch, raw: rs, log: *logPath, state: *state, listen: *listen, webCfg: *webCfg, logLevel: *level}
+	cfg, err := loadRunConfig(*configPath, over)
+	if err != nil {
+		return err
+	}
+	d, err := newDaemon(cfg, *configPath, over, errOut)
+	if err != nil {
+		return err
+	}
+
+	sigs := make(chan os.Signal, 4)
+	signal.Notify(sigs, syscall.SIGHUP, syscall.SIGTERM, syscall.SIGINT)
+	defer signal.Stop(sigs)
+	ctx, stop := context.WithCancel(context.Background())
+	defer stop()
+	hup := make(chan struct{}, 1)
+	done := make(chan struct{})
+	defer close(done)
+	go func() {
+		stops := 0
+		for {
+			select {
+			case <-done:
+				return
+			case s := <-sigs:
+				if s == syscall.SIGHUP {
+					select {
+					case hup <- struct{}{}:
+					default:
+					}
+					continue
+				}
+				stops++
+				d.log.Info("quietband run: stopping", "signal", s.String())
+				if stops == 1 {
+					stop()
+				} else {
+					d.abandon()
+				}
+			}
+		}
+	}()
+	return d.run(ctx, hup)
+}
+
+// eventLog is what the daemon needs of *eventlog.Log.
+type eventLog interface {
+	AppendBatch([]eventlog.Item) ([]eventlog.Record, error)
+	Reopen() error
+	Err() error
+	LastSeq() uint64
+	Head() string
+	Path() string
+	Close() error
+}
+
+// daemon is one run of `quietband run`.
+type daemon struct {
+	cfg     *runConfig
+	cfgPath string
+	over    runOverrides
+	log     *slog.Logger
+	level   *slog.LevelVar
+	elog    eventLog
+	ledger  *ledger
+	state   *detect.State
+	pipe    *detect.Pipeline
+	set     *metrics.Set
+	recent  *metrics.Recent
+	watcher *ingest.Watcher
+	server  *metrics.Server
+	inputs  map[string]inputConfig
+
+	retry        time.Duration // appendRetry; shorter in tests
+	grace        time.Duration
+	sweepEvery   time.Duration // retentionEvery; shorter in tests
+	procCtx      context.Context
+	baseDirty    bool
+	baseSaved    time.Time
+	behind       atomic.Bool
+	abandonProc  context.CancelFunc
+	lastAnchor   time.Time
+	lastSweep    time.Time
+	lastFailLog  time.Time
+	processed    atomic.Int64 // captures recorded by this run
+	appendFailed atomic.Bool
+}
+
+// newDaemon opens the event log, rebuilds the ledger from it, loads the
+// baseline and sets up the watcher, metrics and HTTP server.
+func newDaemon(cfg *runConfig, cfgPath string, over runOverrides, logOut io.Writer) (*daemon, error) {
+	lv, _ := parseLevel(cfg.LogLevel)
+	base, err := newLogger(logOut, slog.LevelDebug.String(), cfg.LogFormat == "json")
+	if err != nil {
+		return nil, err
+	}
+	level := new(slog.LevelVar)
+	level.Set(lv)
+	log := slog.New(levelHandler{base.Handler(), level})
+	d := &daemon{cfg: cfg, cfgPath: cfgPath, over: over, log: log, level: level, retry: appendRetry,
+		grace: shutdownGrace, sweepEvery: retentionEvery, inputs: map[string]inputConfig{}}
+	// The capture in hand runs under procCtx: a stop signal cancels it
+	// after the grace time, a second one at once (abandon).
+	d.procCtx, d.abandonProc = context.WithCancel(context.Background())
+
+	if err := os.MkdirAll(cfg.StateDir, 0o750); err != nil {
+		return nil, fmt.Errorf("state_dir: %w", err)
+	}
+	if err := os.MkdirAll(filepath.Dir(cfg.Log.Path), 0o750); err != nil {
+		return nil, fmt.Errorf("log.path: %w", err)
+	}
+	l, err := eventlog.Open(cfg.Log.Path, eventlog.Options{MaxBytes: cfg.Log.MaxBytes, Logger: log})
+	if err != nil {
+		return nil, err
+	}
+	d.elog = l
+	d.recent = metrics.NewRecent(metrics.DefaultRecent)
+	t0 := time.Now()
+	d.ledger, err = scanLedger(cfg.Log.Path, d.recent)
+	if err != nil {
+		l.Close()
+		return nil, fmt.Errorf("reading the event log to find captures already done: %w", err)
+	}
+	log.Info("quietband run: event log read", "file", cfg.Log.Path, "records", l.LastSeq(), "captures_done", d.ledger.captures(),
+		"head", l.Head(), "took", time.Since(t0).Round(time.Millisecond))
+	d.state = detect.NewState()
+	d.loadBaseline()
+	d.pipe = d.newPipeline(cfg)
+
+	var names []string
+	var watch []ingest.WatchInput
+	for _, in := range cfg.Inputs {
+		if _, err := os.Stat(in.Path); errors.Is(err, os.ErrNotExist) {
+			log.Warn("quietband run: watched folder missing; creating it", "input", in.Name, "path", in.Path)
+			if err := os.MkdirAll(in.Path, 0o755); err != nil {
+				l.Close()
+				return nil, fmt.Errorf("input %s: %w", in.Name, err)
+			}
+		}
+		d.inputs[in.Name] = in
+		names = append(names, in.Name)
+		watch = append(watch, ingest.WatchInput{Name: in.Name, Root: in.Path, Raw: in.rawSettings(), Settle: in.Settle})
+	}
+	d.watcher, err = ingest.NewWatcher(ingest.WatchConfig{Inputs: watch, RescanInterval: cfg.RescanInterval,
+		QueueSize: cfg.QueueSize, Notify: cfg.notify(), Logger: log})
+	if err != nil {
+		l.Close()
+		return nil, err
+	}
+	d.set = metrics.New(metrics.Options{Inputs: names, GoCollector: cfg.Metrics.GoCollector, Sources: metrics.Sources{
+		QueueDepth:      func() int { return d.watcher.Stats().Backlog },
+		EventLogLastSeq: d.elog.LastSeq,
+		WatchRescans:    func() uint64 { return d.watcher.Stats().Rescans },
+		WatchOverflows:  func() uint64 { return d.watcher.Stats().Overflows },
+	}})
+	d.server, err = metrics.NewServer(metrics.ServerOptions{Listen: cfg.Listen, WebConfigFile: cfg.WebConfigFile,
+		Gatherer: d.set.Registry(), Ready: d.notReady, Recent: d.recent, Logger: log.With("component", "http")})
+	if err != nil {
+		l.Close()
+		return nil, err
+	}
+	return d, nil
+}
+
+// newPipeline makes the detection pipeline for cfg, with the GNSS meter
+// when satellites are measured, on the daemon's shared state.
+func (d *daemon) newPipeline(cfg *runConfig) *detect.Pipeline {
+	p := detect.NewPipeline(cfg.Detect, d.state)
+	if *cfg.Satellites {
+		p.GNSS = &detect.GNSSMeter{}
+	}
+	return p
+}
+
+// levelHandler filters records by a level that can change at run time.
+type levelHandler struct {
+	slog.Handler
+	level *slog.LevelVar
+}
+
+func (h levelHandler) Enabled(_ context.Context, l slog.Level) bool { return l >= h.level.Level() }
+func (h levelHandler) WithAttrs(a []slog.Attr) slog.Handler {
+	return levelHandler{h.Handler.WithAttrs(a), h.level}
+}
+func (h levelHandler) WithGroup(n string) slog.Handler {
+	return levelHandler{h.Handler.WithGroup(n), h.level}
+}
+
+// notReady lists why the daemon is not ready: watcher not running, event
+// log not writable, analysis falling behind.
+func (d *daemon) notReady() []string {
+	var why []string
+	if !d.watcher.Running() {
+		why = append(why, "folder watcher not running")
+	}
+	if err := d.elog.Err(); err != nil {
+		why = append(why, "event log not writable: "+err.Error())
+	} else if d.appendFailed.Load() {
+		why = append(why, "event log append failing; retrying")
+	}
+	if d.behind.Load() {
+		why = append(why, fmt.Sprintf("falling behind: captures wait longer than %v for analysis", d.cfg.FallingBehindAfter))
+	}
+	return why
+}
+
+// abandon cancels the capture in hand at once (second stop signal).
+func (d *daemon) abandon() { d.abandonProc() }
+
+// run serves until ctx is done, then stops cleanly.
+func (d *daemon) run(ctx context.Context, hup <-chan struct{}) error {
+	procCtx, cancelProc := d.procCtx, d.abandonProc
+	defer cancelProc()
+	stopGrace := context.AfterFunc(ctx, func() { time.AfterFunc(d.grace, cancelProc) })
+	defer stopGrace()
+
+	wctx, stopWatcher := context.WithCancel(context.Background())
+	watchDone := make(chan error, 1)
+	go func() { watchDone <- d.watcher.Run(wctx) }()
+	serveDone := make(chan error, 1)
+	go func() { serveDone <- d.server.Serve() }()
+	var ins []string
+	for _, in := range d.cfg.Inputs {
+		ins = append(ins, in.Name+"="+in.Path)
+	}
+	d.log.Info("quietband run: started", "inputs", strings.Join(ins, " "), "log", d.cfg.Log.Path,
+		"listen", d.server.Addr().String(), "last_seq", d.elog.LastSeq())
+	d.lastAnchor = time.Now()
+
+	tick := time.NewTicker(time.Second)
+	defer tick.Stop()
+	var err error
+loop:
+	for {
+		select {
+		case <-ctx.Done():
+			break loop
+		case <-hup:
+			d.reload()
+		case w := <-d.watcher.Work():
+			if e := d.handle(procCtx, w); e != nil {
+				if procCtx.Err() != nil {
+					break loop
+				}
+				err = e
+				break loop
+			}
+		case e := <-serveDone:
+			err = fmt.Errorf("HTTP server: %w", e)
+			break loop
+		case <-tick.C:
+			d.housekeeping(time.Now())
+		}
+	}
+	stopWatcher()
+	if e := <-watchDone; e != nil && err == nil {
+		err = e
+	}
+	sctx, cancel := context.WithTimeout(context.Background(), 2*time.Second)
+	d.server.Shutdown(sctx)
+	cancel()
+	d.saveBaseline()
+	if e := d.elog.Close(); e != nil && err == nil {
+		err = e
+	}
+	d.log.Info("quietband run: stopped", "captures_recorded", d.processed.Load(), "last_seq", d.elog.LastSeq(), "head", d.elog.Head())
+	return err
+}
+
+// housekeeping runs between captures, about once a second.
+func (d *daemon) housekeeping(now time.Time) {
+	d.set.SetWatcherRunning(d.watcher.Running())
+	d.set.SetEventLogWritable(d.elog.Err() == nil && !d.appendFailed.Load())
+	if d.watcher.Stats().Backlog == 0 {
+		d.setBehind(false)
+	}
+	if d.baseDirty && now.Sub(d.baseSaved) >= baselineEvery {
+		d.saveBaseline()
+	}
+	if now.Sub(d.lastAnchor) >= anchorEvery {
+		d.lastAnchor = now
+		d.log.Info("quietband run: event log head", "last_seq", d.elog.LastSeq(), "head", d.elog.Head())
+	}
+	if d.cfg.Retention.Days > 0 && now.Sub(d.lastSweep) >= d.sweepEvery {
+		d.lastSweep = now
+		d.sweep(now)
+	}
+}
+
+func (d *daemon) setBehind(b bool) {
+	if d.behind.Swap(b) != b {
+		if b {
+			d.log.Warn("quietband run: falling behind: captures wait longer than the limit for analysis",
+				"limit", d.cfg.FallingBehindAfter, "backlog", d.watcher.Stats().Backlog)
+		} else {
+			d.log.Info("quietband run: caught up")
+		}
+	}
+	d.set.SetFallingBehind(b)
+}
+
+// handle analyses one capture and records it. It returns an error only
+// when the capture was abandoned (procCtx done) or the daemon cannot go on.
+func (d *daemon) handle(ctx context.Context, w ingest.Work) error {
+	d.setBehind(time.Since(w.Ready) > d.cfg.FallingBehindAfter)
+	name := w.Name
+	sha, hashed := "", false
+	prevReason, retrying := "", false
+	if shas, ok := d.ledger.done[name]; ok {
+		sha, hashed = hashFile(w.DataPath), true
+		if reason, ok := shas[sha]; ok {
+			if reason == "" {
+				d.log.Debug("quietband run: already analysed", "capture", name, "input", w.Input)
+				return nil
+			}
+			prevReason, retrying = reason, true
+		}
+	}
+
+	var res *detect.Result
+	rec := detect.CaptureRecord{}
+	if w.Problem != nil {
+		rec = quarantined(name, w.Problem)
+	} else {
+		r, err := d.pipe.Process(ctx, w.Capture, name)
+		switch {
+		case ctx.Err() != nil:
+			d.log.Info("quietband run: capture abandoned; it is analysed again on the next start", "capture", name)
+			return ctx.Err()
+		case err != nil:
+			rec = quarantined(name, err)
+		default:
+			res, rec = r, r.Record
+		}
+	}
+	if rec.Status == detect.StatusQuarantined {
+		if !hashed {
+			sha = hashFile(w.DataPath)
+		}
+		rec.SHA256 = sha
+		if retrying && rec.Error == prevReason {
+			d.log.Debug("quietband run: still quarantined for the recorded reason", "capture", name)
+			return nil
+		}
+	}
+
+	var items []eventlog.Item
+	var events []detect.Event
+	if res != nil {
+		events = res.Events
+		for _, e := range res.Events {
+			if _, dup := d.ledger.events[e.ID]; dup {
+				d.log.Info("quietband run: event already in the log (capture redone after a restart)", "capture", name, "id", e.ID)
+				continue
+			}
+			items = append(items, eventlog.Item{Kind: eventlog.KindEvent, Body: e})
+		}
+	}
+	items = append(items, eventlog.Item{Kind: eventlog.KindCapture, Body: rec})
+	recs, err := d.commit(ctx, items)
+	if err != nil && ctx.Err() == nil {
+		// The record cannot be encoded (a value JSON has no form for):
+		// record the capture as quarantined with that reason instead.
+		d.log.Error("quietband run: cannot record the analysis; quarantining the capture", "capture", name, "err", err)
+		if rec.SHA256 != "" {
+			sha = rec.SHA256
+		} else if !hashed {
+			sha = hashFile(w.DataPath)
+		}
+		res, events = nil, nil
+		rec = detect.CaptureRecord{Capture: name, SHA256: sha, Status: detect.StatusQuarantined,
+			Error: "analysis could not be recorded: " + err.Error()}
+		recs, err = d.commit(ctx, []eventlog.Item{{Kind: eventlog.KindCapture, Body: rec}})
+	}
+	if err != nil {
+		d.log.Info("quietband run: capture abandoned before it was recorded; it is analysed again on the next start", "capture", name)
+		return err
+	}
+	d.processed.Add(1)
+	d.ledger.note(recs)
+	d.recent.Add(recs...)
+
+	mc := metrics.Capture{Input: w.Input, Record: rec, Events: events, At: time.Now(), Satellites: d.pipe.GNSS != nil}
+	if res != nil {
+		mc.BlockSamples = int64(d.pipe.BlockLen(w.Capture.SampleRate))
+		mc.Bytes = w.Capture.DataBytes
+		mc.Duration = w.Capture.Duration()
+		mc.Elapsed = res.Elapsed
+		if len(events) == 0 {
+			d.baseDirty = true
+		}
+	}
+	d.set.ObserveCapture(mc)
+
+	if rec.Status == detect.StatusQuarantined {
+		d.log.Warn("quietband run: capture quarantined", "capture", name, "input", w.Input, "reason", rec.Error)
+		if d.cfg.QuarantineDir != "" {
+			d.moveAway(w, filepath.Join(d.cfg.QuarantineDir, w.Input), "quarantine")
+		}
+		return nil
+	}
+	classes := make([]string, 0, len(events))
+	for _, e := range events {
+		classes = append(classes, e.Class)
+	}
+	d.log.Info("quietband run: capture analysed", "capture", name, "input", w.Input, "events", len(events),
+		"classes", strings.Join(classes, ","), "took", res.Elapsed.Round(time.Microsecond))
+	return nil
+}
+
+// commit appends a capture's records with one write and one fsync. When
+// the log fails (disk full, I/O error) it keeps the batch, reopens the log
+// after d.retry, doubling the wait up to 16·d.retry, and tries again until
+// it succeeds or ctx is done; records
+// of the batch that reached the log before the failure are not written
+// twice. An error that is not a log failure (the batch cannot be encoded)
+// is returned at once.
+func (d *daemon) commit(ctx context.Context, items []eventlog.Item) ([]eventlog.Record, error) {
+	var landed []eventlog.Record
+	wait := d.retry
+	for {
+		before := d.elog.LastSeq()
+		recs, err := d.elog.AppendBatch(items)
+		if err == nil {
+			if d.appendFailed.Swap(false) {
+				d.log.Info("quietband run: event log writable again; resuming")
+			}
+			d.set.SetEventLogWritable(true)
+			return append(landed, recs...), nil
+		}
+		if !errors.Is(err, eventlog.ErrFailed) && !errors.Is(err, eventlog.ErrClosed) {
+			return nil, err
+		}
+		d.set.EventLogWriteFailed()
+		if !d.appendFailed.Swap(true) || time.Since(d.lastFailLog) >= time.Minute {
+			d.lastFailLog = time.Now()
+			d.log.Error("quietband run: event log append failed; the capture is not marked done, analysis paused, retrying",
+				"err", err, "retry_after", d.retry, "retry_at_most_every", 16*d.retry)
+		}
+		for {
+			select {
+			case <-ctx.Done():
+				return nil, ctx.Err()
+			case <-time.After(wait):
+			}
+			wait = min(2*wait, 16*d.retry)
+			if err := d.elog.Reopen(); err != nil {
+				d.log.Debug("quietband run: reopening the event log failed", "err", err)
+				continue
+			}
+			break
+		}
+		// What of the batch reached the log before the failure?
+		got, err := recordsAfter(d.elog.Path(), before)
+		if err != nil {
+			d.log.Error("quietband run: reading back the event log after a failure", "err", err)
+			continue
+		}
+		landed = append(landed, got...)
+		items = pendingItems(items, got)
+		if len(items) == 0 {
+			d.appendFailed.Store(false)
+			d.set.SetEventLogWritable(d.elog.Err() == nil)
+			return landed, nil
+		}
+	}
+}
+
+// recordsAfter returns the records of the log's active file with seq >
+// after: those a failed batch left behind (a rotation only happens before
+// a batch is written, so they are all in the active file).
+func recordsAfter(path string, after uint64) ([]eventlog.Record, error) {
+	var out []eventlog.Record
+	r := eventlog.NewReader(path)
+	defer r.Close()
+	for {
+		rec, err := r.Next()
+		if errors.Is(err, io.EOF) {
+			return out, nil
+		}
+		if err != nil {
+			return nil, err
+		}
+		if rec.Seq > after {
+			out = append(out, rec)
+		}
+	}
+}
+
+// pendingItems drops from items those found in got: event records by id,
+// and the capture record (then nothing is left, since it comes last).
+func pendingItems(items []eventlog.Item, got []eventlog.Record) []eventlog.Item {
+	ids := map[string]bool{}
+	capture := false
+	for _, rec := range got {
+		var h struct {
+			ID string `json:"id"`
+		}
+		if rec.Decode(&h) == nil && rec.Kind == eventlog.KindEvent {
+			ids[h.ID] = true
+		}
+		if rec.Kind == eventlog.KindCapture {
+			capture = true
+		}
+	}
+	if capture {
+		return nil
+	}
+	var out []eventlog.Item
+	for _, it := range items {
+		if e, ok := it.Body.(detect.Event); ok && ids[e.ID] {
+			continue
+		}
+		out = append(out, it)
+	}
+	return out
+}
+
+// hashFile is the lowercase hex SHA-256 of a file, "" if it cannot be read.
+func hashFile(path string) string {
+	f, err := os.Open(path)
+	if err != nil {
+		return ""
+	}
+	defer f.Close()
+	st, err := f.Stat()
+	if err != nil || !st.Mode().IsRegular() {
+		return ""
+	}
+	h := sha256.New()
+	if _, err := io.Copy(h, f); err != nil {
+		return ""
+	}
+	return hex.EncodeToString(h.Sum(nil))
+}
+
+// ledger is what the event log says is done: captures by name and data
+// SHA-256, and the ids of the events written.
+type ledger struct {
+	// done maps a capture name to the SHA-256 values it was recorded with,
+	// each to "" (analysed) or the reason it was quarantined; the latest
+	// record wins.
+	done   map[string]map[string]string
+	events map[string]struct{}
+}
+
+// scanLedger reads every segment of the log, oldest first.
+func scanLedger(path string, recent *metrics.Recent) (*ledger, error) {
+	lg := &ledger{done: map[string]map[string]string{}, events: map[string]struct{}{}}
+	err := eventlog.Scan(path, func(rec eventlog.Record) error {
+		lg.note([]eventlog.Record{rec})
+		if recent != nil {
+			recent.Add(rec)
+		}
+		return nil
+	})
+	return lg, err
+}
+
+// note adds records to the ledger.
+func (lg *ledger) note(recs []eventlog.Record) {
+	for _, rec := range recs {
+		var body struct {
+			ID      string `json:"id"`
+			Capture string `json:"capture"`
+			SHA256  string `json:"sha256"`
+			Status  string `json:"status"`
+			Error   string `json:"error"`
+		}
+		if err := json.Unmarshal(rec.Line, &body); err != nil {
+			continue
+		}
+		switch rec.Kind {
+		case eventlog.KindEvent:
+			lg.events[body.ID] = struct{}{}
+		case eventlog.KindCapture:
+			m := lg.done[body.Capture]
+			if m == nil {
+				m = map[string]string{}
+				lg.done[body.Capture] = m
+			}
+			reason := ""
+			if body.Status != detect.StatusOK {
+				reason = body.Error
+				if reason == "" {
+					reason = body.Status
+				}
+			}
+			m[body.SHA256] = reason
+		}
+	}
+}
+
+func (lg *ledger) captures() int { return len(lg.done) }
+
+// loadBaseline reads state_dir/baseline.json if there is one. A file that
+// does not parse is set aside (renamed) and learning starts afresh.
+func (d *daemon) loadBaseline() {
+	path := filepath.Join(d.cfg.StateDir, baselineFileName)
+	f, err := os.Open(path)
+	if errors.Is(err, os.ErrNotExist) {
+		return
+	}
+	if err != nil {
+		d.log.Error("quietband run: cannot read the baseline; learning afresh", "file", path, "err", err)
+		return
+	}
+	b, err := detect.ReadBaselines(f)
+	f.Close()
+	if err != nil {
+		aside := path + ".bad-" + time.Now().UTC().Format("20060102T150405Z")
+		os.Rename(path, aside)
+		d.log.Error("quietband run: baseline file unusable; set aside, learning afresh", "file", path, "moved_to", aside, "err", err)
+		return
+	}
+	d.state.Baselines = b
+	d.log.Info("quietband run: baseline loaded", "file", path, "inputs", b.Len())
+}
+
+// saveBaseline writes the baseline atomically if it changed.
+func (d *daemon) saveBaseline() {
+	if !d.baseDirty {
+		return
+	}
+	var b bytes.Buffer
+	if _, err := d.state.Baselines.WriteTo(&b); err != nil {
+		d.log.Error("quietband run: encoding the baseline", "err", err)
+		return
+	}
+	path := filepath.Join(d.cfg.StateDir, baselineFileName)
+	if err := ingest.WriteFileAtomic(path, b.Bytes()); err != nil {
+		d.log.Error("quietband run: saving the baseline", "file", path, "err", err)
+		return
+	}
+	d.baseDirty, d.baseSaved = false, time.Now()
+}
+
+// reload re-reads the configuration on SIGHUP: the log level and the
+// detection settings take effect for later captures; other changes need a
+// restart. The event log is reopened.
+func (d *daemon) reload() {
+	d.log.Info("quietband run: SIGHUP: reopening the event log and reloading the configuration")
+	if err := d.elog.Reopen(); err != nil {
+		d.log.Error("quietband run: reopening the event log", "err", err)
+	} else {
+		d.log.Info("quietband run: event log reopened", "last_seq", d.elog.LastSeq(), "head", d.elog.Head())
+	}
+	cfg, err := loadRunConfig(d.cfgPath, d.over)
+	if err != nil {
+		d.log.Error("quietband run: configuration not reloaded", "err", err)
+		return
+	}
+	if lv, err := parseLevel(cfg.LogLevel); err == nil && lv != d.level.Level() {
+		d.level.Set(lv)
+		d.log.Info("quietband run: log level changed", "level", cfg.LogLevel)
+	}
+	oldDetect, _ := json.Marshal(d.cfg.Detect)
+	newDetect, _ := json.Marshal(cfg.Detect)
+	if !bytes.Equal(oldDetect, newDetect) || *cfg.Satellites != *d.cfg.Satellites {
+		d.pipe = d.newPipeline(cfg)
+		d.log.Info("quietband run: detection settings reloaded; they apply from the next capture")
+	}
+	var restart []string
+	if !slices.EqualFunc(cfg.Inputs, d.cfg.Inputs, func(a, b inputConfig) bool {
+		return a.Name == b.Name && a.Path == b.Path && a.Format == b.Format && a.SampleRate == b.SampleRate &&
+			*a.CenterHz == *b.CenterHz && a.Settle == b.Settle
+	}) {
+		restart = append(restart, "inputs")
+	}
+	for key, changed := range map[string]bool{"log": cfg.Log != d.cfg.Log, "state_dir": cfg.StateDir != d.cfg.StateDir,
+		"listen": cfg.Listen != d.cfg.Listen, "web_config_file": cfg.WebConfigFile != d.cfg.WebConfigFile,
+		"queue_size": cfg.QueueSize != d.cfg.QueueSize, "rescan_interval": cfg.RescanInterval != d.cfg.RescanInterval,
+		"notify": cfg.Notify != d.cfg.Notify, "log_format": cfg.LogFormat != d.cfg.LogFormat,
+		"metrics": cfg.Metrics != d.cfg.Metrics} {
+		if changed {
+			restart = append(restart, key)
+		}
+	}
+	if len(restart) > 0 {
+		slices.Sort(restart)
+		d.log.Warn("quietband run: these settings changed but take effect only after a restart", "keys", strings.Join(restart, ","))
+	}
+	// Settings read per capture follow the new file.
+	keep := *d.cfg
+	keep.Detect, keep.Satellites, keep.LogLevel = cfg.Detect, cfg.Satellites, cfg.LogLevel
+	keep.QuarantineDir, keep.Retention, keep.FallingBehindAfter = cfg.QuarantineDir, cfg.Retention, cfg.FallingBehindAfter
+	d.cfg = &keep
+}
+
+// moveAway moves a capture's files (metadata first, so that the watcher
+// never sees a lone metadata file) to dir, keeping their path below the
+// watched folder.
+func (d *daemon) moveAway(w ingest.Work, dir, why string) {
+	in := d.inputs[w.Input]
+	files := w.Files()
+	slices.SortStableFunc(files, func(a, b string) int {
+		ma, mb := strings.HasSuffix(a, ingest.MetaExt), strings.HasSuffix(b, ingest.MetaExt)
+		switch {
+		case ma && !mb:
+			return -1
+		case mb && !ma:
+			return 1
+		}
+		return 0
+	})
+	root, _ := filepath.Abs(in.Path)
+	for _, f := range files {
+		rel, err := filepath.Rel(root, f)
+		if err != nil || strings.HasPrefix(rel, "..") {
+			rel = filepath.Base(f)
+		}
+		dst := filepath.Join(dir, rel)
+		if err := moveFile(f, dst); err != nil {
+			d.log.Error("quietband run: cannot move capture file", "why", why, "file", f, "to", dst, "err", err)
+			return
+		}
+		d.log.Info("quietband run: capture file moved", "why", why, "file", f, "to", dst)
+	}
+}
+
+// moveFile moves src to dst (not replacing an existing file: a suffix is
+// added), copying across file systems, and syncs the folders involved.
+func moveFile(src, dst string) error {
+	if err := os.MkdirAll(filepath.Dir(dst), 0o750); err != nil {
+		return err
+	}
+	for n := 1; ; n++ {
+		if _, err := os.Lstat(dst); errors.Is(err, os.ErrNotExist) {
+			break
+		}
+		ext := filepath.Ext(dst)
+		dst = strings.TrimSuffix(dst, ext) + fmt.Sprintf(".%d", n) + ext
+		if n > 1 {
+			dst = strings.Replace(dst, fmt.Sprintf(".%d.%d", n-1, n), fmt.Sprintf(".%d", n), 1)
+		}
+	}
+	err := os.Rename(src, dst)
+	if errors.Is(err, syscall.EXDEV) {
+		err = copyFile(src, dst)
+		if err == nil {
+			err = os.Remove(src)
+		}
+	}
+	if err != nil {
+		return err
+	}
+	if err := ingest.SyncDir(filepath.Dir(dst)); err != nil {
+		return err
+	}
+	return ingest.SyncDir(filepath.Dir(src))
+}
+
+// copyFile copies a regular file or recreates a symbolic link, durably.
+func copyFile(src, dst string) error {
+	st, err := os.Lstat(src)
+	if err != nil {
+		return err
+	}
+	if st.Mode()&os.ModeSymlink != 0 {
+		target, err := os.Readlink(src)
+		if err != nil {
+			return err
+		}
+		return os.Symlink(target, dst)
+	}
+	in, err := os.Open(src)
+	if err != nil {
+		return err
+	}
+	defer in.Close()
+	tmp, err := os.CreateTemp(filepath.Dir(dst), "."+filepath.Base(dst)+".tmp*")
+	if err != nil {
+		return err
+	}
+	_, err = io.Copy(tmp, in)
+	if err == nil {
+		err = tmp.Sync()
+	}
+	if cerr := tmp.Close(); err == nil {
+		err = cerr
+	}
+	if err == nil {
+		err = os.Chmod(tmp.Name(), st.Mode().Perm())
+	}
+	if err == nil {
+		err = os.Rename(tmp.Name(), dst)
+	}
+	if err != nil {
+		os.Remove(tmp.Name())
+	}
+	return err
+}
+
+// sweep applies retention: captures analysed (recorded ok with their
+// present content) whose files are all older than retention.days are
+// deleted or moved. The record is durable by then: it is in the ledger,
+// which holds only records read back from or fsynced to the log.
+func (d *daemon) sweep(now time.Time) {
+	cutoff := now.Add(-time.Duration(d.cfg.Retention.Days) * 24 * time.Hour)
+	n := 0
+	for _, in := range d.cfg.Inputs {
+		found, err := ingest.Find(in.Path)
+		if err != nil {
+			d.log.Error("quietband run: retention: cannot scan", "input", in.Name, "err", err)
+			continue
+		}
+		root, _ := filepath.Abs(in.Path)
+		for _, f := range found {
+			if f.Problem != nil {
+				continue
+			}
+			path, _ := filepath.Abs(f.Path)
+			rel, err := filepath.Rel(root, path)
+			if err != nil {
+				continue
+			}
+			name := filepath.ToSlash(rel)
+			shas, ok := d.ledger.done[name]
+			if !ok {
+				continue
+			}
+			w := ingest.Work{Input: in.Name, Root: in.Path, Path: path, DataPath: path, Name: name}
+			if strings.HasSuffix(path, ingest.MetaExt) {
+				w.DataPath = strings.TrimSuffix(path, ingest.MetaExt) + ingest.DataExt
+			}
+			old := true
+			for _, p := range w.Files() {
+				if st, err := os.Lstat(p); err != nil || st.ModTime().After(cutoff) {
+					old = false
+				}
+			}
+			if !old {
+				continue
+			}
+			if reason, ok := shas[hashFile(w.DataPath)]; !ok || reason != "" {
+				continue
+			}
+			n++
+			if d.cfg.Retention.Action == "move" {
+				d.moveAway(w, filepath.Join(d.cfg.Retention.Dir, in.Name), "retention")
+				continue
+			}
+			files := w.Files()
+			slices.SortStableFunc(files, func(a, b string) int {
+				return boolCmp(strings.HasSuffix(b, ingest.MetaExt), strings.HasSuffix(a, ingest.MetaExt))
+			})
+			for _, p := range files {
+				if err := os.Remove(p); err != nil {
+					d.log.Error("quietband run: retention: cannot delete", "file", p, "err", err)
+				}
+			}
+			d.log.Info("quietband run: retention: capture deleted", "capture", name, "input", in.Name)
+		}
+	}
+	if n > 0 {
+		d.log.Info("quietband run: retention sweep", "captures", n, "action", d.cfg.Retention.Action, "older_than_days", d.cfg.Retention.Days)
+	}
+}
+
+func boolCmp(a, b bool) int {
+	switch {
+	case a == b:
+		return 0
+	case a:
+		return 1
+	}
+	return -1
+}

@@ -1,0 +1,146 @@
+package metrics
+
+import (
+	"slices"
+	"strconv"
+	"time"
+
+	"quietband/detect"
+)
+
+// Capture is the outcome of one capture, for ObserveCapture.
+type Capture struct {
+	Input string
+	// Record is the capture record written to the event log.
+	Record detect.CaptureRecord
+	// Events are the events the analysis found.
+	Events []detect.Event
+	// BlockSamples is the pipeline's block length for the capture's rate,
+	// the granularity of "open at the end" (see the package doc).
+	BlockSamples int64
+	Bytes        int64         // size of the data file
+	Duration     time.Duration // signal length
+	Elapsed      time.Duration // analysis time
+	// Satellites tells that satellites were measured (a GNSS meter ran on
+	// the capture), so that Record.Stats.Satellites, even empty, is a
+	// measurement.
+	Satellites bool
+	// At is when the analysis finished (wall clock).
+	At time.Time
+}
+
+// cn0Strongest is how many of the strongest satellites the C/N0 mean takes.
+const cn0Strongest = 4
+
+// ObserveCapture updates the metrics with an analysed or quarantined
+// capture.
+func (s *Set) ObserveCapture(c Capture) {
+	if c.Record.Status != detect.StatusOK {
+		s.captures.WithLabelValues(ResultQuarantined).Inc()
+		return
+	}
+	s.captures.WithLabelValues(ResultOK).Inc()
+	for _, e := range c.Events {
+		s.events.WithLabelValues(e.Class).Inc()
+	}
+	s.samples.Add(float64(c.Record.Samples))
+	s.bytes.Add(float64(c.Bytes))
+	s.processing.Observe(c.Elapsed.Seconds())
+	if c.Elapsed > 0 {
+		s.realtime.Set(c.Duration.Seconds() / c.Elapsed.Seconds())
+	}
+	s.lastCapture.Set(float64(c.At.UnixNano()) / 1e9)
+	if c.Record.Start != nil {
+		s.startTime.WithLabelValues(c.Input).Set(float64(c.Record.Start.UnixNano()) / 1e9)
+	}
+
+	open := OpenAtEnd(c.Events, c.Record.Samples, c.BlockSamples)
+	for _, class := range detect.Classes {
+		jn, ok := open[class]
+		s.active.WithLabelValues(c.Input, class).Set(b2f(ok))
+		if ok {
+			s.jn.WithLabelValues(c.Input, class).Set(jn)
+		} else {
+			s.jn.DeleteLabelValues(c.Input, class)
+		}
+	}
+	for class, jn := range open {
+		if !slices.Contains(detect.Classes, class) {
+			// A class newer than this list: still bounded (classes are
+			// only ever added by a code change).
+			s.active.WithLabelValues(c.Input, class).Set(1)
+			s.jn.WithLabelValues(c.Input, class).Set(jn)
+		}
+	}
+
+	if st := c.Record.Stats; st != nil {
+		s.power.WithLabelValues(c.Input).Set(st.PowerDBFS)
+		s.noiseFloor.WithLabelValues(c.Input).Set(st.NoiseFloorDBFS)
+		s.agc.WithLabelValues(c.Input).Set(st.AGCDeviationDB)
+		s.skMax.WithLabelValues(c.Input).Set(st.SKMax)
+		s.clip.WithLabelValues(c.Input).Set(st.ClipFraction)
+		if c.Satellites && st.GNSSSkipped == "" {
+			s.observeSatellites(c.Input, st.Satellites)
+		}
+	}
+}
+
+// observeSatellites sets the C/N0 series of an input to the satellites of
+// its latest capture, removing PRNs no longer acquired.
+func (s *Set) observeSatellites(input string, sats []detect.Satellite) {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	now := map[int]bool{}
+	for _, sat := range sats {
+		s.cn0.WithLabelValues(input, strconv.Itoa(sat.PRN)).Set(sat.CN0DBHz)
+		now[sat.PRN] = true
+	}
+	for prn := range s.prns[input] {
+		if !now[prn] {
+			s.cn0.DeleteLabelValues(input, strconv.Itoa(prn))
+		}
+	}
+	s.prns[input] = now
+	s.satellites.WithLabelValues(input).Set(float64(len(sats)))
+	if m, ok := StrongestMean(sats, cn0Strongest); ok {
+		s.cn0Mean.WithLabelValues(input).Set(m)
+	} else {
+		s.cn0Mean.DeleteLabelValues(input)
+	}
+}
+
+// StrongestMean is the arithmetic mean of the n largest C/N0 values (in
+// dB-Hz) of sats, or of all of them when there are fewer; ok is false when
+// sats is empty.
+func StrongestMean(sats []detect.Satellite, n int) (mean float64, ok bool) {
+	if len(sats) == 0 {
+		return 0, false
+	}
+	v := make([]float64, len(sats))
+	for i, s := range sats {
+		v[i] = s.CN0DBHz
+	}
+	slices.Sort(v)
+	top := v[max(0, len(v)-n):]
+	var sum float64
+	for _, x := range top {
+		sum += x
+	}
+	return sum / float64(len(top)), true
+}
+
+// OpenAtEnd returns, by class, the largest J/N of the events open at the
+// end of a capture of the given number of samples: those reaching its last
+// block, sample_start + sample_count ≥ samples − block.
+func OpenAtEnd(events []detect.Event, samples, block int64) map[string]float64 {
+	out := map[string]float64{}
+	for _, e := range events {
+		if e.SampleStart+e.SampleCount < samples-block {
+			continue
+		}
+		if jn, ok := out[e.Class]; !ok || e.JNDB > jn {
+			out[e.Class] = e.JNDB
+		}
+	}
+	return out
+}

@@ -1,0 +1,33 @@
+// Package metrics is what the quietband daemon exposes: Prometheus metrics
+// on a registry of its own, the HTTP endpoints (/metrics, /healthz,
+// /readyz, /api/events) and, in the subpackage eventlog, the durable event
+// log.
+//
+// Metric names follow the Prometheus naming rules: the quietband_ prefix,
+// base units (seconds, bytes; dB quantities carry _db, _dbfs or _dbhz as
+// their unit, since the rules list no logarithmic unit), _total on
+// counters, and only bounded labels: class (the event classes of
+// detect.Classes), prn (1–32), result (ok, quarantined) and input (the
+// names in the daemon's configuration). Nothing is labelled by file name,
+// sample index or frequency. The whole exposition passes the linter of
+// `promtool check metrics` (client_golang's promlint).
+//
+// # Interference state
+//
+// quietband_interference_active{input,class} is 1 while an interference of
+// that class is open at the end of the input's latest analysed capture, and
+// 0 otherwise. "Open at the end" is decided from the event records alone:
+// an event is open when it reaches the capture's last block,
+//
+//	sample_start + sample_count ≥ samples − block,
+//
+// where block is the pipeline's block length (frames × FFT size) for the
+// capture's rate, the granularity at which the classifier opens and closes
+// events. The next capture of the input without such an event clears it; a
+// quarantined capture changes nothing. quietband_jn_db{input,class} is the
+// largest J/N among the open events of the class and is absent while
+// nothing of the class is open.
+//
+// Averaging dB gauges over labels is not the mean power; the HELP texts
+// say so where it matters.
+package metrics

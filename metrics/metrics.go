@@ -1,0 +1,207 @@
+package metrics
+
+import (
+	"runtime"
+	"runtime/debug"
+	"sync"
+
+	"github.com/prometheus/client_golang/prometheus"
+	"github.com/prometheus/client_golang/prometheus/collectors"
+
+	"quietband/detect"
+)
+
+// Namespace is the prefix of every metric name.
+const Namespace = "quietband"
+
+// Capture results, the values of the result label.
+const (
+	ResultOK          = "ok"
+	ResultQuarantined = "quarantined"
+)
+
+// Sources are the live values read at each scrape. Nil functions leave
+// their metric out.
+type Sources struct {
+	// QueueDepth is the number of captures found complete and waiting for
+	// analysis.
+	QueueDepth func() int
+	// EventLogLastSeq is the seq of the event log's last record.
+	EventLogLastSeq func() uint64
+	// WatchRescans and WatchOverflows count the watcher's full rescans
+	// and lost-event overflows.
+	WatchRescans, WatchOverflows func() uint64
+}
+
+// Options configure a Set.
+type Options struct {
+	// Inputs are the configured input names; their per-input series exist
+	// from the start (interference gauges at 0), so alerts and dashboards
+	// see them before the first capture.
+	Inputs []string
+	// GoCollector adds the Go runtime and process collectors.
+	GoCollector bool
+	Sources     Sources
+}
+
+// Set is the daemon's metrics, registered on a registry of its own. Its
+// methods are safe for concurrent use.
+type Set struct {
+	reg *prometheus.Registry
+
+	active      *prometheus.GaugeVec // input, class
+	jn          *prometheus.GaugeVec // input, class
+	power       *prometheus.GaugeVec // input
+	noiseFloor  *prometheus.GaugeVec
+	agc         *prometheus.GaugeVec
+	skMax       *prometheus.GaugeVec
+	clip        *prometheus.GaugeVec
+	cn0         *prometheus.GaugeVec // input, prn
+	cn0Mean     *prometheus.GaugeVec
+	satellites  *prometheus.GaugeVec
+	startTime   *prometheus.GaugeVec
+	events      *prometheus.CounterVec // class
+	captures    *prometheus.CounterVec // result
+	samples     prometheus.Counter
+	bytes       prometheus.Counter
+	processing  prometheus.Histogram
+	realtime    prometheus.Gauge
+	lastCapture prometheus.Gauge
+
+	logErrors     prometheus.Counter
+	logWritable   prometheus.Gauge
+	fallingBehind prometheus.Gauge
+	watcherUp     prometheus.Gauge
+
+	mu   sync.Mutex
+	prns map[string]map[int]bool // PRNs exposed per input
+}
+
+// New makes a Set.
+func New(opt Options) *Set {
+	s := &Set{reg: prometheus.NewRegistry(), prns: map[string]map[int]bool{}}
+	gauge := func(name, help string, labels ...string) *prometheus.GaugeVec {
+		g := prometheus.NewGaugeVec(prometheus.GaugeOpts{Namespace: Namespace, Name: name, Help: help}, labels)
+		s.reg.MustRegister(g)
+		return g
+	}
+	s.active = gauge("interference_active",
+		"1 while an interference of the class is open at the end of the input's latest analysed capture, else 0.", "input", "class")
+	s.jn = gauge("jn_db",
+		"J/N of the open interference of the class (largest if several): interference over noise power in the capture bandwidth, in dB; absent while none is open.", "input", "class")
+	s.power = gauge("power_dbfs", "Mean power of the latest capture, dB relative to full scale.", "input")
+	s.noiseFloor = gauge("noise_floor_dbfs", "Noise floor of the latest capture (robust to narrow interference), dB relative to full scale.", "input")
+	s.agc = gauge("agc_deviation_db", "Power of the latest capture over the site baseline's power, in dB (0 while the baseline is learned).", "input")
+	s.skMax = gauge("sk_max", "Largest spectral kurtosis estimate over the bins and blocks of the latest capture (1 for Gaussian noise).", "input")
+	s.clip = gauge("clip_ratio", "Fraction of the latest capture's samples at a saturated code.", "input")
+	s.cn0 = gauge("cn0_dbhz", "C/N0 of the satellite in the latest capture, dB-Hz (absent when not acquired).", "input", "prn")
+	s.cn0Mean = gauge("cn0_mean_dbhz", "Mean of the C/N0 values in dB-Hz of the (up to) four strongest satellites of the latest capture.", "input")
+	s.satellites = gauge("satellites_acquired", "Satellites acquired in the latest capture.", "input")
+	s.startTime = gauge("capture_start_timestamp_seconds", "Start time of the latest analysed capture (its first sample), Unix seconds.", "input")
+
+	counter := func(name, help string, labels ...string) *prometheus.CounterVec {
+		c := prometheus.NewCounterVec(prometheus.CounterOpts{Namespace: Namespace, Name: name, Help: help}, labels)
+		s.reg.MustRegister(c)
+		return c
+	}
+	s.events = counter("events_total", "Interference events found in analysed captures, by class.", "class")
+	s.captures = counter("captures_total", "Captures recorded in the event log, by result (ok or quarantined).", "result")
+	s.samples = counter("samples_total", "Complex samples analysed.").WithLabelValues()
+	s.bytes = counter("bytes_total", "Bytes of sample data analysed.").WithLabelValues()
+	s.logErrors = counter("eventlog_write_errors_total", "Failed appends to the event log (disk full, I/O error).").WithLabelValues()
+
+	s.processing = prometheus.NewHistogram(prometheus.HistogramOpts{Namespace: Namespace, Name: "processing_seconds",
+		Help:    "Time to analyse one capture.",
+		Buckets: []float64{0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5, 1, 2.5, 5, 10, 30, 60, 120}})
+	s.reg.MustRegister(s.processing)
+	s.realtime = gauge("realtime_factor", "Signal duration of the latest capture over the time taken to analyse it (above 1: faster than real time).").WithLabelValues()
+	s.lastCapture = gauge("last_capture_timestamp_seconds", "When the latest capture was analysed, Unix seconds (wall clock).").WithLabelValues()
+	s.logWritable = gauge("eventlog_writable", "1 while the event log accepts appends, 0 after a failed write until it is reopened.").WithLabelValues()
+	s.fallingBehind = gauge("falling_behind", "1 while captures wait longer for analysis than the configured limit, else 0.").WithLabelValues()
+	s.watcherUp = gauge("watcher_running", "1 while the folder watcher runs.").WithLabelValues()
+	s.logWritable.Set(1)
+
+	src := opt.Sources
+	if src.QueueDepth != nil {
+		s.reg.MustRegister(prometheus.NewGaugeFunc(prometheus.GaugeOpts{Namespace: Namespace, Name: "queue_depth",
+			Help: "Captures found complete and waiting for analysis."}, func() float64 { return float64(src.QueueDepth()) }))
+	}
+	if src.EventLogLastSeq != nil {
+		s.reg.MustRegister(prometheus.NewGaugeFunc(prometheus.GaugeOpts{Namespace: Namespace, Name: "eventlog_last_seq",
+			Help: "Seq of the last record in the event log; compare with the log to detect a rewritten tail."},
+			func() float64 { return float64(src.EventLogLastSeq()) }))
+	}
+	if src.WatchRescans != nil {
+		s.reg.MustRegister(prometheus.NewCounterFunc(prometheus.CounterOpts{Namespace: Namespace, Name: "watcher_rescans_total",
+			Help: "Full rescans of the watched folders (start, periodic, after lost events)."},
+			func() float64 { return float64(src.WatchRescans()) }))
+	}
+	if src.WatchOverflows != nil {
+		s.reg.MustRegister(prometheus.NewCounterFunc(prometheus.CounterOpts{Namespace: Namespace, Name: "watcher_overflows_total",
+			Help: "Times the kernel's file-event queue overflowed (events lost, rescan forced)."},
+			func() float64 { return float64(src.WatchOverflows()) }))
+	}
+
+	version, revision := buildVersion()
+	info := gauge("build_info", "Build of the running quietband: always 1, the labels say which.", "version", "revision", "goversion")
+	info.WithLabelValues(version, revision, runtime.Version()).Set(1)
+	if opt.GoCollector {
+		s.reg.MustRegister(collectors.NewGoCollector(), collectors.NewProcessCollector(collectors.ProcessCollectorOpts{}))
+	}
+
+	for _, c := range detect.Classes {
+		s.events.WithLabelValues(c)
+	}
+	s.captures.WithLabelValues(ResultOK)
+	s.captures.WithLabelValues(ResultQuarantined)
+	for _, in := range opt.Inputs {
+		for _, c := range detect.Classes {
+			s.active.WithLabelValues(in, c).Set(0)
+		}
+	}
+	return s
+}
+
+// Registry is the Set's registry (for promhttp and tests).
+func (s *Set) Registry() *prometheus.Registry { return s.reg }
+
+// buildVersion is the module version and VCS revision the binary was built
+// from ("unknown" where the build did not record them).
+func buildVersion() (version, revision string) {
+	version, revision = "unknown", "unknown"
+	bi, ok := debug.ReadBuildInfo()
+	if !ok {
+		return
+	}
+	if v := bi.Main.Version; v != "" {
+		version = v
+	}
+	for _, st := range bi.Settings {
+		if st.Key == "vcs.revision" && st.Value != "" {
+			revision = st.Value
+		}
+	}
+	return
+}
+
+// EventLogWriteFailed counts a failed append and marks the log unwritable.
+func (s *Set) EventLogWriteFailed() {
+	s.logErrors.Inc()
+	s.logWritable.Set(0)
+}
+
+// SetEventLogWritable says whether the event log accepts appends.
+func (s *Set) SetEventLogWritable(ok bool) { s.logWritable.Set(b2f(ok)) }
+
+// SetFallingBehind says whether analysis is falling behind.
+func (s *Set) SetFallingBehind(behind bool) { s.fallingBehind.Set(b2f(behind)) }
+
+// SetWatcherRunning says whether the folder watcher runs.
+func (s *Set) SetWatcherRunning(up bool) { s.watcherUp.Set(b2f(up)) }
+
+func b2f(b bool) float64 {
+	if b {
+		return 1
+	}
+	return 0
+}
