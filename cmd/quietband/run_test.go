@@ -204,6 +204,7 @@ type logRecord struct {
 	Status  string `json:"status"`
 	Error   string `json:"error"`
 	Events  int    `json:"events"`
+	Samples int64  `json:"samples"`
 }
 
 func readLog(t *testing.T, path string) []logRecord {
@@ -693,7 +694,7 @@ func TestRunCrashRecovery(t *testing.T) {
 	// 16 KiB segments).
 	s := newSite(t, "log:\n  max_bytes: 16384\nlog_format: json\n")
 	p := startProcess(t, "run", "--config", s.cfgPath)
-	const n = 150
+	const n = 200
 	tone := func(i int) bool { return i%5 == 0 }
 	go func() {
 		for i := range n {
@@ -904,5 +905,50 @@ func TestRunFallingBehind(t *testing.T) {
 	_, body := httpGet(t, rd.base+"/metrics")
 	if !strings.Contains(body, "quietband_falling_behind 0") {
 		t.Errorf("falling behind not cleared:\n%s", grepLines(body, "falling"))
+	}
+}
+
+// TestRunThousandAndSlowWriters: a burst of 1000 small captures dropped at
+// once, and five more written slowly, 64 bytes at a time, while the
+// burst is analysed: every one is analysed exactly once, and none before it
+// was complete (each capture record holds all its samples; a capture taken
+// early would hold fewer, or be quarantined as shrinking or growing).
+func TestRunThousandAndSlowWriters(t *testing.T) {
+	s := newSite(t, "queue_size: 64\n")
+	startDaemon(t, s)
+	const n, slow = 1000, 5
+	done := make(chan struct{})
+	go func() {
+		defer close(done)
+		for k := range slow {
+			path := filepath.Join(s.in, "slow", fmt.Sprintf("s%d.ci8", k))
+			os.MkdirAll(filepath.Dir(path), 0o755)
+			f, err := os.Create(path)
+			if err != nil {
+				t.Error(err)
+				return
+			}
+			data := ci8Capture(uint64(5000+k), false)
+			for off := 0; off < len(data); off += 64 {
+				f.Write(data[off:min(off+64, len(data))])
+				time.Sleep(500 * time.Microsecond)
+			}
+			f.Close()
+		}
+	}()
+	for i := range n {
+		dropCapture(t, filepath.Join(s.in, fmt.Sprintf("burst%d", i%8), fmt.Sprintf("c%04d.ci8", i)), ci8Capture(uint64(i), false))
+	}
+	<-done
+	waitFor(t, 120*time.Second, "1005 capture records", func() bool { return countCaptures(t, s.logPath) >= n+slow })
+	time.Sleep(700 * time.Millisecond) // a rescan more: nothing is analysed twice
+	caps := captureRecords(checkLog(t, s.logPath))
+	if len(caps) != n+slow {
+		t.Fatalf("%d captures recorded, want %d", len(caps), n+slow)
+	}
+	for name, rs := range caps {
+		if len(rs) != 1 || rs[0].Status != detect.StatusOK || rs[0].Samples != runSamples {
+			t.Errorf("%s: %d records, first %+v (want one ok record of %d samples)", name, len(rs), rs[0], runSamples)
+		}
 	}
 }
