@@ -181,7 +181,7 @@ func exactNullMoments(m int, alpha *big.Rat) [4]*big.Rat {
 }
 
 func TestNullMomentsExact(t *testing.T) {
-	// Cross-check of the transcription of Nita & Gary 2010b eq. 9 against
+	// Cross-check of Nita & Gary 2010b eq. 9 as coded here against
 	// moments computed exactly ([C]: rational arithmetic on the Dirichlet
 	// representation of normalised Gamma variates, see exactNullMoments).
 	for _, tc := range []struct {
