@@ -5,7 +5,9 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"os"
 	"runtime"
+	"slices"
 	"strings"
 	"sync"
 	"testing"
@@ -241,8 +243,8 @@ func TestAcquireNoiseOnly(t *testing.T) {
 				loc := make([]int, len(levels))
 				n := 0
 				for _, r := range rows {
-					for d := 0; d < len(r); d += gridPerMs {
-						row := r[d : d+gridPerMs]
+					for d := 0; d < len(r); d += lagsPerMs {
+						row := r[d : d+lagsPerMs]
 						sigma2 := testRowNoise(row, k)
 						for _, v := range row {
 							for j, g := range gam {
@@ -297,15 +299,15 @@ func testRowNoise(row []float64, k int) float64 {
 			peak = c
 		}
 	}
-	excl := int(math.Ceil(1.5 * gridPerMs / gpsca.CodeLength))
+	excl := int(math.Ceil(1.5 * lagsPerMs / gpsca.CodeLength))
 	sum, n := 0.0, 0
 	for c, v := range row {
 		d := c - peak
 		if d < 0 {
 			d = -d
 		}
-		if d > gridPerMs/2 {
-			d = gridPerMs - d
+		if d > lagsPerMs/2 {
+			d = lagsPerMs - d
 		}
 		if d > excl {
 			sum += v
@@ -360,5 +362,135 @@ func TestCrossCorrelationRejection(t *testing.T) {
 	}
 	if with != 0 || weak != captures {
 		t.Errorf("with rejection: %d false PRNs, weak satellite kept %d of %d", with, weak, captures)
+	}
+}
+
+// TestAcquireScreen: screening the half-bin Doppler rows (see Acquire) must
+// not change what is found. On captures with six satellites at 38–50 dB-Hz
+// the screened search must report every satellite that the exhaustive
+// search (every row computed exactly, the search the detection statistics
+// of REFERENCES §4 describe) reports, with the same peak metric, Doppler
+// and code phase. On noise only, an interpolated row passes the screen when
+// its maximum over 2048 cells exceeds γ_s, with probability about
+// 1 − (1 − Q(10, γ_s))^2048 for independent Gamma(10, 1) cells (gonum
+// mathext.GammaIncRegComp): the fraction of half-bin rows computed must be
+// within a factor of two of that.
+func TestAcquireScreen(t *testing.T) {
+	levels := []float64{38, 38, 40, 42, 46, 50}
+	rng := rand.New(rand.NewPCG(43, 1))
+	compared := 0
+	for _, tc := range []struct {
+		fs       float64
+		captures int
+	}{{4e6, 4}, {10e6, 2}} {
+		a, err := NewAcquirer(AcqConfig{}, tc.fs, gpsca.L1)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for range tc.captures {
+			prns := rng.Perm(32)[:len(levels)]
+			var sats []satSpec
+			for i, p := range prns {
+				sats = append(sats, randomSat(rng, p+1, levels[i], 5000))
+			}
+			c := synthesize(rng, tc.fs, gpsca.L1, 1, a.SnapshotLen(), sats)
+			a.exhaustive = true
+			full, err := a.Acquire(nil, c.x)
+			a.exhaustive = false
+			if err != nil {
+				t.Fatal(err)
+			}
+			screened, _ := a.Acquire(nil, c.x)
+			for _, s := range sats {
+				i := slices.IndexFunc(full, func(r Acquired) bool { return r.PRN == s.prn })
+				if i < 0 {
+					continue
+				}
+				compared++
+				j := slices.IndexFunc(screened, func(r Acquired) bool { return r.PRN == s.prn })
+				if j < 0 || screened[j] != full[i] {
+					t.Errorf("fs %g PRN %d (%.0f dB-Hz): screened %+v, exhaustive %+v", tc.fs, s.prn, s.cn0, screened, full[i])
+				}
+			}
+		}
+	}
+	if compared < 30 {
+		t.Errorf("only %d satellites compared", compared)
+	}
+	// Noise only.
+	a, err := NewAcquirer(AcqConfig{}, 4e6, gpsca.L1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rows, passed := 0, 0
+	for range 4 {
+		c := synthesize(rng, 4e6, gpsca.L1, 1, a.SnapshotLen(), nil)
+		if _, err := a.Acquire(nil, c.x); err != nil {
+			t.Fatal(err)
+		}
+		for _, p := range a.prns {
+			for d, s := range a.screened {
+				if s {
+					rows++
+					if p.candidate[d] {
+						passed++
+					}
+				}
+			}
+		}
+	}
+	want := 1 - math.Pow(1-mathext.GammaIncRegComp(10, a.gammaScreen), lagsPerMs)
+	got := float64(passed) / float64(rows)
+	t.Logf("γ_s = %.2f: %d of %d half-bin rows computed (%.3f, independent cells %.3f)", a.gammaScreen, passed, rows, got, want)
+	if got > 2*want || got < want/2 {
+		t.Errorf("screen passes %.3f of the noise-only rows, expected about %.3f", got, want)
+	}
+}
+
+// TestAcquireDetectionLong (QUIETBAND_LONG=1): the detection probability at
+// exactly 38 dB-Hz, the requirement's lower edge, over 900 satellites at
+// 4 MS/s and 480 at 10 MS/s (six per capture, random Doppler within
+// ±5 kHz, code and carrier phase, 50 bit/s data) must be at least 95 %.
+// Expected from REFERENCES §4 (computed, χ² theory): K = 10 reaches
+// P_d = 0.9 at 36.0 dB-Hz without bin losses, and the mean losses of this
+// search are about 0.3 dB (Doppler, sinc² over ±250 Hz) and 0.6–0.9 dB
+// (code phase and filter, see Acquire), which leaves a margin of about
+// 1 dB; measured 0.970 and 0.975 (binomial standard error 0.6–0.8 %).
+func TestAcquireDetectionLong(t *testing.T) {
+	if os.Getenv("QUIETBAND_LONG") != "1" {
+		t.Skip("QUIETBAND_LONG=1 runs the long detection Monte Carlo")
+	}
+	for _, tc := range []struct {
+		fs       float64
+		captures int
+	}{{4e6, 150}, {10e6, 80}} {
+		a, err := NewAcquirer(AcqConfig{}, tc.fs, gpsca.L1)
+		if err != nil {
+			t.Fatal(err)
+		}
+		rng := rand.New(rand.NewPCG(99, uint64(tc.fs)+38))
+		hit, total := 0, 0
+		for range tc.captures {
+			var sats []satSpec
+			for _, p := range rng.Perm(32)[:6] {
+				sats = append(sats, randomSat(rng, p+1, 38, 5000))
+			}
+			c := synthesize(rng, tc.fs, gpsca.L1, 1, a.SnapshotLen(), sats)
+			res, err := a.Acquire(nil, c.x)
+			if err != nil {
+				t.Fatal(err)
+			}
+			for _, s := range sats {
+				total++
+				if slices.ContainsFunc(res, func(r Acquired) bool { return r.PRN == s.prn }) {
+					hit++
+				}
+			}
+		}
+		pd := float64(hit) / float64(total)
+		t.Logf("fs %g: %d of %d acquired at 38 dB-Hz (P_d %.3f)", tc.fs, hit, total, pd)
+		if pd < 0.95 {
+			t.Errorf("fs %g: P_d %.3f at 38 dB-Hz, want ≥ 0.95", tc.fs, pd)
+		}
 	}
 }

@@ -20,22 +20,35 @@
 // mixed to L1 and integrated-and-dumped onto a grid of 4096 cells per
 // millisecond (4 cells per chip), so every sample rate maps onto
 // power-of-two FFTs and no input sample is merged with another at
-// fs ≤ 4.096 MS/s; the code replica is binned the same way. For each Doppler
-// bin f_D (default ±5 kHz in 500 Hz steps, inside the 2/(3T) bin width of
-// Kaplan & Hegarty 2006, Understanding GPS, from memory), each 1 ms block y_k
-// is wiped by e^{−j2πf_D t} and transformed once; the spectrum is shared by
-// all PRNs, each multiplying it by its precomputed conj(FFT(replica)) and
-// transforming back, which yields the circular correlation at every lag:
+// fs ≤ 4.096 MS/s; the code replica is binned the same way. Each 1 ms block
+// y_k is transformed once per base frequency b of the Doppler grid (0 and
+// −500 Hz for the default ±5 kHz in 500 Hz steps, inside the 2/(3T) bin
+// width of Kaplan & Hegarty 2006, Understanding GPS, from memory): the
+// Doppler bin f_D = b + s/T is the spectrum shifted by s bins. The spectrum
+// is shared by all PRNs, each multiplying its central half (|f| <
+// 1.024 MHz, the C/A main lobe) by its precomputed conj(FFT(replica)) and
+// transforming back with a half-length IFFT, which yields the band-limited
+// circular correlation at 2048 half-chip lags per millisecond:
 //
-//	z_k(τ) = IFFT(FFT(y_k)·conj(FFT(r)))(τ),   S(f_D, τ) = Σ_{k=1}^{K} |z_k(τ)|².
+//	z_k(τ) = IFFT_{N/2}(Y_k[m + s]·R*[m], |m| < N/4)(τ),   S(f_D, τ) = Σ_{k=1}^{K} |z_k(τ)|².
+//
+// The two quarter-chip lags beside each row's maximum are interpolated
+// from the lag cells (a Lanczos kernel; the correlation is band-limited to
+// their Nyquist band), so the search loses no more than on a 4096-lag grid.
+// The rows at whole multiples of 1/T (the anchors) are computed for every
+// PRN; a half-bin row between two anchors is first interpolated from them,
+// Σ_k |z_{s}(τ) − z_{s+1}(τ)|² (the two-bin interpolation of the DFT at a
+// half bin, which keeps at least 81 % of the row's SNR), and computed
+// exactly only if that interpolation's normalized maximum exceeds
+// γ_s = K + 0.6·(γ − K). Detection uses exact rows only.
 //
 // Detection statistics (REFERENCES §4, square-law detection): with σ² the
 // noise power of one |z_k|² cell, S/σ² is Gamma(K, 1) under H0 (a sum of K
 // unit exponentials). σ² is estimated per Doppler row as the mean of S/K
 // over the row without ±1.5 chips around the row's maximum. The per-cell
 // false-alarm probability is P_fa = Pfa/N_cells (N_cells = Doppler bins ×
-// 4096, the union bound for the overall P_FA of one PRN search) and the
-// threshold γ solves
+// 4096 quarter-chip lags, the union bound for the overall P_FA of one PRN
+// search) and the threshold γ solves
 //
 //	P_fa = Q(K, γ) = e^{−γ} Σ_{i=0}^{K−1} γ^i/i!
 //
@@ -60,7 +73,12 @@
 // epoch (≈ 1 ms) regardless of block boundaries, a first-order
 // frequency-locked loop with the bit-insensitive discriminator
 // atan(Im D/Re D)/(2πT), D = P_k·conj(P_{k−1}), and a first-order
-// delay-locked loop on the normalized early-minus-late envelope. After a
+// delay-locked loop on the normalized early-minus-late envelope. The
+// correlators run at the chip rate: a front end shared by all satellites
+// mixes the input to L1 and keeps its running sum S[n], and each replica,
+// constant between its chip edges, reduces by summation by parts to
+// ±2·S[b] at the code transitions (about 1.6 look-ups per chip and
+// satellite at any sample rate; Tracker documents the formula). After a
 // 60 ms pull-in, the 1 ms prompts feed the moment-method C/N0 estimator of
 // Pauluzzi & Beaulieu 2000 (MomentCN0):
 //
