@@ -166,7 +166,7 @@ func benchBlock(b *testing.B, fs float64, em ...synth.Emitter) *BlockInput {
 	eng := NewSpectrum(cfg.FFTSize, cfg.Frames, fs)
 	in := &BlockInput{F: eng.Analyze(0, x, 0), Samples: x}
 	var thr thresholdCache
-	in.prepare(base.PSD, &cfg, center, true, &thr)
+	in.prepare(base.PSD, base.Frames, &cfg, center, true, &thr)
 	(&SpectralKurtosis{}).Compute(in)
 	return in
 }
@@ -237,7 +237,7 @@ func BenchmarkBlock(b *testing.B) {
 			p := NewPipeline(Config{}, nil)
 			bk := p.bankFor(cfg, fs)
 			floor := append([]float64(nil), in.Floor...)
-			bk.reset(floor, 1575.42e6, true)
+			bk.reset(floor, 0, 1575.42e6, true)
 			// ci16 input: the block is decoded from its bytes each time.
 			raw := make([]byte, len(in.Samples)*ingest.CI16LE.SampleBytes())
 			ingest.CI16LE.Encode(raw, in.Samples)

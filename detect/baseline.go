@@ -19,11 +19,14 @@ import (
 // Warmup captures are averaged equally, later ones with weight W
 // (exponential average), and nothing is learned while an event is active.
 type Baseline struct {
-	Key        string          `json:"key"`
-	FFTSize    int             `json:"fft_size"`
-	PSD        []float64       `json:"psd"` // centred bin order
-	Power      float64         `json:"power"`
-	Captures   int             `json:"captures"`
+	Key      string    `json:"key"`
+	FFTSize  int       `json:"fft_size"`
+	PSD      []float64 `json:"psd"` // centred bin order
+	Power    float64   `json:"power"`
+	Captures int       `json:"captures"`
+	// Frames is the effective number of frames averaged into each bin of
+	// PSD: how well the floor is known.
+	Frames     float64         `json:"frames"`
 	Updated    time.Time       `json:"updated"`
 	Loaded     bool            `json:"-"`
 	CN0        map[int]float64 `json:"cn0_dbhz,omitempty"` // per PRN
@@ -50,10 +53,11 @@ func (b *Baseline) NoisePower() float64 {
 }
 
 // learn folds one clean capture's mean PSD and power into the baseline.
-func (b *Baseline) learn(psd []float64, power float64, when time.Time, warmup int, weight float64) {
+func (b *Baseline) learn(psd []float64, frames int, power float64, when time.Time, warmup int, weight float64) {
 	if len(b.PSD) != len(psd) {
 		b.PSD = make([]float64, len(psd))
 		b.Captures = 0
+		b.Frames = 0
 	}
 	w := weight
 	if b.Captures < warmup {
@@ -61,6 +65,14 @@ func (b *Baseline) learn(psd []float64, power float64, when time.Time, warmup in
 	}
 	for k, v := range psd {
 		b.PSD[k] += w * (v - b.PSD[k])
+	}
+	// Effective number of frames behind each bin: the variance of a
+	// weighted mean (1−w)·old + w·new of independent means of E and F
+	// exponential frames is (1−w)²/E + w²/F (in units of the squared mean).
+	if b.Frames == 0 || w == 1 {
+		b.Frames = float64(frames)
+	} else {
+		b.Frames = 1 / ((1-w)*(1-w)/b.Frames + w*w/float64(frames))
 	}
 	b.Power += w * (power - b.Power)
 	b.Captures++

@@ -101,7 +101,7 @@ type PulseParams struct {
 
 // prepare fills the references shared by all detectors. floor is the
 // baseline PSD (nil when there is none).
-func (in *BlockInput) prepare(floor []float64, cfg *Config, center float64, hasCenter bool, thr *thresholdCache) {
+func (in *BlockInput) prepare(floor []float64, floorFrames float64, cfg *Config, center float64, hasCenter bool, thr *thresholdCache) {
 	f := in.F
 	n := f.N
 	in.Cfg = cfg
@@ -149,24 +149,47 @@ func (in *BlockInput) prepare(floor []float64, cfg *Config, center float64, hasC
 			in.Ratio[k] = 1
 		}
 	}
-	in.BinThreshold = thr.bin(f.Frames, cfg.BinPfa)
-}
-
-// thresholdCache keeps thresholds that depend only on the number of frames.
-type thresholdCache struct {
-	bins map[int]float64
-}
-
-func (t *thresholdCache) bin(m int, pfa float64) float64 {
-	if t.bins == nil {
-		t.bins = map[int]float64{}
+	if floor == nil {
+		floorFrames = 0 // the block's own median: as good as known
 	}
-	if v, ok := t.bins[m]; ok {
+	in.BinThreshold = thr.bin(f.Frames, floorFrames, cfg.BinPfa)
+}
+
+// thresholdCache keeps thresholds that depend only on the numbers of
+// frames.
+type thresholdCache struct {
+	bins map[[2]int]float64
+}
+
+// bin is the excess-power threshold on a bin's ratio to the floor: a mean
+// of m exponential frames over a floor averaged from e frames (e = 0: a
+// floor taken as exact). The ratio of two such means of the same power is
+// F-distributed, F(2m, 2e) (ratio of independent χ² over their degrees of
+// freedom); with an exact floor it is Gamma(m, 1/m). The threshold is the
+// (1 − pfa) quantile, so a baseline learned from little data widens it
+// rather than raising false alarms.
+func (t *thresholdCache) bin(m int, e float64, pfa float64) float64 {
+	if t.bins == nil {
+		t.bins = map[[2]int]float64{}
+	}
+	m = max(m, 1)
+	// Beyond 10⁶ frames the floor is as good as exact; round the rest so
+	// that the cache stays small.
+	ei := int(math.Round(e))
+	if ei > 1e6 {
+		ei = 0
+	}
+	key := [2]int{m, ei}
+	if v, ok := t.bins[key]; ok {
 		return v
 	}
-	g := distuv.Gamma{Alpha: float64(max(m, 1)), Beta: float64(max(m, 1))}
-	v := g.Quantile(1 - pfa)
-	t.bins[m] = v
+	var v float64
+	if ei <= 0 {
+		v = distuv.Gamma{Alpha: float64(m), Beta: float64(m)}.Quantile(1 - pfa)
+	} else {
+		v = distuv.F{D1: 2 * float64(m), D2: 2 * float64(ei)}.Quantile(1 - pfa)
+	}
+	t.bins[key] = v
 	return v
 }
 

@@ -30,7 +30,7 @@ func TestSpectralKurtosisOnNoise(t *testing.T) {
 			x[i] = complex(float32(rng.NormFloat64()), float32(rng.NormFloat64()))
 		}
 		in.F, in.Samples = eng.Analyze(0, x, 0), x
-		in.prepare(nil, &cfg, 0, false, &thr)
+		in.prepare(nil, 0, &cfg, 0, false, &thr)
 		sk.Compute(in)
 		for k, v := range in.SK {
 			if in.Excluded[k] {

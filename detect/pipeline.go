@@ -138,7 +138,7 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 	defer r.Close()
 
 	b := p.bankFor(cfg, fs)
-	b.reset(floor, center, hasCenter)
+	b.reset(floor, base.Frames, center, hasCenter)
 	if p.Observer != nil {
 		p.Observer.Begin(c, blockLen, cfg.FFTSize)
 	}
@@ -256,7 +256,7 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 		}
 		p.state.Baselines.update(key, func(b *Baseline) {
 			b.FFTSize = cfg.FFTSize
-			b.learn(psdSum, st.power(), c.Start(), cfg.BaselineWarmup, cfg.BaselineWeight)
+			b.learn(psdSum, psdBlocks*cfg.Frames, st.power(), c.Start(), cfg.BaselineWarmup, cfg.BaselineWeight)
 		})
 	}
 
@@ -375,21 +375,22 @@ func (p *Pipeline) BlockLen(fs float64) int {
 // one per FFT size and rate and reuses it, so that the steady state of the
 // pass allocates nothing.
 type bank struct {
-	cfg       Config
-	eng       *Spectrum
-	sk        *SpectralKurtosis
-	pulse     *Pulse
-	detectors []Detector
-	thr       thresholdCache
-	in        BlockInput
-	tr        *tracker
-	st        statsAcc
-	psdSum    []float64
-	psdBlocks int
-	findings  []Finding
-	floor     []float64
-	center    float64
-	hasCenter bool
+	cfg         Config
+	eng         *Spectrum
+	sk          *SpectralKurtosis
+	pulse       *Pulse
+	detectors   []Detector
+	thr         thresholdCache
+	in          BlockInput
+	tr          *tracker
+	st          statsAcc
+	psdSum      []float64
+	psdBlocks   int
+	findings    []Finding
+	floor       []float64
+	floorFrames float64
+	center      float64
+	hasCenter   bool
 }
 
 func (p *Pipeline) bankFor(cfg Config, fs float64) *bank {
@@ -409,8 +410,8 @@ func (p *Pipeline) bankFor(cfg Config, fs float64) *bank {
 }
 
 // reset prepares the bank for a new capture.
-func (b *bank) reset(floor []float64, center float64, hasCenter bool) {
-	b.floor, b.center, b.hasCenter = floor, center, hasCenter
+func (b *bank) reset(floor []float64, floorFrames float64, center float64, hasCenter bool) {
+	b.floor, b.floorFrames, b.center, b.hasCenter = floor, floorFrames, center, hasCenter
 	fs := b.eng.fs
 	var prev []float32
 	if b.tr != nil {
@@ -429,7 +430,7 @@ func (b *bank) block(blk ingest.Block, obs BlockObserver) {
 	f := b.eng.Analyze(blk.Start, blk.Samples, blk.Clipped)
 	in := &b.in
 	in.F, in.Samples = f, blk.Samples
-	in.prepare(b.floor, &b.cfg, b.center, b.hasCenter, &b.thr)
+	in.prepare(b.floor, b.floorFrames, &b.cfg, b.center, b.hasCenter, &b.thr)
 	b.sk.Compute(in)
 	fnd := b.findings[:0]
 	if f.Frames >= minFrames {

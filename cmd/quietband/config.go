@@ -53,6 +53,9 @@ type inputConfig struct {
 type logConfig struct {
 	Path     string `yaml:"path"`
 	MaxBytes int64  `yaml:"max_bytes"`
+	// AnchorEvery is how many records pass between two anchors (the
+	// chain head logged for an auditor to keep); nil: the default, 0: none.
+	AnchorEvery *uint64 `yaml:"anchor_every"`
 }
 
 type retentionConfig struct {

@@ -36,6 +36,10 @@ const (
 	anchorEvery    = time.Hour        // log the event log's head this often
 	retentionEvery = time.Hour        // retention sweep
 	shutdownGrace  = 5 * time.Second  // time the capture in hand gets on SIGTERM
+
+	// defaultAnchorEvery is how many event-log records pass between two
+	// anchors (see daemon.anchor).
+	defaultAnchorEvery = 100
 )
 
 // stringList is a repeatable string flag.
@@ -168,6 +172,7 @@ type daemon struct {
 	lastFailLog  time.Time
 	processed    atomic.Int64 // captures recorded by this run
 	appendFailed atomic.Bool
+	anchorEvery  uint64 // records between anchors; 0: none
 }
 
 // newDaemon opens the event log, rebuilds the ledger from it, loads the
@@ -182,7 +187,11 @@ func newDaemon(cfg *runConfig, cfgPath string, over runOverrides, logOut io.Writ
 	level.Set(lv)
 	log := slog.New(levelHandler{base.Handler(), level})
 	d := &daemon{cfg: cfg, cfgPath: cfgPath, over: over, log: log, level: level, retry: appendRetry,
-		grace: shutdownGrace, sweepEvery: retentionEvery, inputs: map[string]inputConfig{}}
+		grace: shutdownGrace, sweepEvery: retentionEvery, inputs: map[string]inputConfig{},
+		anchorEvery: defaultAnchorEvery}
+	if cfg.Log.AnchorEvery != nil {
+		d.anchorEvery = *cfg.Log.AnchorEvery
+	}
 	// The capture in hand runs under procCtx: a stop signal cancels it
 	// after the grace time, a second one at once (abandon).
 	d.procCtx, d.abandonProc = context.WithCancel(context.Background())
@@ -371,6 +380,24 @@ func (d *daemon) housekeeping(now time.Time) {
 	}
 }
 
+// anchor logs the event log's chain head, at Info with msg "quietband run:
+// event log anchor" and the members seq and head, each time the records
+// just written pass a multiple of d.anchorEvery. The head is
+// hex(SHA-256(line_seq)), the value record seq+1 will carry as its prev.
+// An auditor compares these anchors, kept elsewhere (a log collector), with
+// the event log: eventlog.Verify over the log cut after record seq must
+// give Summary.Head == head; a log altered, cut or rewritten before seq
+// since the anchor was shipped does not.
+func (d *daemon) anchor(recs []eventlog.Record) {
+	if d.anchorEvery == 0 || len(recs) == 0 {
+		return
+	}
+	last := recs[len(recs)-1].Seq
+	if first := recs[0].Seq - 1; last/d.anchorEvery > first/d.anchorEvery {
+		d.log.Info("quietband run: event log anchor", "seq", last, "head", d.elog.Head())
+	}
+}
+
 func (d *daemon) setBehind(b bool) {
 	if d.behind.Swap(b) != b {
 		if b {
@@ -462,6 +489,7 @@ func (d *daemon) handle(ctx context.Context, w ingest.Work) error {
 	}
 	d.processed.Add(1)
 	d.ledger.note(recs)
+	d.anchor(recs)
 	d.recent.Add(recs...)
 
 	mc := metrics.Capture{Input: w.Input, Record: rec, Events: events, At: time.Now(), Satellites: d.pipe.GNSS != nil}
@@ -471,7 +499,12 @@ func (d *daemon) handle(ctx context.Context, w ingest.Work) error {
 		mc.Duration = w.Capture.Duration()
 		mc.Elapsed = res.Elapsed
 		if len(events) == 0 {
+			// A clean capture taught the baseline: save it now, right
+			// after the capture's record, so that a crash loses at most
+			// the capture in hand (which is then analysed again against
+			// the same baseline as it would have been).
 			d.baseDirty = true
+			d.saveBaseline()
 		}
 	}
 	d.set.ObserveCapture(mc)
@@ -602,7 +635,12 @@ func pendingItems(items []eventlog.Item, got []eventlog.Record) []eventlog.Item 
 
 // hashFile is the lowercase hex SHA-256 of a file, "" if it cannot be read.
 func hashFile(path string) string {
-	f, err := os.Open(path)
+	// Lstat first: opening a FIFO for reading would block until a writer
+	// came, stalling the daemon.
+	if st, err := os.Lstat(path); err != nil || !st.Mode().IsRegular() {
+		return ""
+	}
+	f, err := os.OpenFile(path, os.O_RDONLY|syscall.O_NONBLOCK, 0)
 	if err != nil {
 		return ""
 	}
