@@ -114,9 +114,10 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) 
 }
 
 // ProcessMeasured is Process with the satellites already measured (by
-// MeasureSatellites); with sats nil, the pipeline's own GNSS meter, if
-// any, measures them during the pass.
-func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name string, sats *SatelliteResult) (*Result, error) {
+// MeasureSatellites, perhaps still running: sats is called once, after
+// the spectral pass, and may wait for it); with sats nil, the pipeline's
+// own GNSS meter, if any, measures them during the pass.
+func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name string, sats func() (SatelliteResult, error)) (*Result, error) {
 	t0 := time.Now()
 	fs := c.SampleRate
 	cfg := p.cfg.Defaults(fs)
@@ -146,7 +147,6 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 	meter := p.GNSS
 	if sats != nil {
 		meter = nil
-		st.gnssSkipped = sats.Skipped
 	} else if meter != nil {
 		if why := meter.Start(fs, center, hasCenter); why != "" {
 			st.gnssSkipped = why
@@ -171,13 +171,22 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 	psdSum, psdBlocks := b.psdSum, b.psdBlocks
 	sha := r.SHA256()
 	tr.finish()
+	var measured SatelliteResult
+	if sats != nil {
+		m, err := sats()
+		if err != nil {
+			return nil, err
+		}
+		measured = m
+		st.gnssSkipped = m.Skipped
+	}
 
 	res := &Result{Blocks: st.blocks}
 	fp := p.Fingerprint(fs)
 	stats := st.stats(base.Power)
 	switch {
 	case sats != nil:
-		stats.Satellites = sats.Satellites
+		stats.Satellites = measured.Satellites
 	case meter != nil && st.gnssSkipped == "":
 		stats.Satellites = meter.Result()
 	}

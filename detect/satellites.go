@@ -271,6 +271,7 @@ func MeasureSatellites(ctx context.Context, c *ingest.Capture, m SatelliteMeter,
 		return SatelliteResult{}, err
 	}
 	defer r.Close()
+	r.SkipHash() // the spectral pass hashes the capture
 	for {
 		if err := ctx.Err(); err != nil {
 			return SatelliteResult{}, err

@@ -218,10 +218,13 @@ func replay(ctx context.Context, o replayOptions) (*replaySummary, error) {
 			var err error
 			pipe.Observer = aout.observer()
 			if measured != nil {
-				sat := <-measured[i]
-				if err = sat.err; err == nil {
-					res, err = pipe.ProcessMeasured(ctx, j.capture, j.name, &sat.result)
-				}
+				// The spectral pass runs while the satellites are still
+				// being measured; it waits for them only at its end.
+				ch := measured[i]
+				res, err = pipe.ProcessMeasured(ctx, j.capture, j.name, func() (detect.SatelliteResult, error) {
+					sat := <-ch
+					return sat.result, sat.err
+				})
 			} else {
 				res, err = pipe.Process(ctx, j.capture, j.name)
 			}

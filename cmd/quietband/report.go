@@ -307,7 +307,7 @@ func redraw(ctx context.Context, pipe *detect.Pipeline, root string, rec detect.
 	if rec.Stats != nil {
 		sats = detect.SatelliteResult{Satellites: rec.Stats.Satellites, Skipped: rec.Stats.GNSSSkipped}
 	}
-	res, err := pipe.ProcessMeasured(ctx, c, rec.Capture, &sats)
+	res, err := pipe.ProcessMeasured(ctx, c, rec.Capture, func() (detect.SatelliteResult, error) { return sats, nil })
 	if err != nil {
 		if ctx.Err() != nil {
 			return nil, "", err
