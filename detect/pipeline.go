@@ -62,7 +62,7 @@ type Result struct {
 	Events  []Event
 	Record  CaptureRecord
 	Elapsed time.Duration
-	// Spectra holds per-block summaries for reports (decimated PSD rows).
+	// Blocks is the number of blocks the capture was analysed in.
 	Blocks int
 }
 
