@@ -92,7 +92,6 @@ type PulseParams struct {
 	Pulses       int
 	PairSpacingS float64
 	DutyCycle    float64
-	FirstS       float64 // first pulse start, seconds into the block
 	// Groups are the arrival times (capture samples) of the pulses, or of
 	// the first pulse of each pair, so that the event's PRI can be fitted
 	// over all its blocks.

@@ -50,23 +50,22 @@ type Params struct {
 	// cw
 	Tones []ToneParam `json:"tones,omitempty"`
 	// swept
-	SweepPeriodS     *float64 `json:"sweep_period_s,omitempty"`
-	SweepLowHz       *float64 `json:"sweep_low_hz,omitempty"`
-	SweepHighHz      *float64 `json:"sweep_high_hz,omitempty"`
-	SweepRateHzPerS  *float64 `json:"sweep_rate_hz_per_s,omitempty"`
-	Shape            string   `json:"shape,omitempty"`
-	PulseWidthS      *float64 `json:"pulse_width_s,omitempty"`
-	PRIS             *float64 `json:"pri_s,omitempty"`
-	DutyCycle        *float64 `json:"duty_cycle,omitempty"`
-	Pulses           *int     `json:"pulses,omitempty"`
-	PairSpacingS     *float64 `json:"pair_spacing_s,omitempty"`
-	FloorRiseDB      *float64 `json:"floor_rise_db,omitempty"`
-	DropDB           *float64 `json:"drop_db,omitempty"`
-	BaselineDBHz     *float64 `json:"baseline_dbhz,omitempty"`
-	CN0DBHz          *float64 `json:"cn0_dbhz,omitempty"`
-	PRNs             []int    `json:"prns,omitempty"`
-	SatellitesLost   []int    `json:"satellites_lost,omitempty"`
-	OccupiedFraction *float64 `json:"occupied_fraction,omitempty"`
+	SweepPeriodS    *float64 `json:"sweep_period_s,omitempty"`
+	SweepLowHz      *float64 `json:"sweep_low_hz,omitempty"`
+	SweepHighHz     *float64 `json:"sweep_high_hz,omitempty"`
+	SweepRateHzPerS *float64 `json:"sweep_rate_hz_per_s,omitempty"`
+	Shape           string   `json:"shape,omitempty"`
+	PulseWidthS     *float64 `json:"pulse_width_s,omitempty"`
+	PRIS            *float64 `json:"pri_s,omitempty"`
+	DutyCycle       *float64 `json:"duty_cycle,omitempty"`
+	Pulses          *int     `json:"pulses,omitempty"`
+	PairSpacingS    *float64 `json:"pair_spacing_s,omitempty"`
+	FloorRiseDB     *float64 `json:"floor_rise_db,omitempty"`
+	DropDB          *float64 `json:"drop_db,omitempty"`
+	BaselineDBHz    *float64 `json:"baseline_dbhz,omitempty"`
+	CN0DBHz         *float64 `json:"cn0_dbhz,omitempty"`
+	PRNs            []int    `json:"prns,omitempty"`
+	SatellitesLost  []int    `json:"satellites_lost,omitempty"`
 }
 
 // ToneParam is one tone of a cw event.

@@ -196,7 +196,6 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 	}
 	dur := float64(len(x)) / fs
 	pp.DutyCycle = float64(n) * w / dur
-	pp.FirstS = float64(d.starts[0]) / fs
 	off := fs / (2 * math.Pi) * cmplx.Phase(lag)
 	bw := 1 / w
 	return append(out, Finding{Detector: d.Name(), Class: ClassPulsed, LowHz: off - bw, HighHz: off + bw,

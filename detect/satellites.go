@@ -32,6 +32,7 @@ type GNSSMeter struct {
 	plan     *fft.Plan
 	spec     []complex64
 	pow      []float64
+	scratch  []float64
 	fill     int
 	done     bool
 	acquired []gnss.Acquired
@@ -233,7 +234,7 @@ func (m *GNSSMeter) excise(x []complex64) {
 		for k, v := range m.spec {
 			m.pow[k] = float64(real(v)*real(v) + imag(v)*imag(v))
 		}
-		thr := exciseFactor * medianOf(m.pow)
+		thr := exciseFactor * medianScratch(&m.scratch, m.pow)
 		hit := false
 		for k, p := range m.pow {
 			if p > thr {

@@ -163,6 +163,3 @@ func (f *Features) Bin(hz float64) int {
 
 // Frame returns the normalized powers of frame i.
 func (f *Features) Frame(i int) []float32 { return f.FramePSD[i*f.N : (i+1)*f.N] }
-
-// FrameSamples is the number of samples per frame.
-func (f *Features) FrameSamples() int { return f.N }

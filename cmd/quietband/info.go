@@ -2,6 +2,7 @@ package main
 
 import (
 	"errors"
+	"flag"
 	"fmt"
 	"io"
 	"math"
@@ -33,6 +34,19 @@ func addRawFlags(fs interface {
 	}
 }
 
+// parsePathArgs parses the flags of a command that takes capture paths,
+// insists on at least one path, and returns the raw-file settings.
+func parsePathArgs(fs *flag.FlagSet, args []string, raw rawFlags) (ingest.RawSettings, error) {
+	if err := parseFlags(fs, args); err != nil {
+		return ingest.RawSettings{}, err
+	}
+	if fs.NArg() == 0 {
+		fs.Usage()
+		return ingest.RawSettings{}, errUsage
+	}
+	return raw.settings()
+}
+
 func (r rawFlags) settings() (ingest.RawSettings, error) {
 	s := ingest.RawSettings{SampleRate: *r.rate, CenterHz: *r.center, HasCenter: *r.center != 0}
 	if *r.format != "" {
@@ -52,14 +66,7 @@ sample format, rate, centre frequency, start time, duration, mean power in
 dBFS and the fraction of clipped samples. The whole file is read. A capture
 that cannot be read gets a line saying why, and the exit status is 1.`, errOut)
 	raw := addRawFlags(fs)
-	if err := parseFlags(fs, args); err != nil {
-		return err
-	}
-	if fs.NArg() == 0 {
-		fs.Usage()
-		return errUsage
-	}
-	settings, err := raw.settings()
+	settings, err := parsePathArgs(fs, args, raw)
 	if err != nil {
 		return err
 	}

@@ -70,14 +70,7 @@ as quarantined, and replay goes on; the exit status is 1 if any was bad.`, errOu
 	annotate := fs.Bool("annotate", false, "write each event as a SigMF annotation into a copy of its capture's metadata, --report folder/annotations/NAME.sigmf-meta (raw captures get none)")
 	inPlace := fs.Bool("in-place", false, "with --annotate: rewrite the captures' own .sigmf-meta instead, atomically (earlier quietband annotations are replaced, everything else is kept)")
 	csvPath := fs.String("csv", "", "write the events to this CSV file, one row per event (columns: see the report package documentation)")
-	if err := parseFlags(fs, args); err != nil {
-		return err
-	}
-	if fs.NArg() == 0 {
-		fs.Usage()
-		return errUsage
-	}
-	settings, err := raw.settings()
+	settings, err := parsePathArgs(fs, args, raw)
 	if err != nil {
 		return err
 	}

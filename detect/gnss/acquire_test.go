@@ -133,11 +133,7 @@ func TestAcquireDetection(t *testing.T) {
 			t.Fatal(err)
 		}
 		for range tc.captures {
-			prns := rng.Perm(32)[:len(levels)]
-			var sats []satSpec
-			for i, p := range prns {
-				sats = append(sats, randomSat(rng, p+1, levels[i], 5000))
-			}
+			sats := randomSky(rng, levels)
 			c := synthesize(rng, tc.fs, gpsca.L1, 1, a.SnapshotLen(), sats)
 			res, err := a.Acquire(nil, c.x)
 			if err != nil {
@@ -388,11 +384,7 @@ func TestAcquireScreen(t *testing.T) {
 			t.Fatal(err)
 		}
 		for range tc.captures {
-			prns := rng.Perm(32)[:len(levels)]
-			var sats []satSpec
-			for i, p := range prns {
-				sats = append(sats, randomSat(rng, p+1, levels[i], 5000))
-			}
+			sats := randomSky(rng, levels)
 			c := synthesize(rng, tc.fs, gpsca.L1, 1, a.SnapshotLen(), sats)
 			a.exhaustive = true
 			full, err := a.Acquire(nil, c.x)
@@ -493,4 +485,14 @@ func TestAcquireDetectionLong(t *testing.T) {
 			t.Errorf("fs %g: P_d %.3f at 38 dB-Hz, want ≥ 0.95", tc.fs, pd)
 		}
 	}
+}
+
+// randomSky draws one satellite per C/N0 level on distinct random PRNs,
+// with random Doppler within ±5 kHz and random code phase.
+func randomSky(rng *rand.Rand, levels []float64) []satSpec {
+	var sats []satSpec
+	for i, p := range rng.Perm(32)[:len(levels)] {
+		sats = append(sats, randomSat(rng, p+1, levels[i], 5000))
+	}
+	return sats
 }
