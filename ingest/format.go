@@ -174,52 +174,57 @@ func (f Format) Decode(dst []complex64, src []byte) (clipped, bad int) {
 			}
 			dst[i] = complex((float32(a)-127.5)*(1.0/127.5), (float32(b)-127.5)*(1.0/127.5))
 		}
-	case CI16LE, CI16BE:
-		var bo binary.ByteOrder = binary.LittleEndian
-		if f == CI16BE {
-			bo = binary.BigEndian
-		}
+	case CI16LE:
 		src = src[:4*len(dst)]
 		for i := range dst {
-			a, b := int16(bo.Uint16(src[4*i:])), int16(bo.Uint16(src[4*i+2:]))
-			if a == math.MinInt16 || a == math.MaxInt16 || b == math.MinInt16 || b == math.MaxInt16 {
-				clipped++
-			}
-			dst[i] = complex(float32(a)*(1.0/32768), float32(b)*(1.0/32768))
+			w := binary.LittleEndian.Uint32(src[4*i:])
+			clipped += clip16(uint16(w)) | clip16(uint16(w>>16))
+			dst[i] = complex(float32(int16(w))*(1.0/32768), float32(int16(w>>16))*(1.0/32768))
+		}
+	case CI16BE:
+		src = src[:4*len(dst)]
+		for i := range dst {
+			a, b := binary.BigEndian.Uint16(src[4*i:]), binary.BigEndian.Uint16(src[4*i+2:])
+			clipped += clip16(a) | clip16(b)
+			dst[i] = complex(float32(int16(a))*(1.0/32768), float32(int16(b))*(1.0/32768))
 		}
 	case CU16LE, CU16BE:
-		var bo binary.ByteOrder = binary.LittleEndian
-		if f == CU16BE {
-			bo = binary.BigEndian
-		}
+		src = src[:4*len(dst)]
 		for i := range dst {
-			a, b := bo.Uint16(src[4*i:]), bo.Uint16(src[4*i+2:])
-			if a == 0 || a == math.MaxUint16 || b == 0 || b == math.MaxUint16 {
-				clipped++
+			var a, b uint16
+			if f == CU16LE {
+				a, b = binary.LittleEndian.Uint16(src[4*i:]), binary.LittleEndian.Uint16(src[4*i+2:])
+			} else {
+				a, b = binary.BigEndian.Uint16(src[4*i:]), binary.BigEndian.Uint16(src[4*i+2:])
 			}
+			// An offset-binary code is clipped at 0 and 0xFFFF, the signed
+			// extremes with the top bit flipped.
+			clipped += clip16(a^0x8000) | clip16(b^0x8000)
 			dst[i] = complex((float32(a)-32767.5)*(1.0/32767.5), (float32(b)-32767.5)*(1.0/32767.5))
 		}
 	case CI32LE, CI32BE:
-		var bo binary.ByteOrder = binary.LittleEndian
-		if f == CI32BE {
-			bo = binary.BigEndian
-		}
+		src = src[:8*len(dst)]
 		for i := range dst {
-			a, b := int32(bo.Uint32(src[8*i:])), int32(bo.Uint32(src[8*i+4:]))
+			var a, b int32
+			if f == CI32LE {
+				a, b = int32(binary.LittleEndian.Uint32(src[8*i:])), int32(binary.LittleEndian.Uint32(src[8*i+4:]))
+			} else {
+				a, b = int32(binary.BigEndian.Uint32(src[8*i:])), int32(binary.BigEndian.Uint32(src[8*i+4:]))
+			}
 			if a == math.MinInt32 || a == math.MaxInt32 || b == math.MinInt32 || b == math.MaxInt32 {
 				clipped++
 			}
 			dst[i] = complex(float32(float64(a)/2147483648), float32(float64(b)/2147483648))
 		}
 	case CF32LE, CF32BE:
-		var bo binary.ByteOrder = binary.LittleEndian
-		if f == CF32BE {
-			bo = binary.BigEndian
-		}
 		src = src[:8*len(dst)]
 		for i := range dst {
-			a := math.Float32frombits(bo.Uint32(src[8*i:]))
-			b := math.Float32frombits(bo.Uint32(src[8*i+4:]))
+			var a, b float32
+			if f == CF32LE {
+				a, b = math.Float32frombits(binary.LittleEndian.Uint32(src[8*i:])), math.Float32frombits(binary.LittleEndian.Uint32(src[8*i+4:]))
+			} else {
+				a, b = math.Float32frombits(binary.BigEndian.Uint32(src[8*i:])), math.Float32frombits(binary.BigEndian.Uint32(src[8*i+4:]))
+			}
 			if !finite32(a) || !finite32(b) {
 				bad++
 				a, b = 0, 0
@@ -229,13 +234,14 @@ func (f Format) Decode(dst []complex64, src []byte) (clipped, bad int) {
 			dst[i] = complex(a, b)
 		}
 	case CF64LE, CF64BE:
-		var bo binary.ByteOrder = binary.LittleEndian
-		if f == CF64BE {
-			bo = binary.BigEndian
-		}
+		src = src[:16*len(dst)]
 		for i := range dst {
-			a := math.Float64frombits(bo.Uint64(src[16*i:]))
-			b := math.Float64frombits(bo.Uint64(src[16*i+8:]))
+			var a, b float64
+			if f == CF64LE {
+				a, b = math.Float64frombits(binary.LittleEndian.Uint64(src[16*i:])), math.Float64frombits(binary.LittleEndian.Uint64(src[16*i+8:]))
+			} else {
+				a, b = math.Float64frombits(binary.BigEndian.Uint64(src[16*i:])), math.Float64frombits(binary.BigEndian.Uint64(src[16*i+8:]))
+			}
 			if math.IsNaN(a) || math.IsInf(a, 0) || math.IsNaN(b) || math.IsInf(b, 0) {
 				bad++
 				a, b = 0, 0
@@ -251,6 +257,16 @@ func (f Format) Decode(dst []complex64, src []byte) (clipped, bad int) {
 		panic("ingest: Decode of unknown format")
 	}
 	return clipped, bad
+}
+
+// clip16 is 1 if the two's-complement code v is −32768 or 32767, the
+// extremes a saturating converter outputs, else 0: v+1 is then 0x8000 or
+// 0x8001.
+func clip16(v uint16) int {
+	if (v+1)&0xfffe == 0x8000 {
+		return 1
+	}
+	return 0
 }
 
 func finite32(v float32) bool {
