@@ -28,6 +28,15 @@
 // fast Fourier transform?", Proc. IEEE 55(10):1664–1674, 1967) was measured
 // as well and was 1.2–1.9× slower on amd64, so it is not used.
 //
+// On amd64 with AVX (and without the purego build tag) the first pass and
+// the radix-4 stages run as assembly kernels (radix4_amd64.s) that process
+// four butterflies at once in 256-bit registers. They perform the same
+// float32 operations in the same order as the Go kernels of kernels.go,
+// without fused multiply-adds, so both give the same values (a test
+// checks this) and results do not depend on the machine. At 1024 points
+// that is about 6× the Go kernels' speed (BenchmarkForward,
+// BenchmarkForwardScalar).
+//
 // Other lengths use gonum's dsp/fourier.CmplxFFT (a port of FFTPACK's
 // mixed-radix transform, complex128), with the widened copy held in the Plan.
 //

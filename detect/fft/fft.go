@@ -25,6 +25,11 @@ type Plan struct {
 	istages [][]twiddle3 // the same, conjugated, for Inverse
 	scratch []complex64  // copy of src when the transform runs in place
 
+	// The same twiddles grouped for the vector kernel (see vectorTwiddles),
+	// when vector is set.
+	vector            bool
+	vstages, vistages [][]complex64
+
 	// Other lengths.
 	cmplx *fourier.CmplxFFT
 	wide  []complex128
@@ -81,8 +86,31 @@ func (p *Plan) initPow2() {
 		}
 		p.stages = append(p.stages, fw)
 		p.istages = append(p.istages, iw)
+		if hasVector && q%4 == 0 {
+			p.vstages = append(p.vstages, vectorTwiddles(fw))
+			p.vistages = append(p.vistages, vectorTwiddles(iw))
+		}
 	}
+	p.vector = hasVector && len(p.vstages) == len(p.stages)
 	p.scratch = make([]complex64, n)
+}
+
+// vectorTwiddles lays the twiddles of a stage out for the vector kernel:
+// for each group of four k, W^k of the four, then W^{2k}, then W^{3k}.
+func vectorTwiddles(tw []twiddle3) []complex64 {
+	v := make([]complex64, 0, 3*len(tw))
+	for k := 0; k < len(tw); k += 4 {
+		for j := range 4 {
+			v = append(v, tw[k+j].w1)
+		}
+		for j := range 4 {
+			v = append(v, tw[k+j].w2)
+		}
+		for j := range 4 {
+			v = append(v, tw[k+j].w3)
+		}
+	}
+	return v
 }
 
 // twiddle returns e^{−j2πk/s}, computed in float64 and rounded to
@@ -154,10 +182,25 @@ func (p *Plan) transform(dst, src []complex64, inv bool) []complex64 {
 			copy(p.scratch, src)
 			src = p.scratch
 		}
-		if p.first8 {
+		switch {
+		case p.first8 && p.vector && len(p.perm)%4 == 0:
+			first8Vector(dst, src, p.perm, inv)
+		case p.first8:
 			first8(dst, src, p.perm, inv)
-		} else {
+		case p.vector && len(p.perm)%4 == 0:
+			first4Vector(dst, src, p.perm, inv)
+		default:
 			first4(dst, src, p.perm, inv)
+		}
+		if p.vector {
+			stages := p.vstages
+			if inv {
+				stages = p.vistages
+			}
+			for _, tw := range stages {
+				radix4Vector(dst, tw, len(tw)/3, inv)
+			}
+			break
 		}
 		stages := p.stages
 		if inv {

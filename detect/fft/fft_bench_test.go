@@ -9,7 +9,29 @@ import (
 )
 
 // benchSizes are the transform lengths of BenchmarkForward and BenchmarkGonum.
-var benchSizes = []int{64, 256, 1024, 4096, 16384, 65536}
+var benchSizes = []int{64, 256, 1024, 2048, 4096, 16384, 65536}
+
+// BenchmarkForwardScalar is BenchmarkForward with the vector kernel off: the
+// pure-Go radix-4 stages (what a machine without AVX runs).
+func BenchmarkForwardScalar(b *testing.B) {
+	for _, n := range []int{1024, 2048, 4096} {
+		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) {
+			src := make([]complex64, n)
+			for i := range src {
+				src[i] = complex(float32(i%7), float32(i%5))
+			}
+			dst := make([]complex64, n)
+			p := NewPlan(n)
+			p.vector = false
+			b.SetBytes(int64(8 * n))
+			b.ReportAllocs()
+			for b.Loop() {
+				p.Forward(dst, src)
+			}
+			b.ReportMetric(float64(n)*float64(b.N)/b.Elapsed().Seconds()/1e6, "MS/s")
+		})
+	}
+}
 
 // BenchmarkForward measures Plan.Forward (complex64, out of place, reused
 // plan and dst).
