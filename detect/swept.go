@@ -43,6 +43,7 @@ type Swept struct {
 	lp      []complex64
 	mag     []float64
 	prof    []float64
+	edge    bool // the last level of the last fold peaked at its grid's edge
 }
 
 // Name implements Detector.
@@ -59,21 +60,25 @@ func (d *Swept) Detect(in *BlockInput, out []Finding) []Finding {
 	if f.Frames == 0 || len(in.Samples) < 4*f.N {
 		return out
 	}
-	period, found := d.periodicity(in)
-	if !found {
-		d.last = SweepParams{}
-		return out
-	}
-	// A sweep measured in the last block at this period is most likely
-	// the same one: one fine fold around its refined period costs a
-	// fraction of the search. (The check against this block's own
-	// estimate keeps a poor fit from a block the sweep only partly filled
-	// from being carried on.)
+	// A sweep measured in the last block is most likely still there: one
+	// fine fold around its refined period costs a fraction of the search,
+	// and the fold's coherence re-checks it (a sweep that stopped or
+	// changed its period folds incoherently). The autocorrelation search
+	// runs when no sweep is being followed, or when the fine fold fails.
 	var sw SweepParams
-	var ok bool
-	if d.last.PeriodS > 0 && math.Abs(period-d.last.PeriodS) < 0.02*d.last.PeriodS {
+	ok := false
+	if d.last.PeriodS > 0 && constantEnvelope(f, len(in.Samples)) {
 		sw, ok = d.foldNear(in.Samples, f.Fs, d.last.PeriodS)
-	} else {
+		// A best period at the edge of the ±1 step grid has drifted
+		// further than the fine fold can follow: search again.
+		ok = ok && !d.edge && sw.Coherent >= minSweepCoherence
+	}
+	if !ok {
+		period, found := d.periodicity(in)
+		if !found {
+			d.last = SweepParams{}
+			return out
+		}
 		sw, ok = d.fold(in.Samples, f.Fs, period)
 	}
 	if !ok || sw.Coherent < minSweepCoherence {
@@ -239,9 +244,10 @@ func constantEnvelope(f *Features, k int) bool {
 }
 
 // foldNear folds the block around a known period only, at the finest
-// step of the full search.
+// step of the full search and ±1 step (the parabola through the three
+// points refines it; d.edge tells when the best was at the edge).
 func (d *Swept) foldNear(x []complex64, fs, period float64) (SweepParams, bool) {
-	return d.foldFrom(x, fs, period, len(x), period*float64(period*fs)/(8*float64(len(x))), 3)
+	return d.foldFrom(x, fs, period, len(x), period*float64(period*fs)/(8*float64(len(x))), 1)
 }
 
 // fold refines the period and measures the sweep from the folded lag
@@ -306,6 +312,7 @@ func (d *Swept) foldFrom(x []complex64, fs, period float64, span int, step float
 			}
 		}
 		period += (float64(bestI) + delta) * step
+		d.edge = bestI == -half || bestI == half
 		if span == len(x) {
 			break
 		}
@@ -345,21 +352,20 @@ func strongestSpan(mag []float64, span int) int {
 // bins and returns Σ_b |Z_b| / tot, tot being Σ|lp[n]|.
 func coherence(z []complex128, lp []complex64, tot, fs, t float64) float64 {
 	clear(z)
-	bins := float64(len(z))
-	inc := bins / (t * fs)
 	nb := len(z)
-	// The phase bin advances by inc per sample; keep it as a running
-	// value, wrapped, instead of a floor per sample.
-	ph := 0.0
+	// The phase bin advances by bins/(t·fs) per sample; keep it as a
+	// running fixed-point value (bins·2^32 per period), wrapped, instead
+	// of a floor per sample: an integer addition per sample, where a
+	// floating-point one would chain its latency through the loop.
+	const one = 1 << 32
+	inc := uint64(math.Round(float64(nb) / (t * fs) * one))
+	wrap := uint64(nb) * one
+	ph := uint64(0)
 	for i := range lp {
-		b := int(ph)
-		if b >= nb {
-			b = nb - 1
-		}
-		z[b] += complex128(lp[i])
+		z[ph>>32] += complex128(lp[i])
 		ph += inc
-		if ph >= bins {
-			ph -= bins
+		if ph >= wrap {
+			ph -= wrap
 		}
 	}
 	var s float64
