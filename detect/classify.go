@@ -78,8 +78,24 @@ func (t *tracker) block(in *BlockInput, fs []Finding) {
 	// line spectrum), a comb of tones (the same, where the sweep fills too
 	// little of the block to be measured), a pulse train (its spectrum
 	// in frames where SK cannot tell it from noise).
+	bin := f.Fs / float64(f.N)
+	// A pulse train's lines, in its main lobe and in its sidelobes, are
+	// its own: they leave the CW findings tone by tone.
+	for _, c := range fs {
+		if c.Class != ClassPulsed {
+			continue
+		}
+		for i := range fs {
+			if x := &fs[i]; x.Class == ClassCW && len(x.Tones) > 0 {
+				dropPulseTones(x, c, bin, f.Fs)
+			}
+		}
+	}
 	var swept, claims []Finding
 	for _, x := range fs {
+		if x.Class == ClassCW && len(x.Tones) == 0 {
+			continue
+		}
 		switch {
 		case x.Class == ClassSwept:
 			swept = append(swept, x)
@@ -93,13 +109,15 @@ func (t *tracker) block(in *BlockInput, fs []Finding) {
 			claims = append(claims, Finding{Class: ClassSwept, LowHz: o.lo, HighHz: o.hi})
 		}
 	}
-	bin := f.Fs / float64(f.N)
 	claimed := func(x Finding) bool {
 		for _, c := range claims {
 			// A sweep's spectrum has skirts beyond its edges.
 			margin := 2 * bin
 			if c.Class == ClassSwept {
 				margin = math.Max(margin, 0.05*(c.HighHz-c.LowHz))
+			}
+			if c.Class == ClassPulsed && c.explainsSidelobe(x, bin, f.Fs) {
+				return true
 			}
 			if c.Class != x.Class && overlaps(x.LowHz, x.HighHz, c.LowHz-margin, c.HighHz+margin) {
 				return true
@@ -115,7 +133,7 @@ func (t *tracker) block(in *BlockInput, fs []Finding) {
 	}
 	var classed []Finding
 	for _, x := range fs {
-		if x.Class == "" || (x.Class == ClassCW && isComb(x.Tones)) {
+		if x.Class == "" || (x.Class == ClassCW && (len(x.Tones) == 0 || isComb(x.Tones))) {
 			continue
 		}
 		if x.Class == ClassNarrowbandNoise && claimed(x) {
@@ -127,10 +145,6 @@ func (t *tracker) block(in *BlockInput, fs []Finding) {
 		// itself being measurable. A real CW inside an active sweep's band
 		// is not reported separately until the sweep stops.
 		if (x.Class == ClassCW || x.Class == ClassWidebandNoise) && sweeping && claimed(x) {
-			continue
-		}
-		// A periodic pulse train has a line spectrum too.
-		if x.Class == ClassCW && claimedBy(claims, x, ClassPulsed, bin) {
 			continue
 		}
 		classed = append(classed, x)
@@ -533,12 +547,72 @@ func isComb(t []ToneParam) bool {
 	return regular >= len(gaps)*2/3
 }
 
-// claimedBy reports whether a finding of class by among claims overlaps x.
-func claimedBy(claims []Finding, x Finding, by string, bin float64) bool {
-	for _, c := range claims {
-		if c.Class == by && overlaps(x.LowHz, x.HighHz, c.LowHz-2*bin, c.HighHz+2*bin) {
-			return true
+// explainsSidelobe reports whether narrow finding x, outside pulse train
+// c's main lobe, is no stronger than c's own spectrum there. A band
+// [lo, hi] of width B gets from the train, over the noise power N, on
+// average R·max(B, rate)/fs with R its power spectral density over the
+// noise's (Finding.sidelobes) and rate its pulse rate: its lines, rate
+// apart, carry R·rate/fs each, one of which a band narrower than rate
+// can catch whole. x is explained if its J/N is at most 4× that with the
+// largest R over its band ± one bin (the 4 covers a pair's interference,
+// up to 2× the average, and the scatter of one block's estimate). A CW
+// finding is judged tone by tone (each over its ±maxToneHalfWidth bins):
+// see dropPulseTones.
+func (c Finding) explainsSidelobe(x Finding, bin, fs float64) bool {
+	return c.sidelobeJN(x.LowHz, x.HighHz, math.Max(x.HighHz-x.LowHz, 1.5*bin), bin, fs) >= x.JN
+}
+
+// sidelobeJN is the most J/N pulse train c's spectrum explains in the band
+// lo..hi of width band (see explainsSidelobe); 0 without a spectrum.
+func (c Finding) sidelobeJN(lo, hi, band, bin, fs float64) float64 {
+	if len(c.sidelobes) == 0 || c.sidelobeStep <= 0 {
+		return 0
+	}
+	dlo, dhi := math.Abs(lo-c.OffsetHz), math.Abs(hi-c.OffsetHz)
+	near, far := math.Min(dlo, dhi), math.Max(dlo, dhi)
+	if lo <= c.OffsetHz && c.OffsetHz <= hi {
+		near = 0
+	}
+	i0 := max(0, int((near-bin)/c.sidelobeStep))
+	i1 := min(len(c.sidelobes)-1, int(math.Ceil((far+bin)/c.sidelobeStep)))
+	r := float32(0)
+	for i := i0; i <= i1; i++ {
+		r = max(r, c.sidelobes[i])
+	}
+	return 4 * float64(r) * math.Max(band, c.pulseRate) / fs
+}
+
+// dropPulseTones removes from CW finding x the tones that are pulse train
+// c's own lines (a periodic train has a line spectrum): those in its main
+// lobe (± 2 bins), and those outside it that its spectrum explains (see
+// explainsSidelobe), in place, and updates x's band and J/N; it reports
+// whether any tone is left.
+func dropPulseTones(x *Finding, c Finding, bin, fs float64) bool {
+	band := float64(2*maxToneHalfWidth+1) * bin
+	kept := x.Tones[:0]
+	lo, hi, total := math.Inf(1), math.Inf(-1), 0.0
+	for _, t := range x.Tones {
+		jn := math.Pow(10, t.JNDB/10)
+		inLobe := t.OffsetHz >= c.LowHz-2*bin && t.OffsetHz <= c.HighHz+2*bin
+		if inLobe || jn <= c.sidelobeJN(t.OffsetHz, t.OffsetHz, band, bin, fs) {
+			continue
+		}
+		kept = append(kept, t)
+		lo, hi, total = math.Min(lo, t.OffsetHz), math.Max(hi, t.OffsetHz), total+jn
+	}
+	if len(kept) == len(x.Tones) {
+		return true
+	}
+	x.Tones = kept
+	if len(kept) == 0 {
+		return false
+	}
+	strongest := kept[0]
+	for _, t := range kept {
+		if t.JNDB > strongest.JNDB {
+			strongest = t
 		}
 	}
-	return false
+	x.LowHz, x.HighHz, x.OffsetHz, x.JN = lo-bin, hi+bin, strongest.OffsetHz, total
+	return true
 }

@@ -73,6 +73,16 @@ type Finding struct {
 	Sweep       *SweepParams
 	Pulse       *PulseParams
 	FloorRiseDB float64
+
+	// sidelobes[i], for a pulse train, is its average power spectral
+	// density over the noise's at i·sidelobeStep hertz from OffsetHz (see
+	// Pulse.spectralDensity), and pulseRate its pulses per second. They
+	// let the classifier tell the train's own sidelobes and lines from
+	// narrow emitters beside it. sidelobes is the detector's scratch
+	// memory: valid during the block only.
+	sidelobes    []float32
+	sidelobeStep float64
+	pulseRate    float64
 }
 
 // SweepParams describe a swept tone.

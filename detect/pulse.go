@@ -6,6 +6,8 @@ import (
 	"sort"
 
 	"gonum.org/v1/gonum/stat/distuv"
+
+	"quietband/detect/fft"
 )
 
 // Pulse finds pulse trains (DME/TACAN-like pulse pairs, radar pulses) in the
@@ -38,6 +40,14 @@ type Pulse struct {
 	ends     []int
 	prof     []float64
 	sm       []float64
+	// openEnd is the sample index just past the previous block when that
+	// block ended inside a pulse (which it counted), else −1: the same
+	// pulse's remainder at the start of the next block is not counted
+	// again.
+	openEnd int64
+	plan    *fft.Plan
+	spec    []complex64
+	lobes   []float32
 }
 
 // Name implements Detector.
@@ -57,6 +67,8 @@ const maxPulses = 4096
 func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 	x := in.Samples
 	fs := in.F.Fs
+	continued := d.openEnd > 0 && d.openEnd == in.F.Start
+	d.openEnd = -1
 	if len(x) == 0 || in.NoisePower <= 0 {
 		return out
 	}
@@ -108,6 +120,13 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 	}
 	if inRun {
 		d.ends = append(d.ends, len(env))
+		d.openEnd = in.F.Start + int64(len(x))
+	}
+	if continued && len(d.starts) > 0 && d.starts[0] == 0 {
+		// The rest of the pulse the previous block ended in.
+		copy(d.starts, d.starts[1:])
+		copy(d.ends, d.ends[1:])
+		d.starts, d.ends = d.starts[:len(d.starts)-1], d.ends[:len(d.ends)-1]
 	}
 	n := min(len(d.starts), len(d.ends))
 	if n < in.Cfg.MinPulses || n > maxPulses {
@@ -198,9 +217,59 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 	pp.DutyCycle = float64(n) * w / dur
 	off := fs / (2 * math.Pi) * cmplx.Phase(lag)
 	bw := 1 / w
+	rate := float64(n) / dur
+	lobes, step := d.spectralDensity(prof, used, ns, rate, fs)
 	return append(out, Finding{Detector: d.Name(), Class: ClassPulsed, LowHz: off - bw, HighHz: off + bw,
 		OffsetHz: off, JN: peak / ns, Pulse: pp,
-		Start: in.F.Start + int64(d.starts[0]), End: in.F.Start + int64(d.ends[n-1])})
+		Start: in.F.Start + int64(d.starts[0]), End: in.F.Start + int64(d.ends[n-1]),
+		sidelobes: lobes, sidelobeStep: step, pulseRate: rate})
+}
+
+// spectralDensity returns the pulse train's average power spectral
+// density over the noise's, R(i·step) for i = 0, 1, … up to fs/2 from the
+// carrier, computed from the measured mean pulse: with a[n] = √p[n] its
+// amplitude profile (p the mean power above the noise, kept where it
+// exceeds 1 % of the peak and three standard deviations of its own noise,
+// ns/√used) and A(f) = Σ a[n]·e^{−j2πfn/fs} its spectrum, a train of rate
+// pulses per second adds to the power spectral density, relative to the
+// noise's ns/fs,
+//
+//	R(f) = rate·|A(f)|² / (fs·ns)
+//
+// on average (each pulse's energy spectrum |A(f)|²/fs, rate of them per
+// second: the average power spectrum of a random-phase pulse train, common
+// practice). A rectangular pulse's sinc² sidelobes reach far beyond its
+// 1/width main lobe; they, and the lines at multiples of the pulse rate
+// they carry, are the train's own and not narrowband emitters. The slice
+// is the detector's scratch, valid until its next block.
+func (d *Pulse) spectralDensity(prof []float64, used int, ns, rate, fs float64) ([]float32, float64) {
+	m := 1024
+	for m < 2*len(prof) {
+		m *= 2
+	}
+	if d.plan == nil || d.plan.Len() != m {
+		d.plan = fft.NewPlan(m)
+		d.spec = make([]complex64, m)
+		d.lobes = make([]float32, m/2+1)
+	}
+	peak := 0.0
+	for _, v := range prof {
+		peak = math.Max(peak, v)
+	}
+	floor := math.Max(0.01*peak, 3*ns/math.Sqrt(float64(used)))
+	clear(d.spec)
+	for i, v := range prof {
+		if v > floor {
+			d.spec[i] = complex(float32(math.Sqrt(v)), 0)
+		}
+	}
+	d.plan.Forward(d.spec, d.spec)
+	scale := float32(rate / (fs * ns))
+	for k := range d.lobes {
+		v := d.spec[k]
+		d.lobes[k] = (real(v)*real(v) + imag(v)*imag(v)) * scale
+	}
+	return d.lobes, fs / float64(m)
 }
 
 // reference is the power per sample the pulses must stand above: the

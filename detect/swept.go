@@ -106,8 +106,9 @@ func (d *Swept) Detect(in *BlockInput, out []Finding) []Finding {
 	thermal := in.NoisePower / in.Rise
 	span := float64(hi-lo+1) / float64(f.N)
 	jn := (in.bandPower(lo, hi) + (in.Rise-1)*thermal*span) / thermal
+	found := sw // escapes with the finding; sw itself stays on the stack
 	return append(out, Finding{Detector: d.Name(), Class: ClassSwept, LowHz: sw.LowHz, HighHz: sw.HighHz,
-		OffsetHz: (sw.LowHz + sw.HighHz) / 2, JN: jn, Sweep: &sw})
+		OffsetHz: (sw.LowHz + sw.HighHz) / 2, JN: jn, Sweep: &found})
 }
 
 // periodicity returns the sweep period in seconds, from the
