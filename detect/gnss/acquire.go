@@ -751,9 +751,19 @@ func (a *Acquirer) blockCorrelation(w []complex64, p *prnState, k, s int) []comp
 	return a.lagPlan.Inverse(w, a.prod)
 }
 
+// useVector selects the AVX forms of mulTo, addPower and addDiffPower
+// (vec_amd64.s) where the CPU has them. They perform the same float32 and
+// float64 operations in the same order, so the results are the same
+// (TestVectorKernels); tests turn it off to compare.
+var useVector = hasVector
+
 // mulTo sets dst[i] = x[i]·y[i].
 func mulTo(dst, x, y []complex64) {
 	x, y = x[:len(dst)], y[:len(dst)]
+	if useVector {
+		n := mulToVector(dst, x, y)
+		dst, x, y = dst[n:], x[n:], y[n:]
+	}
 	for i, u := range x {
 		v := y[i]
 		dst[i] = complex(real(u)*real(v)-imag(u)*imag(v), real(u)*imag(v)+imag(u)*real(v))
@@ -798,6 +808,10 @@ func (a *Acquirer) searchAnchors(p *prnState) {
 // addDiffPower adds |u[i] − v[i]|² to dst[i].
 func addDiffPower(dst []float64, u, v []complex64) {
 	u, v = u[:len(dst)], v[:len(dst)]
+	if useVector {
+		n := addDiffPowerVector(dst, u, v)
+		dst, u, v = dst[n:], u[n:], v[n:]
+	}
 	for i, x := range u {
 		y := v[i]
 		re, im := real(x)-real(y), imag(x)-imag(y)
@@ -910,6 +924,10 @@ func rowNoise(row []float64, sum float64, peak, k int) float64 {
 // addPower adds |w[i]|² to dst[i].
 func addPower(dst []float64, w []complex64) {
 	w = w[:len(dst)]
+	if useVector {
+		n := addPowerVector(dst, w)
+		dst, w = dst[n:], w[n:]
+	}
 	for i, v := range w {
 		dst[i] += float64(real(v)*real(v) + imag(v)*imag(v))
 	}
