@@ -8,6 +8,7 @@ import (
 	"io"
 	"math"
 	"os"
+	"slices"
 	"testing"
 )
 
@@ -68,6 +69,16 @@ func FuzzDecode(f *testing.F) {
 		clipped, bad := fm.Decode(dst, raw)
 		if clipped < 0 || bad < 0 || clipped+bad > n {
 			t.Fatalf("%s: clipped %d bad %d of %d", fm, clipped, bad, n)
+		}
+		if fm == CI16LE && hasVectorDecode {
+			// The vector decoder against its Go twin (see TestVectorDecode).
+			useVectorDecode = false
+			twin := make([]complex64, n)
+			c2, _ := fm.Decode(twin, raw)
+			useVectorDecode = true
+			if c2 != clipped || !slices.Equal(twin, dst) {
+				t.Fatalf("ci16_le: vector decoder (%d clipped) differs from the Go loop (%d clipped)", clipped, c2)
+			}
 		}
 		if !isFloat(fm) && bad != 0 {
 			t.Fatalf("%s: integer format reported %d bad samples", fm, bad)
