@@ -60,7 +60,10 @@ A capture is complete when it was closed after writing, renamed into place,
 or left unchanged for the input's settle time; a SigMF pair when both files
 are (the metadata last). Captures already recorded in the event log are not
 analysed again; after a crash, those without a capture record are. A capture
-that cannot be read is recorded as quarantined with the reason.
+that cannot be read is recorded as quarantined with the reason. What is done
+is kept in state_dir/ledger.db, derived from the event log (caught up from it,
+or rebuilt from it, at start); it also locks the state folder against a
+second daemon.
 
 Settings come from --config (YAML, see deploy/config.example.yaml); the flags
 below override it. SIGHUP reopens the event log and reloads the log level and
@@ -71,7 +74,7 @@ abandons it after a few seconds; it is analysed again on the next start).`, errO
 	fs.Var(&watch, "watch", "folder to watch, repeatable; replaces the configured inputs (raw files take --format, --rate, --center)")
 	raw := addRawFlags(fs)
 	logPath := fs.String("log", "", "event log file (default: state_dir/"+eventLogFileName+")")
-	state := fs.String("state", "", "state folder: baseline, default event log location (default "+defaultStateDir+")")
+	state := fs.String("state", "", "state folder: baseline, ledger, default event log location (default "+defaultStateDir+")")
 	listen := fs.String("listen", "", "address of the HTTP endpoints (default "+metrics.DefaultListen+"; loopback only unless set)")
 	webCfg := fs.String("web.config.file", "", "exporter-toolkit web configuration file for TLS and basic auth (default: plain HTTP)")
 	level := fs.String("log-level", "", "diagnostic log level: debug, info, warn or error (default info)")
@@ -171,12 +174,14 @@ type daemon struct {
 	lastSweep    time.Time
 	lastFailLog  time.Time
 	processed    atomic.Int64 // captures recorded by this run
+	hashes       atomic.Int64 // data files read whole to hash them (not by analysis)
 	appendFailed atomic.Bool
 	anchorEvery  uint64 // records between anchors; 0: none
 }
 
-// newDaemon opens the event log, rebuilds the ledger from it, loads the
-// baseline and sets up the watcher, metrics and HTTP server.
+// newDaemon opens the ledger (taking its lock) and the event log, brings
+// the ledger up to date with the log, loads the baseline and sets up the
+// watcher, metrics and HTTP server.
 func newDaemon(cfg *runConfig, cfgPath string, over runOverrides, logOut io.Writer) (*daemon, error) {
 	lv, _ := parseLevel(cfg.LogLevel)
 	base, err := newLogger(logOut, slog.LevelDebug.String(), cfg.LogFormat == "json")
@@ -202,20 +207,34 @@ func newDaemon(cfg *runConfig, cfgPath string, over runOverrides, logOut io.Writ
 	if err := os.MkdirAll(filepath.Dir(cfg.Log.Path), 0o750); err != nil {
 		return nil, fmt.Errorf("log.path: %w", err)
 	}
-	l, err := eventlog.Open(cfg.Log.Path, eventlog.Options{MaxBytes: cfg.Log.MaxBytes, Logger: log})
+	// The ledger first: its lock keeps a second daemon from opening (and
+	// cutting a "torn" tail of) the log this one is writing.
+	t0 := time.Now()
+	lg, err := openLedger(cfg.StateDir, cfg.Log.Path, log)
 	if err != nil {
 		return nil, err
 	}
-	d.elog = l
-	d.recent = metrics.NewRecent(metrics.DefaultRecent)
-	t0 := time.Now()
-	d.ledger, err = scanLedger(cfg.Log.Path, d.recent)
+	l, err := eventlog.Open(cfg.Log.Path, eventlog.Options{MaxBytes: cfg.Log.MaxBytes, Logger: log})
 	if err != nil {
-		l.Close()
-		return nil, fmt.Errorf("reading the event log to find captures already done: %w", err)
+		lg.close()
+		return nil, err
 	}
-	log.Info("quietband run: event log read", "file", cfg.Log.Path, "records", l.LastSeq(), "captures_done", d.ledger.captures(),
-		"head", l.Head(), "took", time.Since(t0).Round(time.Millisecond))
+	d.elog, d.ledger = l, lg
+	if err := lg.sync(); err != nil {
+		lg.close()
+		l.Close()
+		return nil, err
+	}
+	d.recent = metrics.NewRecent(metrics.DefaultRecent)
+	files, err := fillRecent(cfg.Log.Path, d.recent, metrics.DefaultRecent)
+	if err != nil {
+		lg.close()
+		l.Close()
+		return nil, fmt.Errorf("reading the event log's newest records: %w", err)
+	}
+	log.Info("quietband run: ledger ready", "file", lg.path, "log", cfg.Log.Path, "records", l.LastSeq(), "captures_done", lg.captures(),
+		"applied", lg.applied, "full_scan", lg.fullScan, "log_files_read_for_recent", files, "head", l.Head(),
+		"took", time.Since(t0).Round(time.Millisecond))
 	d.state = detect.NewState()
 	d.loadBaseline()
 	d.pipe = d.newPipeline(cfg)
@@ -226,6 +245,7 @@ func newDaemon(cfg *runConfig, cfgPath string, over runOverrides, logOut io.Writ
 		if _, err := os.Stat(in.Path); errors.Is(err, os.ErrNotExist) {
 			log.Warn("quietband run: watched folder missing; creating it", "input", in.Name, "path", in.Path)
 			if err := os.MkdirAll(in.Path, 0o755); err != nil {
+				lg.close()
 				l.Close()
 				return nil, fmt.Errorf("input %s: %w", in.Name, err)
 			}
@@ -237,6 +257,7 @@ func newDaemon(cfg *runConfig, cfgPath string, over runOverrides, logOut io.Writ
 	d.watcher, err = ingest.NewWatcher(ingest.WatchConfig{Inputs: watch, RescanInterval: cfg.RescanInterval,
 		QueueSize: cfg.QueueSize, Notify: cfg.notify(), Logger: log})
 	if err != nil {
+		lg.close()
 		l.Close()
 		return nil, err
 	}
@@ -249,6 +270,7 @@ func newDaemon(cfg *runConfig, cfgPath string, over runOverrides, logOut io.Writ
 	d.server, err = metrics.NewServer(metrics.ServerOptions{Listen: cfg.Listen, WebConfigFile: cfg.WebConfigFile,
 		Gatherer: d.set.Registry(), Ready: d.notReady, Recent: d.recent, Logger: log.With("component", "http")})
 	if err != nil {
+		lg.close()
 		l.Close()
 		return nil, err
 	}
@@ -356,6 +378,9 @@ loop:
 	if e := d.elog.Close(); e != nil && err == nil {
 		err = e
 	}
+	if e := d.ledger.close(); e != nil && err == nil {
+		err = e
+	}
 	d.log.Info("quietband run: stopped", "captures_recorded", d.processed.Load(), "last_seq", d.elog.LastSeq(), "head", d.elog.Head())
 	return err
 }
@@ -370,6 +395,7 @@ func (d *daemon) housekeeping(now time.Time) {
 	if d.baseDirty && now.Sub(d.baseSaved) >= baselineEvery {
 		d.saveBaseline()
 	}
+	d.ledger.save() // identities remembered, or records a failed write left
 	if now.Sub(d.lastAnchor) >= anchorEvery {
 		d.lastAnchor = now
 		d.log.Info("quietband run: event log head", "last_seq", d.elog.LastSeq(), "head", d.elog.Head())
@@ -415,11 +441,41 @@ func (d *daemon) setBehind(b bool) {
 func (d *daemon) handle(ctx context.Context, w ingest.Work) error {
 	d.setBehind(time.Since(w.Ready) > d.cfg.FallingBehindAfter)
 	name := w.Name
+	if w.Problem != nil {
+		if st, err := os.Lstat(w.Path); err == nil && st.IsDir() {
+			// A folder that cannot be read is no capture: nothing is
+			// recorded (nor moved), and its captures are found by a rescan
+			// once it can be read again.
+			d.log.Error("quietband run: cannot read folder; the captures in it are picked up once it is readable again",
+				"folder", w.Path, "input", w.Input, "err", w.Problem)
+			return nil
+		}
+	}
+	// The data file is read through a link (within the watched folder)
+	// when the capture opened; a capture with a problem is hashed as the
+	// file the name is, links not followed.
+	follow := w.Problem == nil
+	// The identity of the file about to be read: what the ledger keeps
+	// with the record, so that the next sighting of the unchanged file
+	// needs no hashing.
+	id, idOK := identify(w.DataPath, follow)
 	sha, hashed := "", false
 	prevReason, retrying := "", false
-	if shas, ok := d.ledger.done[name]; ok {
-		sha, hashed = hashFile(w.DataPath), true
-		if reason, ok := shas[sha]; ok {
+	ent, known, err := d.ledger.lookup(name)
+	if err != nil {
+		return err
+	}
+	if known {
+		var ok bool
+		if sha, ok = ent.shaFor(id, idOK); !ok {
+			var stable bool
+			sha, stable = d.hashData(w.DataPath, follow, id, idOK)
+			if _, recorded := ent.outcome(sha); recorded && stable {
+				d.ledger.remember(name, id, sha)
+			}
+		}
+		hashed = true
+		if reason, ok := ent.outcome(sha); ok {
 			if reason == "" {
 				d.log.Debug("quietband run: already analysed", "capture", name, "input", w.Input)
 				return nil
@@ -446,7 +502,8 @@ func (d *daemon) handle(ctx context.Context, w ingest.Work) error {
 	}
 	if rec.Status == detect.StatusQuarantined {
 		if !hashed {
-			sha = hashFile(w.DataPath)
+			sha, _ = d.hashData(w.DataPath, follow, id, idOK)
+			hashed = true
 		}
 		rec.SHA256 = sha
 		if retrying && rec.Error == prevReason {
@@ -460,8 +517,15 @@ func (d *daemon) handle(ctx context.Context, w ingest.Work) error {
 	if res != nil {
 		events = res.Events
 		for _, e := range res.Events {
-			if _, dup := d.ledger.events[e.ID]; dup {
-				d.log.Info("quietband run: event already in the log (capture redone after a restart)", "capture", name, "id", e.ID)
+			dup, err := d.ledger.hasEvent(e.ID)
+			if err != nil {
+				return err
+			}
+			if dup {
+				// A capture redone after a crash, or the same data under
+				// another name (the id comes from the data's SHA-256).
+				d.log.Info("quietband run: event already in the log (capture redone after a restart, or the same data recorded before)",
+					"capture", name, "id", e.ID)
 				continue
 			}
 			items = append(items, eventlog.Item{Kind: eventlog.KindEvent, Body: e})
@@ -476,7 +540,7 @@ func (d *daemon) handle(ctx context.Context, w ingest.Work) error {
 		if rec.SHA256 != "" {
 			sha = rec.SHA256
 		} else if !hashed {
-			sha = hashFile(w.DataPath)
+			sha, _ = d.hashData(w.DataPath, follow, id, idOK)
 		}
 		res, events = nil, nil
 		rec = detect.CaptureRecord{Capture: name, SHA256: sha, Status: detect.StatusQuarantined,
@@ -488,7 +552,19 @@ func (d *daemon) handle(ctx context.Context, w ingest.Work) error {
 		return err
 	}
 	d.processed.Add(1)
-	d.ledger.note(recs)
+	// Keep the identity only if the file still has it: one that changed
+	// while it was analysed is hashed at its next sighting.
+	var stamps []fileStamp
+	if idOK && rec.SHA256 != "" {
+		if now, ok := identify(w.DataPath, follow); ok && now == id {
+			stamps = append(stamps, fileStamp{name: name, id: id})
+		}
+	}
+	if err := d.ledger.note(recs, stamps...); err != nil {
+		// The record is in the log; the ledger retries (save), and a
+		// restart catches it up from the log in any case.
+		d.log.Debug("quietband run: ledger not updated yet", "capture", name, "err", err)
+	}
 	d.anchor(recs)
 	d.recent.Add(recs...)
 
@@ -633,11 +709,29 @@ func pendingItems(items []eventlog.Item, got []eventlog.Record) []eventlog.Item 
 	return out
 }
 
-// hashFile is the lowercase hex SHA-256 of a file, "" if it cannot be read.
-func hashFile(path string) string {
-	// Lstat first: opening a FIFO for reading would block until a writer
+// hashData hashes a capture's data file (counted in d.hashes) and reports
+// whether the file kept identity id while it was read, so that the SHA-256
+// is that of the file with this identity.
+func (d *daemon) hashData(path string, follow bool, id fileID, idOK bool) (sha string, stable bool) {
+	d.hashes.Add(1)
+	sha = hashFile(path, follow)
+	if !idOK || sha == "" {
+		return sha, false
+	}
+	now, ok := identify(path, follow)
+	return sha, ok && now == id
+}
+
+// hashFile is the lowercase hex SHA-256 of a regular file, "" if it cannot
+// be read. A symbolic link is followed only with follow.
+func hashFile(path string, follow bool) string {
+	// Stat first: opening a FIFO for reading would block until a writer
 	// came, stalling the daemon.
-	if st, err := os.Lstat(path); err != nil || !st.Mode().IsRegular() {
+	stat := os.Lstat
+	if follow {
+		stat = os.Stat
+	}
+	if st, err := stat(path); err != nil || !st.Mode().IsRegular() {
 		return ""
 	}
 	f, err := os.OpenFile(path, os.O_RDONLY|syscall.O_NONBLOCK, 0)
@@ -655,65 +749,6 @@ func hashFile(path string) string {
 	}
 	return hex.EncodeToString(h.Sum(nil))
 }
-
-// ledger is what the event log says is done: captures by name and data
-// SHA-256, and the ids of the events written.
-type ledger struct {
-	// done maps a capture name to the SHA-256 values it was recorded with,
-	// each to "" (analysed) or the reason it was quarantined; the latest
-	// record wins.
-	done   map[string]map[string]string
-	events map[string]struct{}
-}
-
-// scanLedger reads every segment of the log, oldest first.
-func scanLedger(path string, recent *metrics.Recent) (*ledger, error) {
-	lg := &ledger{done: map[string]map[string]string{}, events: map[string]struct{}{}}
-	err := eventlog.Scan(path, func(rec eventlog.Record) error {
-		lg.note([]eventlog.Record{rec})
-		if recent != nil {
-			recent.Add(rec)
-		}
-		return nil
-	})
-	return lg, err
-}
-
-// note adds records to the ledger.
-func (lg *ledger) note(recs []eventlog.Record) {
-	for _, rec := range recs {
-		var body struct {
-			ID      string `json:"id"`
-			Capture string `json:"capture"`
-			SHA256  string `json:"sha256"`
-			Status  string `json:"status"`
-			Error   string `json:"error"`
-		}
-		if err := json.Unmarshal(rec.Line, &body); err != nil {
-			continue
-		}
-		switch rec.Kind {
-		case eventlog.KindEvent:
-			lg.events[body.ID] = struct{}{}
-		case eventlog.KindCapture:
-			m := lg.done[body.Capture]
-			if m == nil {
-				m = map[string]string{}
-				lg.done[body.Capture] = m
-			}
-			reason := ""
-			if body.Status != detect.StatusOK {
-				reason = body.Error
-				if reason == "" {
-					reason = body.Status
-				}
-			}
-			m[body.SHA256] = reason
-		}
-	}
-}
-
-func (lg *ledger) captures() int { return len(lg.done) }
 
 // loadBaseline reads state_dir/baseline.json if there is one. A file that
 // does not parse is set aside (renamed) and learning starts afresh.
@@ -937,7 +972,11 @@ func (d *daemon) sweep(now time.Time) {
 				continue
 			}
 			name := filepath.ToSlash(rel)
-			shas, ok := d.ledger.done[name]
+			ent, ok, err := d.ledger.lookup(name)
+			if err != nil {
+				d.log.Error("quietband run: retention: ledger", "capture", name, "err", err)
+				return
+			}
 			if !ok {
 				continue
 			}
@@ -954,7 +993,22 @@ func (d *daemon) sweep(now time.Time) {
 			if !old {
 				continue
 			}
-			if reason, ok := shas[hashFile(w.DataPath)]; !ok || reason != "" {
+			// Links are left alone (as the files they point to are not
+			// the daemon's to retire); the SHA-256 of an unchanged file
+			// comes from the ledger.
+			id, idOK := identify(w.DataPath, false)
+			if !idOK {
+				continue
+			}
+			sha, known := ent.shaFor(id, idOK)
+			if !known {
+				var stable bool
+				sha, stable = d.hashData(w.DataPath, false, id, idOK)
+				if _, recorded := ent.outcome(sha); recorded && stable {
+					d.ledger.remember(name, id, sha)
+				}
+			}
+			if reason, ok := ent.outcome(sha); !ok || reason != "" {
 				continue
 			}
 			n++

@@ -64,7 +64,7 @@ func ci8Capture(seed uint64, tone bool) []byte {
 
 // dropCapture writes a capture the way a recorder that renames into place
 // does.
-func dropCapture(t *testing.T, path string, data []byte) {
+func dropCapture(t testing.TB, path string, data []byte) {
 	t.Helper()
 	if err := os.MkdirAll(filepath.Dir(path), 0o755); err != nil {
 		t.Fatal(err)
@@ -102,7 +102,7 @@ type site struct {
 
 // newSite makes a folder tree and a configuration for a daemon; extra
 // YAML is appended to the configuration.
-func newSite(t *testing.T, extra string) site {
+func newSite(t testing.TB, extra string) site {
 	t.Helper()
 	dir := t.TempDir()
 	s := site{dir: dir, in: filepath.Join(dir, "captures"), state: filepath.Join(dir, "state")}
@@ -134,7 +134,7 @@ type runningDaemon struct {
 }
 
 // startDaemon runs a daemon in this process; tune may adjust it first.
-func startDaemon(t *testing.T, s site, tune ...func(*daemon)) *runningDaemon {
+func startDaemon(t testing.TB, s site, tune ...func(*daemon)) *runningDaemon {
 	t.Helper()
 	cfg, err := loadRunConfig(s.cfgPath, runOverrides{})
 	if err != nil {
@@ -182,7 +182,7 @@ func tail(s string, n int) string {
 	return strings.Join(lines, "\n")
 }
 
-func waitFor(t *testing.T, timeout time.Duration, what string, ok func() bool) {
+func waitFor(t testing.TB, timeout time.Duration, what string, ok func() bool) {
 	t.Helper()
 	deadline := time.Now().Add(timeout)
 	for !ok() {
@@ -207,7 +207,7 @@ type logRecord struct {
 	Samples int64  `json:"samples"`
 }
 
-func readLog(t *testing.T, path string) []logRecord {
+func readLog(t testing.TB, path string) []logRecord {
 	t.Helper()
 	var out []logRecord
 	err := eventlog.Scan(path, func(rec eventlog.Record) error {
@@ -237,7 +237,7 @@ func captureRecords(recs []logRecord) map[string][]logRecord {
 	return m
 }
 
-func countCaptures(t *testing.T, path string) int {
+func countCaptures(t testing.TB, path string) int {
 	n := 0
 	for _, r := range readLog(t, path) {
 		if r.Kind == eventlog.KindCapture {
@@ -654,12 +654,26 @@ type daemonProcess struct {
 
 func startProcess(t *testing.T, args ...string) *daemonProcess {
 	t.Helper()
-	cmd := exec.Command(os.Args[0], args...)
+	p, err := startProcessAs(t, os.Args[0], nil, args...)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return p
+}
+
+// startProcessAs runs the test binary bin as `quietband` with the user and
+// group of cred (nil: the test's own).
+func startProcessAs(t *testing.T, bin string, cred *syscall.Credential, args ...string) (*daemonProcess, error) {
+	t.Helper()
+	cmd := exec.Command(bin, args...)
 	cmd.Env = append(os.Environ(), "QUIETBAND_TEST_MAIN=1")
+	if cred != nil {
+		cmd.SysProcAttr = &syscall.SysProcAttr{Credential: cred}
+	}
 	out := &syncBuffer{}
 	cmd.Stdout, cmd.Stderr = out, out
 	if err := cmd.Start(); err != nil {
-		t.Fatal(err)
+		return nil, err
 	}
 	p := &daemonProcess{cmd: cmd, out: out, done: make(chan error, 1)}
 	go func() { p.done <- cmd.Wait() }()
@@ -672,7 +686,7 @@ func startProcess(t *testing.T, args ...string) *daemonProcess {
 			t.Logf("daemon output:\n%s", tail(out.String(), 40))
 		}
 	})
-	return p
+	return p, nil
 }
 
 // wait waits for the process to exit and returns its exit code.
@@ -857,33 +871,45 @@ func TestRunRetention(t *testing.T) {
 			dropCapture(t, filepath.Join(s.in, "d", "pair.sigmf-meta"), []byte(meta))
 			dropCapture(t, filepath.Join(s.in, "fresh.ci8"), ci8Capture(42, false))
 			dropCapture(t, filepath.Join(s.in, "empty.ci8"), nil)
-			waitFor(t, 20*time.Second, "4 records", func() bool { return countCaptures(t, s.logPath) == 4 })
-			// Age everything but fresh.ci8 past the two days.
+			// A capture old already when it arrives: its identity when
+			// recorded is the one the sweep sees, so it is not hashed.
 			past := time.Now().Add(-72 * time.Hour)
+			tmp := filepath.Join(s.in, ".aged.ci8.part")
+			os.WriteFile(tmp, ci8Capture(43, false), 0o644)
+			os.Chtimes(tmp, past, past)
+			os.Rename(tmp, filepath.Join(s.in, "aged.ci8"))
+			waitFor(t, 20*time.Second, "5 records", func() bool { return countCaptures(t, s.logPath) == 5 })
+			hashed := rd.d.hashes.Load() // empty.ci8's, when quarantined
+			// Age everything but fresh.ci8 past the two days.
 			for _, p := range []string{"old.ci8", "d/pair.sigmf-data", "d/pair.sigmf-meta", "empty.ci8"} {
 				os.Chtimes(filepath.Join(s.in, p), past, past)
 			}
 			gone := func(p string) bool { _, err := os.Lstat(filepath.Join(s.in, p)); return errors.Is(err, os.ErrNotExist) }
 			waitFor(t, 20*time.Second, "old captures retired", func() bool {
-				return gone("old.ci8") && gone("d/pair.sigmf-meta") && gone("d/pair.sigmf-data")
+				return gone("old.ci8") && gone("d/pair.sigmf-meta") && gone("d/pair.sigmf-data") && gone("aged.ci8")
 			})
 			time.Sleep(1200 * time.Millisecond) // another sweep
+			// The sweep hashed the data files whose times changed after
+			// they were recorded (old.ci8, the pair's, empty.ci8), once:
+			// empty.ci8's new identity is remembered for later sweeps.
+			if got := rd.d.hashes.Load() - hashed; got != 3 {
+				t.Errorf("the sweeps hashed %d files, want 3 (not aged.ci8, each other once)", got)
+			}
 			if gone("fresh.ci8") {
 				t.Error("a capture younger than retention.days was retired")
 			}
 			if gone("empty.ci8") {
 				t.Error("a quarantined capture was retired (only analysed ones are)")
 			}
-			for _, p := range []string{"old.ci8", "d/pair.sigmf-meta", "d/pair.sigmf-data"} {
+			for _, p := range []string{"old.ci8", "d/pair.sigmf-meta", "d/pair.sigmf-data", "aged.ci8"} {
 				_, err := os.Stat(filepath.Join(keep, "roof", p))
 				if moved := err == nil; moved != (action == "move") {
 					t.Errorf("%s in %s: %v (action %s)", p, keep, err, action)
 				}
 			}
-			if n := countCaptures(t, s.logPath); n != 4 {
-				t.Errorf("%d capture records after retention, want 4 (retiring writes none)", n)
+			if n := countCaptures(t, s.logPath); n != 5 {
+				t.Errorf("%d capture records after retention, want 5 (retiring writes none)", n)
 			}
-			_ = rd
 		})
 	}
 }

@@ -35,5 +35,6 @@
 // named after the seq of its first record (events.jsonl →
 // events.000000000001.jsonl) and a new active file is started; the chain
 // continues across segments. Segments lists the files oldest first, which is
-// the order Verify and NewReader expect.
+// the order Verify and NewReader expect; ScanFrom reads the records from a
+// given seq on without opening the segments that end before it.
 package eventlog

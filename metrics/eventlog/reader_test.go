@@ -2,11 +2,13 @@ package eventlog
 
 import (
 	"bytes"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 )
@@ -223,5 +225,145 @@ func TestScan(t *testing.T) {
 	})
 	if err != stop || n != 4 {
 		t.Errorf("Scan did not stop on the callback's error: %v after %d", err, n)
+	}
+}
+
+func TestScanFrom(t *testing.T) {
+	// 40 records over 250-byte files: about a dozen rotated segments.
+	path := tempLog(t)
+	l := openLog(t, path, Options{MaxBytes: 250})
+	want := fill(t, l, 40)
+	segs := segments(t, path)
+	if len(segs) < 6 {
+		t.Fatalf("%d files, want at least 6", len(segs))
+	}
+	// firsts[i] is the seq of the first record of segs[i], read from the
+	// files themselves (the contract: a segment is named after it).
+	firsts := make([]uint64, len(segs))
+	for i, s := range segs {
+		var r Record
+		if err := json.Unmarshal(splitLines(readFile(t, s))[0], &r); err != nil {
+			t.Fatal(err)
+		}
+		firsts[i] = r.Seq
+	}
+	scan := func(from uint64) ([]uint64, error) {
+		var got []uint64
+		err := ScanFrom(path, from, func(r Record) error {
+			if !bytes.Equal(r.Line, want[r.Seq-1].Line) {
+				t.Errorf("record %d differs from the one written", r.Seq)
+			}
+			got = append(got, r.Seq)
+			return nil
+		})
+		return got, err
+	}
+	seqs := func(from uint64) []uint64 {
+		var s []uint64
+		for q := max(from, 1); q <= uint64(len(want)); q++ {
+			s = append(s, q)
+		}
+		return s
+	}
+	k := len(segs) / 2
+	tests := []struct {
+		name string
+		from uint64
+	}{
+		{"zero", 0},
+		{"first", 1},
+		{"inside the first segment", 2},
+		{"first of a middle segment", firsts[k]},
+		{"last of a middle segment", firsts[k+1] - 1},
+		{"first of the active file", firsts[len(firsts)-1]},
+		{"last record", uint64(len(want))},
+		{"past the end", uint64(len(want)) + 1},
+		{"far past the end", 1 << 40},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			got, err := scan(tt.from)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if !slices.Equal(got, seqs(tt.from)) {
+				t.Errorf("ScanFrom(%d): seqs %v, want %v", tt.from, got, seqs(tt.from))
+			}
+		})
+	}
+
+	// The older files are not read: spoil every segment before segs[k]
+	// (and segs[k+1] … but the active file, keeping their names), then the
+	// reading from a seq in segs[k] must not notice, while Scan does.
+	garbage := []byte("not a record\n")
+	for _, s := range segs[:k] {
+		writeFile(t, s, garbage)
+	}
+	if got, err := scan(firsts[k] + 1); err != nil || !slices.Equal(got, seqs(firsts[k]+1)) {
+		t.Errorf("ScanFrom after the spoiled segments: %v, %v", got, err)
+	}
+	if err := Scan(path, func(Record) error { return nil }); err == nil {
+		t.Error("Scan over the spoiled segments reports nothing: the check above proves nothing")
+	}
+	if _, err := scan(firsts[k-1]); err == nil {
+		t.Error("ScanFrom starting in a spoiled segment reports nothing")
+	}
+	for _, s := range segs[k : len(segs)-1] {
+		writeFile(t, s, garbage)
+	}
+	// The active file's first seq comes from its first line, so the
+	// newest rotated segment is not needed either.
+	last := firsts[len(firsts)-1]
+	if got, err := scan(last); err != nil || !slices.Equal(got, seqs(last)) {
+		t.Errorf("ScanFrom the active file's first seq: %v, %v", got, err)
+	}
+
+	stop := errors.New("stop")
+	n := 0
+	if err := ScanFrom(path, last, func(Record) error { n++; return stop }); err != stop || n != 1 {
+		t.Errorf("ScanFrom did not stop on the callback's error: %v after %d", err, n)
+	}
+}
+
+func TestScanFromEdges(t *testing.T) {
+	tests := []struct {
+		name  string
+		setup func(t *testing.T, path string) // makes the log
+		from  uint64
+		want  []uint64
+		err   string // part of the error, "" for none
+	}{
+		{"no log at all", func(t *testing.T, path string) {}, 1, nil, ""},
+		{"empty active file", func(t *testing.T, path string) { writeFile(t, path, nil) }, 1, nil, ""},
+		{"oldest segments archived", func(t *testing.T, path string) {
+			// Segments starting at seq 4 and 6 only: from 1 gives what is left.
+			ls := splitLines(chain([2]string{KindEvent, `"id":"a"`}, [2]string{KindEvent, `"id":"b"`},
+				[2]string{KindEvent, `"id":"c"`}, [2]string{KindEvent, `"id":"d"`}, [2]string{KindCapture, `"capture":"x"`},
+				[2]string{KindEvent, `"id":"e"`}, [2]string{KindCapture, `"capture":"y"`}))
+			writeFile(t, SegmentName(path, 4), joinLines(ls[3:5]))
+			writeFile(t, path, joinLines(ls[5:]))
+		}, 1, []uint64{4, 5, 6, 7}, ""},
+		{"active file empty after a segment", func(t *testing.T, path string) {
+			writeFile(t, SegmentName(path, 1), chain([2]string{KindEvent, `"id":"a"`}, [2]string{KindCapture, `"capture":"x"`}))
+			writeFile(t, path, nil)
+		}, 2, []uint64{2}, ""},
+		{"malformed first line of the active file", func(t *testing.T, path string) {
+			writeFile(t, SegmentName(path, 1), chain([2]string{KindEvent, `"id":"a"`}, [2]string{KindCapture, `"capture":"x"`}))
+			writeFile(t, path, []byte("{\"v\":1}\n"))
+		}, 2, []uint64{2}, "events.jsonl:1"},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			path := tempLog(t)
+			tt.setup(t, path)
+			var got []uint64
+			err := ScanFrom(path, tt.from, func(r Record) error { got = append(got, r.Seq); return nil })
+			if tt.err == "" && err != nil || tt.err != "" && (err == nil || !strings.Contains(err.Error(), tt.err)) {
+				t.Errorf("error %v, want %q", err, tt.err)
+			}
+			if !slices.Equal(got, tt.want) {
+				t.Errorf("seqs %v, want %v", got, tt.want)
+			}
+		})
 	}
 }

@@ -171,6 +171,109 @@ func Scan(path string, fn func(Record) error) error {
 	}
 }
 
+// ScanFrom calls fn for every record of the log whose active file is path
+// that has seq ≥ from, in order. Rotated segments are named after the seq
+// of their first record, so the files that end before from (those followed
+// by a file whose first seq is ≤ from) are skipped without being opened; in
+// the file that holds from, the lines before it are read but not passed to
+// fn. The active file's first seq is taken from its first line. With from
+// ≤ 1 it is Scan. Like Scan, it stops at the first malformed line (a
+// *VerifyError), read error or error from fn, and returns it, and it does
+// not check the chain.
+func ScanFrom(path string, from uint64, fn func(Record) error) error {
+	files, err := filesFrom(path, from)
+	if err != nil {
+		return err
+	}
+	r := NewReader(files...)
+	defer r.Close()
+	for {
+		rec, err := r.Next()
+		if err == io.EOF {
+			return nil
+		}
+		if err != nil {
+			return err
+		}
+		if rec.Seq < from {
+			continue
+		}
+		if err := fn(rec); err != nil {
+			return err
+		}
+	}
+}
+
+// filesFrom returns the files of the log at path that can hold records
+// with seq ≥ from, oldest first: the last file whose first record has seq
+// ≤ from and every file after it (all of them if none starts at or before
+// from).
+func filesFrom(path string, from uint64) ([]string, error) {
+	segs, err := rotated(path)
+	if err != nil {
+		return nil, err
+	}
+	files := make([]string, 0, len(segs)+1)
+	firsts := make([]uint64, 0, len(segs)+1)
+	for _, s := range segs {
+		files = append(files, s.path)
+		firsts = append(firsts, s.first)
+	}
+	first, state, err := firstSeq(path)
+	if err != nil {
+		return nil, err
+	}
+	switch state {
+	case firstKnown:
+		files, firsts = append(files, path), append(firsts, first)
+	case firstUnknown:
+		// A malformed first line: the file is read (and the Reader
+		// reports the line), but it cannot be where the reading starts.
+		files, firsts = append(files, path), append(firsts, ^uint64(0))
+	}
+	start := 0
+	for i, f := range firsts {
+		if f <= from {
+			start = i
+		}
+	}
+	return files[start:], nil
+}
+
+// What firstSeq found.
+const (
+	firstNone    = iota // no such file, or an empty one
+	firstKnown          // the first line is a record: its seq
+	firstUnknown        // the first line is not a record
+)
+
+// firstSeq reads the seq of the first record of the file at path.
+func firstSeq(path string) (uint64, int, error) {
+	f, err := os.Open(path)
+	if errors.Is(err, os.ErrNotExist) {
+		return 0, firstNone, nil
+	}
+	if err != nil {
+		return 0, firstNone, fmt.Errorf("eventlog: %w", err)
+	}
+	defer f.Close()
+	ln, err := readLine(bufio.NewReader(f))
+	if err != nil {
+		return 0, firstNone, fmt.Errorf("eventlog: reading %s: %w", path, err)
+	}
+	if ln.n == 0 {
+		return 0, firstNone, nil
+	}
+	if ln.problem() != "" {
+		return 0, firstUnknown, nil
+	}
+	h, problem := parseHeader(ln.line)
+	if problem != "" {
+		return 0, firstUnknown, nil
+	}
+	return h.seq, firstKnown, nil
+}
+
 // rawLine is one line as read by readLine.
 type rawLine struct {
 	line     []byte // the line without its newline; nil if tooLong

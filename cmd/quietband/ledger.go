@@ -1,0 +1,990 @@
+package main
+
+import (
+	"bytes"
+	"crypto/sha256"
+	"encoding/binary"
+	"encoding/hex"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"io/fs"
+	"log/slog"
+	"os"
+	"path/filepath"
+	"reflect"
+	"runtime/debug"
+	"time"
+
+	bolt "go.etcd.io/bbolt"
+
+	"quietband/detect"
+	"quietband/metrics"
+	"quietband/metrics/eventlog"
+)
+
+// The ledger is what the event log says is done, kept on disk so that the
+// daemon neither holds the log's history in memory nor re-reads it (or the
+// captures) at every start. It is derived data: the event log stays the
+// record, and the ledger is caught up from it, or rebuilt from it, at start.
+//
+// ledger.db is a bbolt file (a B+tree in one file, one writer, an exclusive
+// lock) with three buckets:
+//
+//	meta      format → ledgerFormat; seq → the seq of the last log record
+//	          applied (8 bytes, big-endian); head → SHA-256 of that record's
+//	          line (32 bytes); captures → the number of capture names
+//	captures  capture name → the SHA-256 values it was recorded with, each
+//	          with its outcome ("" analysed, or the quarantine reason; the
+//	          latest record wins), and the data file's identity (size,
+//	          mtime, ctime, device, inode) when it was recorded, with the
+//	          SHA-256 it had then
+//	events    event id → nothing: every event id in the log
+//
+// Every event id is kept, not only those of captures in flight: an id is
+// derived from the data's SHA-256, the detection and the configuration
+// (detect.eventID), not from the capture's name, so the same bytes recorded
+// under a second name give the same ids, and only the full set keeps an id
+// from being written twice. On disk that costs a 13-byte key and bbolt's
+// 16-byte element header an event, and no heap.
+//
+// The identity makes a later sighting of an unchanged file cheap: same size,
+// modification and change times, device and inode as when its record was
+// written means the same content, so the SHA-256 is taken from the ledger
+// instead of reading the file. Any write to the file changes its mtime and
+// ctime (and setting the mtime back changes the ctime), so a changed file is
+// hashed as before.
+//
+// The ledger is written after the commits to the event log (which is
+// fsynced first), in bbolt transactions that also store seq and head. A
+// bbolt commit fsyncs twice (pages, then the meta page): 0.6–0.7 ms here
+// (BenchmarkLedgerNote), as much again as the log's own append, which in
+// a burst of small captures made the daemon up to a fifth slower. Rather
+// than turn that fsync off (NoSync: a power cut can then leave a file whose
+// meta page points at pages never written, which bbolt does not detect and
+// may crash on), commits are grouped: a note is written at once when the
+// last write is ledgerGroupWait old, else it waits (in memory, where
+// lookups see it) for the next write, at most ledgerGroupWait or
+// ledgerGroupMax records later, or housekeeping's. The file is then always
+// a valid tree that lags the log by at most that much, and a start after a
+// crash applies the missing records again from the log (sync).
+
+const (
+	ledgerFileName = "ledger.db"
+	// ledgerFormat is the layout version in meta/format; another value
+	// makes the ledger be rebuilt.
+	ledgerFormat = 1
+	// ledgerLockWait is how long opening waits for another process's lock
+	// on the file before giving up.
+	ledgerLockWait = 2 * time.Second
+	// ledgerBatch is how many log records one transaction applies when the
+	// ledger is caught up or rebuilt from the log.
+	ledgerBatch = 2048
+	// refreshMax is how many identity refreshes wait before they are
+	// written without waiting for housekeeping.
+	refreshMax = 512
+	// ledgerGroupWait and ledgerGroupMax bound how long, and for how many
+	// records, noted records wait to be written with later ones.
+	ledgerGroupWait = 200 * time.Millisecond
+	ledgerGroupMax  = 1024
+)
+
+var (
+	bucketMeta     = []byte("meta")
+	bucketCaptures = []byte("captures")
+	bucketEvents   = []byte("events")
+	keyFormat      = []byte("format")
+	keySeq         = []byte("seq")
+	keyHead        = []byte("head")
+	keyCaptures    = []byte("captures")
+)
+
+// fileID is a data file's identity: what changes when its content can
+// have changed. dev and ino are 0 where the system has none.
+type fileID struct {
+	size, mtime, ctime int64 // bytes; modification and status change times, ns since 1970
+	dev, ino           uint64
+}
+
+// identify returns the identity of the file at path, following a symbolic
+// link when follow is set, and whether it is a regular file (the only kind
+// worth remembering).
+func identify(path string, follow bool) (fileID, bool) {
+	stat := os.Lstat
+	if follow {
+		stat = os.Stat
+	}
+	st, err := stat(path)
+	if err != nil || !st.Mode().IsRegular() {
+		return fileID{}, false
+	}
+	id := fileID{size: st.Size(), mtime: st.ModTime().UnixNano()}
+	id.dev, id.ino, id.ctime = sysIdentity(st)
+	return id, true
+}
+
+// sysIdentity reads the device, inode and status change time from the
+// system's stat structure (syscall.Stat_t: Dev, Ino and Ctim on Linux,
+// Ctimespec on the BSDs and macOS). The fields differ in name and type
+// between systems, so they are looked up by name rather than spelled in
+// per-system files; where there are none (Windows) the result is zero.
+func sysIdentity(st fs.FileInfo) (dev, ino uint64, ctime int64) {
+	v := reflect.ValueOf(st.Sys())
+	if v.Kind() != reflect.Pointer || v.IsNil() || v.Elem().Kind() != reflect.Struct {
+		return 0, 0, 0
+	}
+	v = v.Elem()
+	num := func(f reflect.Value) int64 {
+		switch f.Kind() {
+		case reflect.Int, reflect.Int8, reflect.Int16, reflect.Int32, reflect.Int64:
+			return f.Int()
+		case reflect.Uint, reflect.Uint8, reflect.Uint16, reflect.Uint32, reflect.Uint64, reflect.Uintptr:
+			return int64(f.Uint())
+		}
+		return 0
+	}
+	dev, ino = uint64(num(v.FieldByName("Dev"))), uint64(num(v.FieldByName("Ino")))
+	for _, name := range []string{"Ctim", "Ctimespec"} {
+		if ts := v.FieldByName(name); ts.Kind() == reflect.Struct {
+			ctime = num(ts.FieldByName("Sec"))*1e9 + num(ts.FieldByName("Nsec"))
+			break
+		}
+	}
+	return dev, ino, ctime
+}
+
+// outcome is one SHA-256 a capture was recorded with, and how.
+type outcome struct {
+	sha    string
+	reason string // "" analysed; else why it was quarantined
+}
+
+// captureEntry is what the ledger knows of one capture name.
+type captureEntry struct {
+	outcomes []outcome
+	// The data file's identity when the latest record was written, and
+	// the SHA-256 it had; hasFile is false when none was kept (the record
+	// came from the log, or the file changed while it was analysed).
+	hasFile bool
+	file    fileID
+	fileSHA string
+}
+
+// outcome returns the recorded outcome of content with SHA-256 sha.
+func (e *captureEntry) outcome(sha string) (reason string, ok bool) {
+	for _, o := range e.outcomes {
+		if o.sha == sha {
+			return o.reason, true
+		}
+	}
+	return "", false
+}
+
+// shaFor returns the SHA-256 of the data file without reading it, when
+// the file still has the identity it had when the capture was recorded.
+func (e *captureEntry) shaFor(id fileID, ok bool) (string, bool) {
+	if !ok || !e.hasFile || e.file != id {
+		return "", false
+	}
+	return e.fileSHA, true
+}
+
+// record applies a capture record: content sha has the outcome reason, and
+// the data file had identity *file (nil: not known).
+func (e *captureEntry) record(sha, reason string, file *fileID) {
+	found := false
+	for i := range e.outcomes {
+		if e.outcomes[i].sha == sha {
+			e.outcomes[i].reason, found = reason, true
+		}
+	}
+	if !found {
+		e.outcomes = append(e.outcomes, outcome{sha, reason})
+	}
+	e.hasFile = file != nil && sha != ""
+	if e.hasFile {
+		e.file, e.fileSHA = *file, sha
+	} else {
+		e.file, e.fileSHA = fileID{}, ""
+	}
+}
+
+// encode lays the entry out as
+//
+//	uvarint n, n × (sha, uvarint len(reason), reason),
+//	0 | 1 sha varint(size) varint(mtime) varint(ctime) uvarint(dev) uvarint(ino)
+//
+// with each sha as 1 and 32 bytes when it is lowercase hex of 32 bytes,
+// else 0, uvarint length and the string.
+func (e *captureEntry) encode() []byte {
+	b := make([]byte, 0, 16+len(e.outcomes)*40+48)
+	b = binary.AppendUvarint(b, uint64(len(e.outcomes)))
+	for _, o := range e.outcomes {
+		b = appendSHA(b, o.sha)
+		b = binary.AppendUvarint(b, uint64(len(o.reason)))
+		b = append(b, o.reason...)
+	}
+	if !e.hasFile {
+		return append(b, 0)
+	}
+	b = append(b, 1)
+	b = appendSHA(b, e.fileSHA)
+	b = binary.AppendVarint(b, e.file.size)
+	b = binary.AppendVarint(b, e.file.mtime)
+	b = binary.AppendVarint(b, e.file.ctime)
+	b = binary.AppendUvarint(b, e.file.dev)
+	return binary.AppendUvarint(b, e.file.ino)
+}
+
+func appendSHA(b []byte, sha string) []byte {
+	if raw, err := hex.DecodeString(sha); err == nil && len(raw) == sha256.Size && hex.EncodeToString(raw) == sha {
+		return append(append(b, 1), raw...)
+	}
+	b = append(b, 0)
+	b = binary.AppendUvarint(b, uint64(len(sha)))
+	return append(b, sha...)
+}
+
+// errEntry reports a ledger value that does not decode.
+var errEntry = errors.New("malformed capture entry")
+
+// decodeEntry reverses encode. The strings are copies: b may be bbolt's
+// memory map, valid only within its transaction.
+func decodeEntry(b []byte) (captureEntry, error) {
+	var e captureEntry
+	d := entryDecoder{b: b}
+	n := d.uvarint()
+	if n > uint64(len(b)) {
+		return e, errEntry
+	}
+	e.outcomes = make([]outcome, 0, n)
+	for range n {
+		sha := d.sha()
+		reason := d.str()
+		e.outcomes = append(e.outcomes, outcome{sha, reason})
+	}
+	switch d.byte() {
+	case 0:
+	case 1:
+		e.hasFile = true
+		e.fileSHA = d.sha()
+		e.file.size, e.file.mtime, e.file.ctime = d.varint(), d.varint(), d.varint()
+		e.file.dev, e.file.ino = d.uvarint(), d.uvarint()
+	default:
+		d.bad = true
+	}
+	if d.bad || len(d.b) != 0 {
+		return captureEntry{}, errEntry
+	}
+	return e, nil
+}
+
+type entryDecoder struct {
+	b   []byte
+	bad bool
+}
+
+func (d *entryDecoder) uvarint() uint64 {
+	v, n := binary.Uvarint(d.b)
+	if n <= 0 {
+		d.bad, d.b = true, nil
+		return 0
+	}
+	d.b = d.b[n:]
+	return v
+}
+
+func (d *entryDecoder) varint() int64 {
+	v, n := binary.Varint(d.b)
+	if n <= 0 {
+		d.bad, d.b = true, nil
+		return 0
+	}
+	d.b = d.b[n:]
+	return v
+}
+
+func (d *entryDecoder) byte() byte {
+	if len(d.b) == 0 {
+		d.bad = true
+		return 0
+	}
+	c := d.b[0]
+	d.b = d.b[1:]
+	return c
+}
+
+func (d *entryDecoder) take(n uint64) []byte {
+	if n > uint64(len(d.b)) {
+		d.bad, d.b = true, nil
+		return nil
+	}
+	s := d.b[:n]
+	d.b = d.b[n:]
+	return s
+}
+
+func (d *entryDecoder) str() string { return string(d.take(d.uvarint())) }
+
+func (d *entryDecoder) sha() string {
+	switch d.byte() {
+	case 1:
+		return hex.EncodeToString(d.take(sha256.Size))
+	case 0:
+		return d.str()
+	}
+	d.bad = true
+	return ""
+}
+
+// eventKey is the events-bucket key of an event id: 0 and the bytes of a
+// lowercase hex id (the ids detect makes), else 1 and the id as it is.
+func eventKey(id string) []byte {
+	if raw, err := hex.DecodeString(id); err == nil && hex.EncodeToString(raw) == id {
+		return append([]byte{0}, raw...)
+	}
+	return append([]byte{1}, id...)
+}
+
+// fileStamp is the identity a capture's data file had when its record was
+// written (or, for a refresh, when it was hashed and found recorded).
+type fileStamp struct {
+	name string
+	id   fileID
+	sha  string // refreshes only: the SHA-256 the file had
+}
+
+// noteBatch is records noted together, their bodies, and the stamps of
+// their captures.
+type noteBatch struct {
+	recs   []eventlog.Record
+	bodies []recordBody // bodies[i] is recs[i]'s; ok false if it does not decode
+	stamps []fileStamp
+}
+
+func newBatch(recs []eventlog.Record, stamps []fileStamp) noteBatch {
+	b := noteBatch{recs: recs, bodies: make([]recordBody, len(recs)), stamps: stamps}
+	for i, rec := range recs {
+		b.bodies[i].ok = json.Unmarshal(rec.Line, &b.bodies[i]) == nil
+	}
+	return b
+}
+
+// capNote is a capture record not yet written, as lookups apply it.
+type capNote struct {
+	sha, reason string
+	file        *fileID
+}
+
+// ledger is the open ledger. It is used from the daemon's main loop only.
+type ledger struct {
+	path    string // state_dir/ledger.db
+	logPath string // the event log's active file
+	log     *slog.Logger
+	db      *bolt.DB
+
+	// What the file holds: the last record applied and the number of
+	// capture names.
+	seq  uint64
+	head [32]byte
+	n    uint64
+
+	// Noted records not yet written (grouped, or their write failed),
+	// and what lookups see of them. tailSeq and tailHead are the last
+	// record noted, written or not.
+	unsaved     []noteBatch
+	pendingCaps map[string][]capNote
+	pendingIDs  map[string]struct{}
+	tailSeq     uint64
+	tailHead    [32]byte
+	lastWrite   time.Time
+	failLog     time.Time
+	groupWait   time.Duration // ledgerGroupWait; 0 writes every note at once
+
+	refresh map[string]fileStamp // identities to remember, written by save
+
+	missing  bool // the file did not exist when opened
+	applied  int  // records applied by the last sync
+	fullScan bool // the last sync read the whole log (a new or rebuilt ledger)
+}
+
+// openLedger opens state_dir/ledger.db, taking its lock (so that a second
+// daemon on the same state folder fails at once with an error naming the
+// file), or makes it. A file that does not open as a bbolt database, is
+// shorter than its own pages say, fails bbolt's consistency check or lacks
+// what the ledger keeps is set aside (renamed with a suffix) with a
+// warning and a new one is started; sync then fills it from the log.
+func openLedger(stateDir, logPath string, log *slog.Logger) (*ledger, error) {
+	lg := &ledger{path: filepath.Join(stateDir, ledgerFileName), logPath: logPath, log: log, refresh: map[string]fileStamp{},
+		pendingCaps: map[string][]capNote{}, pendingIDs: map[string]struct{}{}, groupWait: ledgerGroupWait}
+	st, err := os.Lstat(lg.path)
+	switch {
+	case errors.Is(err, fs.ErrNotExist):
+		lg.missing = true
+	case err == nil && st.Size() == 0:
+		// bbolt would take an empty file for a new database: say so.
+		if err := lg.reset(nil, "bad", "empty file"); err != nil {
+			return nil, err
+		}
+		return lg, nil
+	}
+	db, err := openBolt(lg.path)
+	if errors.Is(err, bolt.ErrTimeout) {
+		return nil, fmt.Errorf("ledger %s is locked by another process (another quietband run on state_dir %s?); waited %v",
+			lg.path, stateDir, ledgerLockWait)
+	}
+	why := ""
+	switch {
+	case err != nil && lg.missing:
+		return nil, fmt.Errorf("ledger: %w", err)
+	case err != nil:
+		why = "does not open: " + err.Error()
+	default:
+		why = lg.load(db)
+	}
+	if why != "" {
+		if err := lg.reset(db, "bad", why); err != nil {
+			return nil, err
+		}
+		return lg, nil
+	}
+	lg.db = db
+	return lg, nil
+}
+
+// openBolt opens a bbolt file, turning a panic of bbolt's on a damaged
+// file (or a fault on its memory map past the end of a cut file) into an
+// error.
+func openBolt(path string) (db *bolt.DB, err error) {
+	defer debug.SetPanicOnFault(debug.SetPanicOnFault(true))
+	defer func() {
+		if r := recover(); r != nil {
+			db, err = nil, fmt.Errorf("bbolt: %v", r)
+		}
+	}()
+	return bolt.Open(path, 0o640, &bolt.Options{Timeout: ledgerLockWait})
+}
+
+// load checks an opened file and reads its meta bucket into lg. It
+// returns why the file cannot be used, "" if it can. A file without any
+// bucket is new and is initialised.
+func (lg *ledger) load(db *bolt.DB) (why string) {
+	// A damaged file can make bbolt panic, and fault on its memory map
+	// (SetPanicOnFault turns that into a panic on this goroutine).
+	defer debug.SetPanicOnFault(debug.SetPanicOnFault(true))
+	defer func() {
+		if r := recover(); r != nil {
+			why = fmt.Sprintf("damaged: %v", r)
+		}
+	}()
+	st, err := os.Stat(lg.path)
+	if err != nil {
+		return err.Error()
+	}
+	empty := false
+	err = db.View(func(tx *bolt.Tx) error {
+		if st.Size() < tx.Size() {
+			why = fmt.Sprintf("truncated: %d bytes, its pages reach %d", st.Size(), tx.Size())
+			return nil
+		}
+		empty = tx.Bucket(bucketMeta) == nil && tx.Bucket(bucketCaptures) == nil && tx.Bucket(bucketEvents) == nil
+		if empty {
+			return nil
+		}
+		for err := range tx.Check() { // drained: Check's goroutine sends every problem
+			if why == "" {
+				why = "fails the consistency check: " + err.Error()
+			}
+		}
+		if why != "" {
+			return nil
+		}
+		m, c, e := tx.Bucket(bucketMeta), tx.Bucket(bucketCaptures), tx.Bucket(bucketEvents)
+		if m == nil || c == nil || e == nil {
+			why = "lacks a bucket"
+			return nil
+		}
+		format, seq, head, n := m.Get(keyFormat), m.Get(keySeq), m.Get(keyHead), m.Get(keyCaptures)
+		if len(format) != 8 || len(seq) != 8 || len(head) != 32 || len(n) != 8 {
+			why = "meta bucket incomplete"
+			return nil
+		}
+		if f := binary.BigEndian.Uint64(format); f != ledgerFormat {
+			why = fmt.Sprintf("layout version %d, this quietband keeps %d", f, ledgerFormat)
+			return nil
+		}
+		lg.seq, lg.n = binary.BigEndian.Uint64(seq), binary.BigEndian.Uint64(n)
+		copy(lg.head[:], head)
+		return nil
+	})
+	if err != nil {
+		return err.Error()
+	}
+	if why != "" {
+		return why
+	}
+	if empty {
+		if err := initLedger(db); err != nil {
+			return "cannot be initialised: " + err.Error()
+		}
+		lg.seq, lg.head, lg.n = 0, [32]byte{}, 0
+	}
+	lg.tailSeq, lg.tailHead = lg.seq, lg.head
+	return ""
+}
+
+// initLedger makes the buckets of an empty ledger.
+func initLedger(db *bolt.DB) error {
+	return db.Update(func(tx *bolt.Tx) error {
+		for _, name := range [][]byte{bucketCaptures, bucketEvents} {
+			if _, err := tx.CreateBucketIfNotExists(name); err != nil {
+				return err
+			}
+		}
+		m, err := tx.CreateBucketIfNotExists(bucketMeta)
+		if err != nil {
+			return err
+		}
+		if err := m.Put(keyFormat, binary.BigEndian.AppendUint64(nil, ledgerFormat)); err != nil {
+			return err
+		}
+		return putMeta(m, 0, [32]byte{}, 0)
+	})
+}
+
+func putMeta(m *bolt.Bucket, seq uint64, head [32]byte, n uint64) error {
+	if err := m.Put(keySeq, binary.BigEndian.AppendUint64(nil, seq)); err != nil {
+		return err
+	}
+	if err := m.Put(keyHead, bytes.Clone(head[:])); err != nil {
+		return err
+	}
+	return m.Put(keyCaptures, binary.BigEndian.AppendUint64(nil, n))
+}
+
+// reset sets the ledger file aside (renamed to ledger.db.<tag>-<UTC time>)
+// with a warning giving why, and starts an empty one. old, if not nil, is
+// the open old file; it is closed once the new one is open.
+func (lg *ledger) reset(old *bolt.DB, tag, why string) error {
+	aside := ""
+	if _, err := os.Lstat(lg.path); err == nil {
+		aside = lg.path + "." + tag + "-" + time.Now().UTC().Format("20060102T150405Z")
+		for n := 2; ; n++ {
+			if _, err := os.Lstat(aside); errors.Is(err, fs.ErrNotExist) {
+				break
+			}
+			aside = fmt.Sprintf("%s.%s-%s-%d", lg.path, tag, time.Now().UTC().Format("20060102T150405Z"), n)
+		}
+		if err := os.Rename(lg.path, aside); err != nil {
+			return fmt.Errorf("ledger: setting aside %s: %w", lg.path, err)
+		}
+	}
+	lg.log.Warn("quietband run: ledger set aside; rebuilding it from the event log", "file", lg.path, "moved_to", aside, "reason", why)
+	db, err := openBolt(lg.path)
+	if old != nil {
+		old.Close()
+	}
+	if err != nil {
+		return fmt.Errorf("ledger: %w", err)
+	}
+	if err := initLedger(db); err != nil {
+		db.Close()
+		return fmt.Errorf("ledger: initialising %s: %w", lg.path, err)
+	}
+	lg.db = db
+	lg.seq, lg.head, lg.n = 0, [32]byte{}, 0
+	lg.tailSeq, lg.tailHead = 0, [32]byte{}
+	lg.dropUnsaved()
+	lg.missing = false
+	return nil
+}
+
+// dropUnsaved forgets the records not yet written (they are in the log).
+func (lg *ledger) dropUnsaved() {
+	lg.unsaved = nil
+	clear(lg.pendingCaps)
+	clear(lg.pendingIDs)
+}
+
+// errStale ends a catch-up whose starting point is not in the log.
+var errStale = errors.New("ledger does not match the event log")
+
+// sync brings the ledger up to date with the event log: if the log's
+// record at the ledger's seq is the one it applied (same SHA-256 of the
+// line), the records after it are applied; otherwise (the log was replaced,
+// cut or is shorter) the ledger is set aside and rebuilt from the whole log.
+func (lg *ledger) sync() error {
+	lg.applied, lg.fullScan = 0, lg.seq == 0
+	why, err := lg.catchUp()
+	if err == nil && why != "" {
+		if err = lg.reset(lg.db, "stale", why); err == nil {
+			lg.fullScan = true
+			why, err = lg.catchUp()
+			if err == nil && why != "" {
+				err = fmt.Errorf("ledger: rebuilt from the event log, still %s", why)
+			}
+		}
+	}
+	if err != nil {
+		return fmt.Errorf("bringing the ledger up to date with the event log: %w", err)
+	}
+	if lg.missing && lg.seq > 0 {
+		lg.log.Warn("quietband run: no ledger; built it from the event log", "file", lg.path, "records", lg.applied)
+	}
+	lg.missing = false
+	lg.dropUnsaved()
+	lg.tailSeq, lg.tailHead = lg.seq, lg.head
+	return nil
+}
+
+// catchUp applies the log's records after lg.seq, in transactions of
+// ledgerBatch records. It returns why it cannot (the record at lg.seq is
+// not the one applied), having applied nothing.
+func (lg *ledger) catchUp() (string, error) {
+	from, matched := lg.seq, lg.seq == 0
+	why := ""
+	batch := make([]eventlog.Record, 0, 64)
+	err := eventlog.ScanFrom(lg.logPath, max(from, 1), func(rec eventlog.Record) error {
+		if !matched {
+			if rec.Seq != from {
+				why = fmt.Sprintf("the event log has no record %d, the last the ledger applied (it goes on with %d)", from, rec.Seq)
+				return errStale
+			}
+			if sha256.Sum256(rec.Line) != lg.head {
+				why = fmt.Sprintf("the event log's record %d is not the one the ledger applied (log replaced?)", from)
+				return errStale
+			}
+			matched = true
+			return nil
+		}
+		batch = append(batch, rec)
+		if len(batch) < ledgerBatch {
+			return nil
+		}
+		err := lg.write([]noteBatch{newBatch(batch, nil)}, nil)
+		lg.applied += len(batch)
+		batch = batch[:0]
+		return err
+	})
+	switch {
+	case errors.Is(err, errStale):
+		return why, nil
+	case errors.Is(err, fs.ErrNotExist) && from == 0:
+		err = nil
+	case err != nil:
+		return "", err
+	case !matched:
+		return fmt.Sprintf("the event log ends before record %d, the last the ledger applied (log cut or replaced?)", from), nil
+	}
+	if len(batch) > 0 {
+		if err := lg.write([]noteBatch{newBatch(batch, nil)}, nil); err != nil {
+			return "", err
+		}
+		lg.applied += len(batch)
+	}
+	return "", nil
+}
+
+// recordBody is what the ledger reads of a record.
+type recordBody struct {
+	ID      string `json:"id"`
+	Capture string `json:"capture"`
+	SHA256  string `json:"sha256"`
+	Status  string `json:"status"`
+	Error   string `json:"error"`
+	ok      bool   // decoded
+}
+
+func (b recordBody) reason() string {
+	if b.Status == detect.StatusOK {
+		return ""
+	}
+	if b.Error != "" {
+		return b.Error
+	}
+	return b.Status
+}
+
+// stampFor returns the stamp of the capture name among stamps.
+func stampFor(stamps []fileStamp, name string) *fileID {
+	for i := range stamps {
+		if stamps[i].name == name {
+			return &stamps[i].id
+		}
+	}
+	return nil
+}
+
+// write applies batches and refreshes in one transaction, with seq and
+// head of the last record.
+func (lg *ledger) write(batches []noteBatch, refresh map[string]fileStamp) error {
+	seq, head, n := lg.seq, lg.head, lg.n
+	err := lg.db.Update(func(tx *bolt.Tx) error {
+		caps, evs, meta := tx.Bucket(bucketCaptures), tx.Bucket(bucketEvents), tx.Bucket(bucketMeta)
+		for _, b := range batches {
+			for i, rec := range b.recs {
+				if body := b.bodies[i]; body.ok {
+					switch rec.Kind {
+					case eventlog.KindEvent:
+						if body.ID != "" {
+							if err := evs.Put(eventKey(body.ID), nil); err != nil {
+								return err
+							}
+						}
+					case eventlog.KindCapture:
+						if body.Capture != "" {
+							added, err := putRecord(caps, body, stampFor(b.stamps, body.Capture))
+							if err != nil {
+								return err
+							}
+							if added {
+								n++
+							}
+						}
+					}
+				}
+				seq, head = rec.Seq, sha256.Sum256(rec.Line)
+			}
+		}
+		for name, st := range refresh {
+			v := caps.Get([]byte(name))
+			if v == nil {
+				continue
+			}
+			e, err := decodeEntry(v)
+			if err != nil {
+				return fmt.Errorf("capture %q: %w", name, err)
+			}
+			if _, ok := e.outcome(st.sha); !ok {
+				continue
+			}
+			e.hasFile, e.file, e.fileSHA = st.sha != "", st.id, st.sha
+			if err := caps.Put([]byte(name), e.encode()); err != nil {
+				return err
+			}
+		}
+		return putMeta(meta, seq, head, n)
+	})
+	if err != nil {
+		return fmt.Errorf("ledger: writing %s: %w", lg.path, err)
+	}
+	lg.seq, lg.head, lg.n = seq, head, n
+	return nil
+}
+
+// putRecord applies a capture record to its entry and reports whether the
+// name is new.
+func putRecord(caps *bolt.Bucket, body recordBody, file *fileID) (bool, error) {
+	key := []byte(body.Capture)
+	var e captureEntry
+	v := caps.Get(key)
+	if v != nil {
+		var err error
+		if e, err = decodeEntry(v); err != nil {
+			return false, fmt.Errorf("capture %q: %w", body.Capture, err)
+		}
+	}
+	e.record(body.SHA256, body.reason(), file)
+	return v == nil, caps.Put(key, e.encode())
+}
+
+// follows reports whether rec comes right after the last record noted.
+func (lg *ledger) follows(rec eventlog.Record) bool {
+	prev := hex.EncodeToString(lg.tailHead[:])
+	if lg.tailSeq == 0 {
+		prev = zeroPrev
+	}
+	return rec.Seq == lg.tailSeq+1 && rec.Prev == prev
+}
+
+// zeroPrev is the prev of a log's first record: 32 zero bytes in hex.
+const zeroPrev = "0000000000000000000000000000000000000000000000000000000000000000"
+
+// note records what the log just took (records returned by an append,
+// so fsynced), with the data files' identities. They are written at once,
+// or with later ones within ledgerGroupWait (see the top of this file);
+// until then, and while writing fails, they are kept in memory, where
+// lookups see them, and retried by the next note or save. Records that do
+// not follow the last one noted (the log was replaced or cut under the
+// daemon) make the ledger sync with the log.
+func (lg *ledger) note(recs []eventlog.Record, stamps ...fileStamp) error {
+	if len(recs) == 0 {
+		return nil
+	}
+	for _, st := range stamps {
+		delete(lg.refresh, st.name)
+	}
+	if !lg.follows(recs[0]) {
+		lg.log.Warn("quietband run: the event log is not where the ledger left it; bringing the ledger up to date from the log",
+			"ledger_seq", lg.tailSeq, "record_seq", recs[0].Seq)
+		return lg.sync()
+	}
+	b := newBatch(recs, stamps)
+	lg.unsaved = append(lg.unsaved, b)
+	for i, rec := range recs {
+		switch body := b.bodies[i]; {
+		case !body.ok:
+		case rec.Kind == eventlog.KindEvent:
+			lg.pendingIDs[body.ID] = struct{}{}
+		case rec.Kind == eventlog.KindCapture:
+			lg.pendingCaps[body.Capture] = append(lg.pendingCaps[body.Capture],
+				capNote{sha: body.SHA256, reason: body.reason(), file: stampFor(stamps, body.Capture)})
+		}
+	}
+	last := recs[len(recs)-1]
+	lg.tailSeq, lg.tailHead = last.Seq, sha256.Sum256(last.Line)
+	if time.Since(lg.lastWrite) < lg.groupWait && lg.waiting() < ledgerGroupMax {
+		return nil
+	}
+	return lg.save()
+}
+
+// remember queues the identity a recorded capture's data file was hashed
+// with, so that later sightings need no hashing; save writes it.
+func (lg *ledger) remember(name string, id fileID, sha string) {
+	lg.refresh[name] = fileStamp{name: name, id: id, sha: sha}
+	if len(lg.refresh) >= refreshMax {
+		lg.save()
+	}
+}
+
+// save writes what is noted or remembered but not yet in the file.
+func (lg *ledger) save() error {
+	if len(lg.unsaved) == 0 && len(lg.refresh) == 0 {
+		return nil
+	}
+	lg.lastWrite = time.Now()
+	if err := lg.write(lg.unsaved, lg.refresh); err != nil {
+		if time.Since(lg.failLog) >= time.Minute {
+			lg.failLog = time.Now()
+			lg.log.Error("quietband run: ledger write failed; the event log holds the records, retrying",
+				"file", lg.path, "records_waiting", lg.waiting(), "err", err)
+		}
+		return err
+	}
+	if lg.waiting() > 0 && !lg.failLog.IsZero() {
+		lg.failLog = time.Time{}
+		lg.log.Info("quietband run: ledger writable again", "file", lg.path)
+	}
+	lg.dropUnsaved()
+	clear(lg.refresh)
+	return nil
+}
+
+func (lg *ledger) waiting() int {
+	n := 0
+	for _, b := range lg.unsaved {
+		n += len(b.recs)
+	}
+	return n
+}
+
+// lookup returns what the ledger knows of a capture name. An entry that
+// does not decode (the file was damaged under the daemon) makes the ledger
+// be rebuilt from the log, once.
+func (lg *ledger) lookup(name string) (captureEntry, bool, error) {
+	e, ok, err := lg.get(name)
+	if errors.Is(err, errEntry) {
+		if err = lg.reset(lg.db, "bad", fmt.Sprintf("capture %q: %v", name, err)); err == nil {
+			if err = lg.sync(); err == nil {
+				e, ok, err = lg.get(name)
+			}
+		}
+	}
+	return e, ok, err
+}
+
+func (lg *ledger) get(name string) (captureEntry, bool, error) {
+	var e captureEntry
+	found := false
+	if name != "" {
+		err := lg.db.View(func(tx *bolt.Tx) error {
+			v := tx.Bucket(bucketCaptures).Get([]byte(name))
+			if v == nil {
+				return nil
+			}
+			found = true
+			var err error
+			e, err = decodeEntry(v)
+			return err
+		})
+		if err != nil {
+			return captureEntry{}, false, err
+		}
+	}
+	for _, c := range lg.pendingCaps[name] {
+		e.record(c.sha, c.reason, c.file)
+		found = true
+	}
+	return e, found, nil
+}
+
+// hasEvent reports whether an event with this id is in the log.
+func (lg *ledger) hasEvent(id string) (bool, error) {
+	found := false
+	if _, ok := lg.pendingIDs[id]; ok {
+		return true, nil
+	}
+	err := lg.db.View(func(tx *bolt.Tx) error {
+		found = tx.Bucket(bucketEvents).Get(eventKey(id)) != nil
+		return nil
+	})
+	return found, err
+}
+
+// captures is the number of capture names recorded.
+func (lg *ledger) captures() uint64 { return lg.n }
+
+// close writes what waits and closes the file.
+func (lg *ledger) close() error {
+	if lg == nil || lg.db == nil {
+		return nil
+	}
+	err := lg.save()
+	if cerr := lg.db.Close(); err == nil {
+		err = cerr
+	}
+	lg.db = nil
+	return err
+}
+
+// fillRecent gives recent the newest records of the log at path: the
+// segments are read from the newest back until they hold n records of
+// each kind (or the log's start is reached), and their records are added
+// oldest first. It returns the number of files read.
+func fillRecent(path string, recent *metrics.Recent, n int) (int, error) {
+	segs, err := eventlog.Segments(path)
+	if err != nil {
+		return 0, err
+	}
+	var tail []eventlog.Record // oldest first
+	events, captures, read := 0, 0, 0
+	for i := len(segs) - 1; i >= 0 && (events < n || captures < n); i-- {
+		ring := metrics.NewRecent(n)
+		r := eventlog.NewReader(segs[i])
+		for {
+			rec, err := r.Next()
+			if errors.Is(err, io.EOF) {
+				break
+			}
+			if err != nil {
+				r.Close()
+				return read, err
+			}
+			ring.Add(rec)
+		}
+		read++
+		got := ring.Since(0, 2*n, true, true)
+		for _, rec := range got {
+			if rec.Kind == eventlog.KindEvent {
+				events++
+			} else {
+				captures++
+			}
+		}
+		tail = append(got, tail...)
+	}
+	recent.Add(tail...)
+	return read, nil
+}
