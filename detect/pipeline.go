@@ -9,6 +9,8 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"runtime"
+	"sync/atomic"
 	"time"
 
 	"quietband/ingest"
@@ -28,9 +30,16 @@ type Pipeline struct {
 	cfg   Config
 	state *State
 	// GNSS, when set, measures the satellites of each capture; see
-	// SatelliteMeter.
-	GNSS  SatelliteMeter
-	banks map[string]*bank
+	// SatelliteMeter. With more than one CPU (GOMAXPROCS) it runs on a
+	// goroutine of its own beside the spectral pass, fed the same blocks
+	// of the same single read in the same order, so that its result is
+	// the one it would give inline.
+	GNSS SatelliteMeter
+	// GNSSInline, when set, keeps the GNSS meter on the spectral pass's
+	// goroutine whatever the number of CPUs (one goroutine of analysis per
+	// capture, for callers that run several pipelines at once).
+	GNSSInline bool
+	banks      map[string]*bank
 
 	// Observer, when set, sees every block after the detectors ran (for
 	// reports: spectrograms, PSD, SK and pulses come from the same single
@@ -152,6 +161,16 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 			st.gnssSkipped = why
 		}
 	}
+	inline := meter != nil && st.gnssSkipped == ""
+	var side *meterSide
+	if inline && !p.GNSSInline && runtime.GOMAXPROCS(0) > 1 {
+		inline = false
+		r.KeepBlocks(meterQueue + 2)
+		side = startMeterSide(meter)
+		// On every early return: stop the meter and wait for it, so that
+		// no goroutine outlives the call or reads a block after it.
+		defer side.stop()
+	}
 	for {
 		if err := ctx.Err(); err != nil {
 			return nil, err
@@ -163,10 +182,16 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 		if err != nil {
 			return nil, err
 		}
+		if side != nil {
+			side.blocks <- blk
+		}
 		b.block(blk, p.Observer)
-		if meter != nil && st.gnssSkipped == "" {
+		if inline {
 			meter.Block(blk.Start, blk.Samples)
 		}
+	}
+	if side != nil {
+		side.join()
 	}
 	psdSum, psdBlocks := b.psdSum, b.psdBlocks
 	sha := r.SHA256()
@@ -280,6 +305,55 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 	res.Record = rec
 	res.Elapsed = time.Since(t0)
 	return res, nil
+}
+
+// meterQueue is how many blocks the satellite meter, on its own
+// goroutine, may lag behind the spectral pass before the spectral pass
+// waits for it. The Reader keeps meterQueue+2 sample buffers: when the
+// spectral pass has handed block j over, the meter holds at most blocks
+// j−meterQueue … j (meterQueue queued, one in hand), and the next Next
+// refills the buffer of block j+1−(meterQueue+2), which is older.
+// Measured (BenchmarkReplayModes/sha512=false/beside at -cpu 2): a queue
+// of one to four blocks gives the same rate, and deeper ones (8 to 32
+// blocks, to cover the acquisition at the start of a capture) were no
+// faster.
+const meterQueue = 2
+
+// meterSide runs a SatelliteMeter on a goroutine of its own, fed blocks in
+// order through a bounded channel.
+type meterSide struct {
+	blocks  chan ingest.Block
+	done    chan struct{}
+	aborted atomic.Bool
+	closed  bool
+}
+
+func startMeterSide(m SatelliteMeter) *meterSide {
+	s := &meterSide{blocks: make(chan ingest.Block, meterQueue), done: make(chan struct{})}
+	go func() {
+		defer close(s.done)
+		for blk := range s.blocks {
+			if !s.aborted.Load() {
+				m.Block(blk.Start, blk.Samples)
+			}
+		}
+	}()
+	return s
+}
+
+// join waits for the meter to take every block sent.
+func (s *meterSide) join() {
+	if !s.closed {
+		s.closed = true
+		close(s.blocks)
+	}
+	<-s.done
+}
+
+// stop makes the meter skip the blocks still queued and waits for it.
+func (s *meterSide) stop() {
+	s.aborted.Store(true)
+	s.join()
 }
 
 func eventID(sha, class string, start int64, offset float64, fp string) string {

@@ -157,8 +157,9 @@ func streamZeros(t *testing.T, path string, size int64) (totalAlloc, heapInuse i
 
 // TestReaderMemoryBounded streams a 256 MiB sparse capture (64 MiB with
 // -short) in 64 Ki-sample blocks and checks that the heap allocated while
-// doing so stays under 4 MiB: memory is bounded by the block size (two
-// block buffers of 256 KiB and 512 KiB here), not by the capture size.
+// doing so stays under 4 MiB: memory is bounded by the block size (a
+// sample buffer of 512 KiB and up to hashDepth+1 raw ones of 256 KiB
+// here), not by the capture size.
 func TestReaderMemoryBounded(t *testing.T) {
 	size := int64(256 << 20)
 	if testing.Short() {

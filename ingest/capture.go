@@ -236,32 +236,39 @@ func unwrapPathError(err error) error {
 
 // Block is a run of consecutive samples of a capture.
 type Block struct {
-	Start   int64       // index of Samples[0] in the capture
-	Samples []complex64 // valid until the next call of Next
-	Clipped int         // samples at a saturated code
+	Start int64 // index of Samples[0] in the capture
+	// Samples are the block's samples, owned by the Reader: valid until the
+	// next call of Next, or, after KeepBlocks(k), for the next k−1 calls
+	// (the Reader rotates among k buffers).
+	Samples []complex64
+	Clipped int // samples at a saturated code
 }
 
 // Reader streams a capture in blocks of a fixed number of samples (the last
 // one may be shorter). Memory is a few buffers of one block, whatever the
 // capture size. It hashes the data as it goes (SHA-256 always; SHA-512 too
 // when there is a core:sha512 to check); with more than one CPU the hashing
-// runs on a goroutine of its own, one block behind, so that it overlaps the
-// caller's work on the block. Close the Reader to stop that goroutine.
+// runs on a goroutine of its own, up to three blocks behind, so that it
+// overlaps the caller's work on the blocks, and with more than two CPUs
+// SHA-256 and SHA-512, which are independent, run on a goroutine each.
+// Close the Reader to stop those goroutines.
 type Reader struct {
 	src     io.Reader
 	closer  io.Closer
 	name    string
 	format  Format
 	raw     []byte
-	bufs    [2][]byte
+	bufs    [][]byte // raw buffers: one, or hashDepth+1 with hashing goroutines
 	cur     int
-	hashReq chan []byte
-	hashAck chan struct{}
-	pending bool
+	lanes   []hashLane // one per hashing goroutine; nil when hashing inline
 	async   bool
+	split   bool // SHA-256 and SHA-512 on a goroutine each
 	closed  bool
 	noHash  bool
+	started bool // Next has been called
 	blk     []complex64
+	blks    [][]complex64 // KeepBlocks' rotation, blk among them; nil for one
+	nextBuf int           // index in blks of the buffer the next block fills
 	next    int64
 	left    int64 // samples still expected; <0 when unknown
 	sha256  hash.Hash
@@ -278,20 +285,70 @@ func NewReader(src io.Reader, name string, f Format, blockSamples int, total int
 		panic("ingest: block size must be positive")
 	}
 	r := &Reader{src: src, name: name, format: f, blk: make([]complex64, blockSamples), left: total, sha256: sha256.New()}
-	r.bufs[0] = make([]byte, blockSamples*f.SampleBytes())
+	r.bufs = [][]byte{make([]byte, blockSamples*f.SampleBytes())}
 	r.raw = r.bufs[0]
-	r.async = runtime.GOMAXPROCS(0) > 1
+	procs := runtime.GOMAXPROCS(0)
+	r.async, r.split = procs > 1, procs > 2
 	return r
 }
 
-// hasher hashes the blocks sent to it, in order, acknowledging each.
-func hasher(req <-chan []byte, ack chan<- struct{}, h256, h512 hash.Hash) {
+// KeepBlocks makes the Reader rotate among k sample buffers, so that a
+// Block's Samples stay valid for the next k−1 calls of Next (a consumer on
+// another goroutine can still read a block while the caller fetches the
+// following ones). Memory for samples is k blocks. The default is k = 1.
+// Call it before the first Next; it panics if k < 1 or if Next was called.
+func (r *Reader) KeepBlocks(k int) {
+	if k < 1 {
+		panic("ingest: KeepBlocks needs k ≥ 1")
+	}
+	if r.started {
+		panic("ingest: KeepBlocks after Next")
+	}
+	if k == 1 {
+		r.blks = nil
+		return
+	}
+	r.blks = make([][]complex64, k)
+	r.blks[0] = r.blk
+	for i := 1; i < k; i++ {
+		r.blks[i] = make([]complex64, len(r.blk))
+	}
+	r.nextBuf = 0
+}
+
+// hashDepth is how many blocks the hashing goroutines may lag behind Next;
+// the Reader then keeps hashDepth+1 raw buffers. Three rather than one:
+// when the hashing, the caller's pass and a third goroutine (the
+// pipeline's satellite meter) share two CPUs, a lag of one block kept the
+// pass and the hashing waiting for each other whenever the scheduler ran
+// the third (BenchmarkReplayModes/sha512=true/beside at -cpu 2, per 1 s
+// capture at 10 MS/s: 121–130 ms with one, 107–113 ms with three; without
+// a SHA-512 the same).
+const hashDepth = 3
+
+// hashLane is one hashing goroutine: the blocks sent to it, its
+// acknowledgement of each, and how many acknowledgements are still owed.
+type hashLane struct {
+	req     chan []byte
+	ack     chan struct{}
+	pending int
+}
+
+// hasher writes the blocks sent to it, in order, into each of hs,
+// acknowledging each block.
+func hasher(req <-chan []byte, ack chan<- struct{}, hs ...hash.Hash) {
 	for b := range req {
-		h256.Write(b)
-		if h512 != nil {
-			h512.Write(b)
+		for _, h := range hs {
+			h.Write(b)
 		}
 		ack <- struct{}{}
+	}
+}
+
+// wait waits until at most n blocks are owed by the lane.
+func (l *hashLane) wait(n int) {
+	for ; l.pending > n; l.pending-- {
+		<-l.ack
 	}
 }
 
@@ -300,38 +357,56 @@ func hasher(req <-chan []byte, ack chan<- struct{}, h256, h512 hash.Hash) {
 // the first Next.
 func (r *Reader) SkipHash() { r.noHash = true }
 
-// hash hashes raw, on the hasher goroutine if there is one (waiting for the
-// previous block's hash first, so that at most one is in flight and the
-// buffer it uses is not refilled under it).
+// hash hashes raw, on the hashing goroutines if there are any. The raw
+// buffers rotate: raw is sent to every lane and Next reads the next block
+// into the next buffer, which held the block hashDepth blocks back. Each
+// lane is first let owe at most hashDepth−1 blocks, so that once raw is
+// sent, the blocks in flight are the last hashDepth at most and the next
+// buffer is no longer read.
 func (r *Reader) hash(raw []byte) {
 	if r.noHash {
 		return
 	}
-	if r.async && r.hashReq == nil && !r.closed {
+	if r.async && r.lanes == nil && !r.closed {
 		// Started on the first block, when the hashes are all set up.
-		r.bufs[1] = make([]byte, len(r.bufs[0]))
-		r.hashReq, r.hashAck = make(chan []byte, 1), make(chan struct{}, 1)
-		go hasher(r.hashReq, r.hashAck, r.sha256, r.sha512)
+		for len(r.bufs) < hashDepth+1 {
+			r.bufs = append(r.bufs, make([]byte, len(r.bufs[0])))
+		}
+		groups := [][]hash.Hash{{r.sha256}}
+		if r.sha512 != nil {
+			if r.split {
+				groups = append(groups, []hash.Hash{r.sha512})
+			} else {
+				groups[0] = append(groups[0], r.sha512)
+			}
+		}
+		for _, hs := range groups {
+			l := hashLane{req: make(chan []byte, hashDepth), ack: make(chan struct{}, hashDepth)}
+			go hasher(l.req, l.ack, hs...)
+			r.lanes = append(r.lanes, l)
+		}
 	}
-	if r.hashReq == nil {
+	if r.lanes == nil {
 		r.sha256.Write(raw)
 		if r.sha512 != nil {
 			r.sha512.Write(raw)
 		}
 		return
 	}
-	r.waitHash()
-	r.hashReq <- raw
-	r.pending = true
-	r.cur ^= 1
+	for i := range r.lanes {
+		l := &r.lanes[i]
+		l.wait(hashDepth - 1)
+		l.req <- raw
+		l.pending++
+	}
+	r.cur = (r.cur + 1) % len(r.bufs)
 	r.raw = r.bufs[r.cur]
 }
 
-// waitHash waits for the block being hashed, if any.
+// waitHash waits for every block sent to be hashed.
 func (r *Reader) waitHash() {
-	if r.pending {
-		<-r.hashAck
-		r.pending = false
+	for i := range r.lanes {
+		r.lanes[i].wait(0)
 	}
 }
 
@@ -357,6 +432,7 @@ func (r *Reader) Next() (Block, error) {
 	if r.done {
 		return Block{}, io.EOF
 	}
+	r.started = true
 	sb := r.format.SampleBytes()
 	want := len(r.blk)
 	if r.left >= 0 && int64(want) > r.left {
@@ -383,6 +459,10 @@ func (r *Reader) Next() (Block, error) {
 		return Block{}, captureErr(r.name, "read error at byte offset %d: %w", r.next*int64(sb), err)
 	}
 	raw := r.raw[:want*sb]
+	if r.blks != nil {
+		r.blk = r.blks[r.nextBuf]
+		r.nextBuf = (r.nextBuf + 1) % len(r.blks)
+	}
 	samples := r.blk[:want]
 	clipped, bad := r.format.Decode(samples, raw)
 	r.hash(raw)
@@ -443,10 +523,12 @@ func (r *Reader) SHA256() string {
 // Reader opened it.
 func (r *Reader) Close() error {
 	r.closed = true
-	if r.hashReq != nil {
+	if r.lanes != nil {
 		r.waitHash()
-		close(r.hashReq)
-		r.hashReq = nil
+		for _, l := range r.lanes {
+			close(l.req)
+		}
+		r.lanes = nil
 	}
 	if r.closer != nil {
 		return r.closer.Close()

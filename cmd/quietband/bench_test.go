@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"fmt"
 	"io"
 	"path/filepath"
 	"runtime"
@@ -27,6 +28,41 @@ func BenchmarkReplay(b *testing.B) {
 		audio += sum.audio.Seconds()
 	}
 	b.ReportMetric(audio/b.Elapsed().Seconds(), "rt")
+}
+
+// BenchmarkReplayModes replays BenchmarkReplay's captures, with and
+// without a core:sha512 to check, in the three ways of measuring the
+// satellites, whatever -cpu says: inside the spectral pass (--workers 1),
+// beside it from the same read (2) and ahead of it on reads of their own
+// (aheadWorkers: two measuring goroutines). It is the measurement behind
+// aheadWorkers. rt as for BenchmarkReplay.
+func BenchmarkReplayModes(b *testing.B) {
+	dir := b.TempDir()
+	for _, sha512 := range []bool{false, true} {
+		if _, err := benchCaptures(filepath.Join(dir, fmt.Sprintf("sha512=%v", sha512)), 10e6, "ci16_le", 1, 4, false, sha512); err != nil {
+			b.Fatal(err)
+		}
+	}
+	ctx := context.Background()
+	for _, sha512 := range []bool{false, true} {
+		for _, m := range []struct {
+			name    string
+			workers int
+		}{{"inline", 1}, {"beside", 2}, {"ahead", aheadWorkers}} {
+			set := fmt.Sprintf("sha512=%v", sha512)
+			b.Run(set+"/"+m.name, func(b *testing.B) {
+				var audio float64
+				for b.Loop() {
+					sum, err := replay(ctx, replayOptions{paths: []string{filepath.Join(dir, set)}, workers: m.workers, out: io.Discard, errOut: io.Discard})
+					if err != nil {
+						b.Fatal(err)
+					}
+					audio += sum.audio.Seconds()
+				}
+				b.ReportMetric(audio/b.Elapsed().Seconds(), "rt")
+			})
+		}
+	}
 }
 
 func runtimeProcs() int { return runtime.GOMAXPROCS(0) }

@@ -64,7 +64,7 @@ as quarantined, and replay goes on; the exit status is 1 if any was bad.`, errOu
 	asJSON := fs.Bool("json", false, "print the event-log records (JSON Lines) instead of the table")
 	baseline := fs.String("baseline", "", "baseline file: loaded if it exists, saved at the end")
 	quiet := fs.Bool("quiet", false, "no progress line on the terminal")
-	workers := fs.Int("workers", runtime.NumCPU(), "captures whose satellites are measured at once (the spectral pass and the log stay in time order; output does not depend on this)")
+	workers := fs.Int("workers", runtime.NumCPU(), "CPUs to analyse with: 1 measures the satellites inside the spectral pass; 2 or 3 measure them on a goroutine of their own beside it, from the same read; 4 or more measure those of the next captures ahead, on their own reads (the spectral pass and the log stay in time order; output does not depend on this)")
 	reportDir := fs.String("report", "", "write the analyst's report into this folder: index.html with PNG pictures beside it")
 	reportAll := fs.Bool("report-all", false, "with --report: draw every capture, not only those with events")
 	annotate := fs.Bool("annotate", false, "write each event as a SigMF annotation into a copy of its capture's metadata, --report folder/annotations/NAME.sigmf-meta (raw captures get none)")
@@ -163,14 +163,14 @@ func replay(ctx context.Context, o replayOptions) (*replaySummary, error) {
 		}
 	}
 	pipe := detect.NewPipeline(detect.Config{}, state)
-	// With one worker the satellites are measured inside the spectral
-	// pass (one read of each capture); with more, ahead of it on their own
-	// reads. Both feed the meter the same blocks: the records are the same.
+	// Every way feeds a meter the same blocks in the same order, so the
+	// records are the same whatever the number of workers.
 	var measured []chan measured
-	if o.workers > 1 {
-		measured = measureAhead(ctx, jobs, pipe, o.workers)
+	if o.workers >= aheadWorkers {
+		measured = measureAhead(ctx, jobs, pipe, o.workers-2)
 	} else {
 		pipe.GNSS = &detect.GNSSMeter{}
+		pipe.GNSSInline = o.workers <= 1
 	}
 
 	logPath := o.logPath
@@ -354,6 +354,33 @@ func printSummary(w io.Writer, s *replaySummary) {
 		fmt.Fprintf(w, "event log: %s\n", s.logPath)
 	}
 }
+
+// aheadWorkers is the fewest workers with which replay measures the
+// satellites of the next captures ahead of the spectral pass, on reads of
+// their own, rather than beside it from the same read.
+//
+// One capture keeps three goroutines busy: the spectral pass (which also
+// reads and decodes), the hashing (SHA-256 and, for SigMF with
+// core:sha512, SHA-512; two goroutines with more than two CPUs) and the
+// satellite meter beside the pass. Measuring ahead costs a second read and
+// decode of every capture, and in exchange the pass never waits for the
+// meter (neither during the acquisition at the start of a capture nor at
+// its end). Measured on two CPUs (BenchmarkReplayModes -cpu 2, 10 MS/s
+// ci16_le, eight satellites, median ms per 1 s capture over five runs):
+//
+//	                   inline  beside  ahead
+//	no core:sha512      112.7    89.2   85.8
+//	with core:sha512    110.3   110.6  115.4
+//
+// Beside and ahead are within the run-to-run spread (±5 %) of each other
+// there, so with two or three workers the satellites are measured beside
+// the pass and each capture is read once. With four CPUs or more, one
+// capture's goroutines leave cores idle: the second reads then run on
+// them and the pass goes at its own pace, no longer bound to the meter's.
+// (This machine has two CPUs; BenchmarkReplayModes with -cpu 4,8 on a
+// larger one checks that choice.) Ahead, workers−2 goroutines measure (one
+// core is the pass's, one the hashing's).
+const aheadWorkers = 4
 
 // measured is the satellite measurement of one job.
 type measured struct {

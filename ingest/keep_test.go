@@ -1,0 +1,238 @@
+package ingest
+
+import (
+	"bytes"
+	"crypto/sha256"
+	"crypto/sha512"
+	"encoding/binary"
+	"encoding/hex"
+	"errors"
+	"fmt"
+	"io"
+	"math/rand/v2"
+	"os"
+	"path/filepath"
+	"runtime"
+	"strings"
+	"testing"
+	"time"
+)
+
+// ci16Pattern returns n ci16_le samples of distinct codes and the values
+// they stand for: I = (7n mod 65536) − 32768, Q = −I − 1, each divided by
+// 2^15 (Q15 fixed point, the scaling of the Format documentation).
+func ci16Pattern(n int) ([]byte, []complex64) {
+	raw := make([]byte, 4*n)
+	want := make([]complex64, n)
+	for i := range n {
+		re := int16(int32(7*i%65536) - 32768)
+		im := -re - 1
+		binary.LittleEndian.PutUint16(raw[4*i:], uint16(re))
+		binary.LittleEndian.PutUint16(raw[4*i+2:], uint16(im))
+		want[i] = complex(float32(re)/32768, float32(im)/32768)
+	}
+	return raw, want
+}
+
+// TestReaderKeepBlocks: after KeepBlocks(k) every block returned still
+// holds its samples (the Q15 values of its codes) k−1 calls of Next later,
+// the k most recent blocks use k distinct buffers and block i shares its
+// buffer with block i−k (memory is k blocks, no more). With one, two and
+// three CPUs, as the raw buffers rotate differently when hashing runs on
+// its own goroutines.
+func TestReaderKeepBlocks(t *testing.T) {
+	cases := []struct {
+		k, block, n int
+	}{
+		{1, 100, 1000},
+		{2, 100, 1050}, // short last block
+		{3, 64, 1000},
+		{4, 128, 1000},
+		{6, 1000, 1000}, // more buffers than blocks
+	}
+	prev := runtime.GOMAXPROCS(0)
+	defer runtime.GOMAXPROCS(prev)
+	for _, procs := range []int{1, 2, 3} {
+		runtime.GOMAXPROCS(procs)
+		for _, tc := range cases {
+			t.Run(fmt.Sprintf("procs%d/k%d/block%d", procs, tc.k, tc.block), func(t *testing.T) {
+				raw, want := ci16Pattern(tc.n)
+				r := NewReader(bytes.NewReader(raw), "pattern.ci16", CI16LE, tc.block, int64(tc.n))
+				defer r.Close()
+				r.KeepBlocks(tc.k)
+				var blocks []Block
+				for {
+					b, err := r.Next()
+					if errors.Is(err, io.EOF) {
+						break
+					}
+					if err != nil {
+						t.Fatal(err)
+					}
+					blocks = append(blocks, b)
+					i := len(blocks) - 1
+					// Blocks i−k+1 … i are all intact.
+					for j := max(0, i-tc.k+1); j <= i; j++ {
+						bj := blocks[j]
+						for m, v := range bj.Samples {
+							if w := want[bj.Start+int64(m)]; v != w {
+								t.Fatalf("after block %d, block %d sample %d = %v, want %v", i, j, m, v, w)
+							}
+						}
+						if j < i && &bj.Samples[0] == &b.Samples[0] {
+							t.Fatalf("blocks %d and %d share a buffer with k = %d", j, i, tc.k)
+						}
+					}
+					if j := i - tc.k; j >= 0 && &blocks[j].Samples[0] != &b.Samples[0] {
+						t.Errorf("block %d does not reuse the buffer of block %d: more than k = %d buffers", i, j, tc.k)
+					}
+				}
+				if n := (tc.n + tc.block - 1) / tc.block; len(blocks) != n {
+					t.Errorf("%d blocks, want %d", len(blocks), n)
+				}
+			})
+		}
+	}
+}
+
+// TestKeepBlocksMisuse: k < 1, or a call after Next, is a programmer
+// error.
+func TestKeepBlocksMisuse(t *testing.T) {
+	raw, _ := ci16Pattern(10)
+	cases := []struct {
+		name string
+		do   func(r *Reader)
+		want string
+	}{
+		{"zero", func(r *Reader) { r.KeepBlocks(0) }, "k ≥ 1"},
+		{"after Next", func(r *Reader) { r.Next(); r.KeepBlocks(2) }, "after Next"},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			r := NewReader(bytes.NewReader(raw), "x", CI16LE, 4, 10)
+			defer r.Close()
+			defer func() {
+				if p := recover(); p == nil || !strings.Contains(fmt.Sprint(p), tc.want) || !strings.HasPrefix(fmt.Sprint(p), "ingest:") {
+					t.Errorf("panic %v, want an ingest: panic mentioning %q", p, tc.want)
+				}
+			}()
+			tc.do(r)
+		})
+	}
+}
+
+// hashers counts the hashing goroutines (those the Reader's hash method
+// started, running or about to), from a dump of every goroutine's stack.
+func hashers() int {
+	buf := make([]byte, 1<<20)
+	for {
+		n := runtime.Stack(buf, true)
+		if n < len(buf) {
+			return bytes.Count(buf[:n], []byte("created by quietband/ingest.(*Reader).hash"))
+		}
+		buf = make([]byte, 2*len(buf))
+	}
+}
+
+// hashersBack waits (up to a second) for the hasher count to fall back to
+// n, and returns it.
+func hashersBack(n int) int {
+	deadline := time.Now().Add(time.Second)
+	for hashers() > n && time.Now().Before(deadline) {
+		time.Sleep(time.Millisecond)
+	}
+	return hashers()
+}
+
+// TestReaderHashGoroutines streams a SigMF recording with core:sha512 in
+// uneven blocks with one to four CPUs: SHA-256 mid-way and at the end is
+// that of the bytes read (FIPS 180-4, computed by crypto/sha256), the
+// core:sha512 (FIPS 180-4, crypto/sha512) is checked, intact data passes
+// and one flipped byte fails; hashing runs inline with one CPU, on one
+// goroutine with two, on two (SHA-256 and SHA-512 apart) with more; and
+// Close leaves no goroutine behind. Run with -race, this also checks that
+// no raw buffer is refilled while a hasher reads it.
+func TestReaderHashGoroutines(t *testing.T) {
+	const n, block = 3001, 97
+	base := filepath.Join(t.TempDir(), "hashed")
+	data := writeSigMF(t, base, SigMFHeader{Format: CF32LE, SampleRate: 1e6}, randSamples(rand.New(rand.NewPCG(5, 6)), n, 0.5))
+	orig, err := os.ReadFile(data)
+	if err != nil {
+		t.Fatal(err)
+	}
+	prev := runtime.GOMAXPROCS(0)
+	defer runtime.GOMAXPROCS(prev)
+	for _, tc := range []struct {
+		procs, goroutines int
+	}{{1, 0}, {2, 1}, {3, 2}, {4, 2}} {
+		for _, tamper := range []bool{false, true} {
+			t.Run(fmt.Sprintf("procs%d/tampered=%v", tc.procs, tamper), func(t *testing.T) {
+				runtime.GOMAXPROCS(tc.procs)
+				mod := bytes.Clone(orig)
+				if tamper {
+					mod[len(mod)/2] ^= 0x01 // a float32 bit flip, still finite
+				}
+				if err := os.WriteFile(data, mod, 0o644); err != nil {
+					t.Fatal(err)
+				}
+				c, err := Open(base+MetaExt, RawSettings{})
+				if err != nil {
+					t.Fatal(err)
+				}
+				before := hashersBack(0)
+				r, err := c.NewReader(block)
+				if err != nil {
+					t.Fatal(err)
+				}
+				var read, nblk int
+				var end error
+				for {
+					b, err := r.Next()
+					if errors.Is(err, io.EOF) {
+						break
+					}
+					if err != nil {
+						end = err
+						break
+					}
+					read += len(b.Samples)
+					nblk++
+					if nblk == 1 {
+						if got := hashers() - before; got != tc.goroutines {
+							t.Errorf("%d hashing goroutines, want %d", got, tc.goroutines)
+						}
+					}
+					if nblk%7 == 3 {
+						sum := sha256.Sum256(mod[:read*8])
+						if got := r.SHA256(); got != hex.EncodeToString(sum[:]) {
+							t.Fatalf("SHA256 after %d samples = %s, want %x", read, got, sum)
+						}
+					}
+				}
+				var ce *CaptureError
+				if got := errors.As(end, &ce) && strings.Contains(end.Error(), "SHA-512"); got != tamper || (!tamper && end != nil) {
+					t.Errorf("stream ended with %v; tampered = %v", end, tamper)
+				}
+				if tamper {
+					if _, err := r.Next(); err != io.EOF {
+						t.Errorf("Next after the mismatch: %v, want io.EOF", err)
+					}
+				}
+				sum := sha256.Sum256(mod)
+				if got := r.SHA256(); got != hex.EncodeToString(sum[:]) {
+					t.Errorf("SHA256 = %s, want %x", got, sum)
+				}
+				if read != n {
+					t.Errorf("%d samples delivered, want %d", read, n)
+				}
+				if s := sha512.Sum512(mod); (hex.EncodeToString(s[:]) == c.Meta.Global.SHA512) == tamper {
+					t.Fatalf("test data: core:sha512 agreement %v with tampered=%v", !tamper, tamper)
+				}
+				r.Close()
+				if got := hashersBack(before); got > before {
+					t.Errorf("%d hashing goroutines after Close, %d before", got, before)
+				}
+			})
+		}
+	}
+}
