@@ -165,8 +165,9 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 	var side *meterSide
 	if inline && !p.GNSSInline && runtime.GOMAXPROCS(0) > 1 {
 		inline = false
-		r.KeepBlocks(meterQueue + 2)
-		side = startMeterSide(meter)
+		q := meterQueue(blockLen)
+		r.KeepBlocks(q + 2)
+		side = startMeterSide(meter, q)
 		// On every early return: stop the meter and wait for it, so that
 		// no goroutine outlives the call or reads a block after it.
 		defer side.stop()
@@ -311,13 +312,21 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 // goroutine, may lag behind the spectral pass before the spectral pass
 // waits for it. The Reader keeps meterQueue+2 sample buffers: when the
 // spectral pass has handed block j over, the meter holds at most blocks
-// j−meterQueue … j (meterQueue queued, one in hand), and the next Next
-// refills the buffer of block j+1−(meterQueue+2), which is older.
-// Measured (BenchmarkReplayModes/sha512=false/beside at -cpu 2): a queue
-// of one to four blocks gives the same rate, and deeper ones (8 to 32
-// blocks, to cover the acquisition at the start of a capture) were no
-// faster.
-const meterQueue = 2
+// j−q … j (q queued, one in hand), and the next Next refills the buffer of
+// block j+1−(q+2), which is older. The queue lets the spectral pass go on
+// while the meter acquires on the first 10 ms, which takes about as long
+// as the spectral pass over 40 blocks: up to 24 blocks, within
+// meterQueueBytes of samples. Measured (BenchmarkReplayModes
+// sha512=false, inline and beside alternately at -cpu 2, three runs each
+// on a shared machine): beside over inline 1.18× with a queue of 2 blocks,
+// 1.33× with 24.
+func meterQueue(blockLen int) int {
+	return max(2, min(24, meterQueueBytes/(8*max(blockLen, 1))))
+}
+
+// meterQueueBytes bounds the samples queued for the meter: 16 MiB, 16
+// blocks of 1 MiB at 10 MS/s, 8 of 2 MiB at 20 MS/s.
+const meterQueueBytes = 16 << 20
 
 // meterSide runs a SatelliteMeter on a goroutine of its own, fed blocks in
 // order through a bounded channel.
@@ -328,8 +337,8 @@ type meterSide struct {
 	closed  bool
 }
 
-func startMeterSide(m SatelliteMeter) *meterSide {
-	s := &meterSide{blocks: make(chan ingest.Block, meterQueue), done: make(chan struct{})}
+func startMeterSide(m SatelliteMeter, queue int) *meterSide {
+	s := &meterSide{blocks: make(chan ingest.Block, queue), done: make(chan struct{})}
 	go func() {
 		defer close(s.done)
 		for blk := range s.blocks {
