@@ -13,6 +13,7 @@ import (
 	"path/filepath"
 	"runtime"
 	"strings"
+	"sync"
 	"time"
 )
 
@@ -284,8 +285,8 @@ func NewReader(src io.Reader, name string, f Format, blockSamples int, total int
 	if blockSamples < 1 {
 		panic("ingest: block size must be positive")
 	}
-	r := &Reader{src: src, name: name, format: f, blk: make([]complex64, blockSamples), left: total, sha256: sha256.New()}
-	r.bufs = [][]byte{make([]byte, blockSamples*f.SampleBytes())}
+	r := &Reader{src: src, name: name, format: f, blk: samplePool.get(blockSamples), left: total, sha256: sha256.New()}
+	r.bufs = [][]byte{rawPool.get(blockSamples * f.SampleBytes())}
 	r.raw = r.bufs[0]
 	procs := runtime.GOMAXPROCS(0)
 	r.async, r.split = procs > 1, procs > 2
@@ -311,7 +312,7 @@ func (r *Reader) KeepBlocks(k int) {
 	r.blks = make([][]complex64, k)
 	r.blks[0] = r.blk
 	for i := 1; i < k; i++ {
-		r.blks[i] = make([]complex64, len(r.blk))
+		r.blks[i] = samplePool.get(len(r.blk))
 	}
 	r.nextBuf = 0
 }
@@ -370,7 +371,7 @@ func (r *Reader) hash(raw []byte) {
 	if r.async && r.lanes == nil && !r.closed {
 		// Started on the first block, when the hashes are all set up.
 		for len(r.bufs) < hashDepth+1 {
-			r.bufs = append(r.bufs, make([]byte, len(r.bufs[0])))
+			r.bufs = append(r.bufs, rawPool.get(len(r.bufs[0])))
 		}
 		groups := [][]hash.Hash{{r.sha256}}
 		if r.sha512 != nil {
@@ -530,8 +531,77 @@ func (r *Reader) Close() error {
 		}
 		r.lanes = nil
 	}
+	// The buffers go back to the pools for the next Reader: no goroutine
+	// uses them any more, and the caller may not use a Block after Close.
+	if r.blks != nil {
+		for _, b := range r.blks {
+			samplePool.put(b)
+		}
+	} else if r.blk != nil {
+		samplePool.put(r.blk)
+	}
+	for _, b := range r.bufs {
+		rawPool.put(b)
+	}
+	r.blk, r.blks, r.bufs, r.raw = nil, nil, nil, nil
 	if r.closer != nil {
 		return r.closer.Close()
 	}
 	return nil
+}
+
+// samplePool and rawPool keep the Readers' sample and raw buffers between
+// captures: the daemon and replay read capture after capture with the same
+// block size, and fresh buffers of megabytes each time cost page faults
+// and zeroing (measured as system time on two CPUs, where a capture's
+// buffers are several blocks).
+var (
+	samplePool bufferPool[complex64]
+	rawPool    bufferPool[byte]
+)
+
+// bufferPool is a free list of buffers by length, at most
+// maxPooledPerLength of each length and maxPooledLengths lengths (so its
+// memory stays bounded whatever the captures).
+type bufferPool[T any] struct {
+	mu   sync.Mutex
+	free map[int][][]T
+}
+
+const (
+	maxPooledPerLength = 32
+	maxPooledLengths   = 4
+)
+
+// get returns a buffer of length n, not cleared.
+func (p *bufferPool[T]) get(n int) []T {
+	p.mu.Lock()
+	if l := p.free[n]; len(l) > 0 {
+		b := l[len(l)-1]
+		p.free[n] = l[:len(l)-1]
+		p.mu.Unlock()
+		return b
+	}
+	p.mu.Unlock()
+	return make([]T, n)
+}
+
+// put gives b back, or drops it when the list is full.
+func (p *bufferPool[T]) put(b []T) {
+	if cap(b) == 0 {
+		return
+	}
+	b = b[:cap(b)]
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	if p.free == nil {
+		p.free = map[int][][]T{}
+	}
+	l, ok := p.free[len(b)]
+	if !ok && len(p.free) >= maxPooledLengths {
+		return
+	}
+	if len(l) < maxPooledPerLength {
+		p.free[len(b)] = append(l, b)
+	}
 }

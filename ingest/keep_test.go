@@ -236,3 +236,45 @@ func TestReaderHashGoroutines(t *testing.T) {
 		}
 	}
 }
+
+// TestReaderBuffersReused checks that a Reader closed gives its buffers to
+// the next Reader of the same block size (no fresh multi-megabyte buffers
+// per capture), and that the next Reader's blocks are right even though
+// its buffers held another capture's samples (each block is decoded over
+// them in full).
+func TestReaderBuffersReused(t *testing.T) {
+	a := bytes.Repeat([]byte{0x00, 0x40, 0x00, 0xc0}, 1000) // +0.5, −0.5
+	b := bytes.Repeat([]byte{0x00, 0x20, 0x00, 0x20}, 600)  // +0.25, +0.25
+	r := NewReader(bytes.NewReader(a), "a", CI16LE, 256, 1000)
+	blk, err := r.Next()
+	if err != nil {
+		t.Fatal(err)
+	}
+	first := &blk.Samples[0]
+	r.Close()
+	r = NewReader(bytes.NewReader(b), "b", CI16LE, 256, 600)
+	defer r.Close()
+	n := 0
+	for {
+		blk, err := r.Next()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			t.Fatal(err)
+		}
+		if n == 0 && &blk.Samples[0] != first {
+			t.Error("the second Reader did not reuse the first one's sample buffer")
+		}
+		for i, v := range blk.Samples {
+			// Q15: code 0x2000 is 8192/32768 = 0.25.
+			if v != complex(0.25, 0.25) {
+				t.Fatalf("block at %d, sample %d = %v, want (0.25+0.25i)", blk.Start, i, v)
+			}
+		}
+		n += len(blk.Samples)
+	}
+	if n != 600 {
+		t.Errorf("read %d samples, want 600", n)
+	}
+}

@@ -8,6 +8,7 @@ import (
 	"os"
 	"path/filepath"
 	"runtime"
+	"slices"
 	"strings"
 	"text/tabwriter"
 	"time"
@@ -30,19 +31,21 @@ wakes the costlier sweep analysis) at the given rate and format into a
 temporary folder, then measures each stage on one core: reading (decode and
 SHA-256, and the core:sha512 check), the spectral detector bank, GPS
 acquisition and C/N0 tracking; and the whole pipeline's real-time factor on
-one core and on all cores. A real-time factor above 1 keeps up.`, errOut)
+one core and on all cores, and the ratio of the two (scaling). A real-time
+factor above 1 keeps up.`, errOut)
 	rate := fs.Float64("rate", 10e6, "sample rate in samples/s")
 	format := fs.String("format", "ci16_le", "sample format (SigMF datatype)")
 	seconds := fs.Float64("seconds", 1, "length of each synthesized capture in seconds")
 	captures := fs.Int("captures", 4, "captures per whole-pipeline run")
+	repeat := fs.Int("repeat", 3, "whole-pipeline runs per core count (the median is shown)")
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
 	if _, err := ingest.ParseFormat(*format); err != nil {
 		return fmt.Errorf("--format: %w", err)
 	}
-	if *seconds <= 0 || *captures < 1 {
-		return fmt.Errorf("--seconds must be > 0 and --captures ≥ 1")
+	if *seconds <= 0 || *captures < 1 || *repeat < 1 {
+		return fmt.Errorf("--seconds must be > 0, --captures and --repeat ≥ 1")
 	}
 	dir, err := os.MkdirTemp("", "quietband-bench-")
 	if err != nil {
@@ -109,20 +112,45 @@ one core and on all cores. A real-time factor above 1 keeps up.`, errOut)
 
 	fmt.Fprintln(out)
 	tw = tabwriter.NewWriter(out, 2, 4, 2, ' ', 0)
-	fmt.Fprintln(tw, "WHOLE PIPELINE (satellites included)\tCORES\tREAL TIME")
+	fmt.Fprintf(tw, "WHOLE PIPELINE (satellites included; median of %d)\tCORES\tREAL TIME\tSCALING\n", *repeat)
 	for _, set := range []struct{ name, dir string }{{"captures without core:sha512", "clean"}, {"captures with core:sha512", "sha512"}} {
-		for _, cores := range []int{1, runtime.NumCPU()} {
-			runtime.GOMAXPROCS(cores)
-			t0 := time.Now()
-			sum, err := replay(ctx, replayOptions{paths: []string{filepath.Join(dir, set.dir)}, workers: cores, out: io.Discard, errOut: io.Discard})
-			if err != nil {
-				return err
+		cores := []int{1, runtime.NumCPU()}
+		rt := make([][]float64, len(cores))
+		n := 0
+		// The runs alternate between the core counts, so that a slow
+		// spell of a shared machine falls on both.
+		for range *repeat {
+			for i, c := range cores {
+				runtime.GOMAXPROCS(c)
+				t0 := time.Now()
+				sum, err := replay(ctx, replayOptions{paths: []string{filepath.Join(dir, set.dir)}, workers: c, out: io.Discard, errOut: io.Discard})
+				if err != nil {
+					return err
+				}
+				rt[i] = append(rt[i], sum.audio.Seconds()/time.Since(t0).Seconds())
+				n = sum.captures
 			}
-			el := time.Since(t0)
-			fmt.Fprintf(tw, "%d %s\t%d\t%.2f×\n", sum.captures, set.name, cores, sum.audio.Seconds()/el.Seconds())
+		}
+		one := median(rt[0])
+		for i, c := range cores {
+			scaling := ""
+			if i > 0 {
+				scaling = fmt.Sprintf("%.2f×", median(rt[i])/one)
+			}
+			fmt.Fprintf(tw, "%d %s\t%d\t%.2f×\t%s\n", n, set.name, c, median(rt[i]), scaling)
 		}
 	}
 	return tw.Flush()
+}
+
+// median returns the median of v (the mean of the middle two for an even
+// count); v is sorted in place.
+func median(v []float64) float64 {
+	slices.Sort(v)
+	if len(v)%2 == 1 {
+		return v[len(v)/2]
+	}
+	return (v[len(v)/2-1] + v[len(v)/2]) / 2
 }
 
 // benchCaptures synthesizes n captures (eight satellites and noise, and a
@@ -189,8 +217,8 @@ func timeGNSS(ctx context.Context, c *ingest.Capture) (acq, track time.Duration,
 	if err != nil {
 		return 0, 0, err
 	}
+	defer r.Close() // after the acquisition: the block is valid until then
 	b, err := r.Next()
-	r.Close()
 	if err != nil {
 		return 0, 0, err
 	}
