@@ -111,18 +111,22 @@ func TestConcurrentMeterMatchesInline(t *testing.T) {
 	wide := []synth.Emitter{{Kind: synth.KindWidebandNoise, FloorRiseDB: 6}}
 	cases := []struct {
 		name    string
+		format  string
 		caps    []synth.Capture
 		raw     bool
 		skipped bool
 	}{
 		// Clean captures teach the baselines (spectral and C/N0) between
-		// the jammed ones.
-		{"jammers", caps(nil, nil, cw, nil, chirp, wide), false, false},
-		{"raw, no centre", caps(nil, nil), true, true},
+		// the jammed ones. ci16_le has the meter decode the raw bytes
+		// itself (where the vector decoder runs), cf32_le hands it the
+		// Reader's samples (KeepBlocks).
+		{"jammers", "ci16_le", caps(nil, nil, cw, nil, chirp, wide), false, false},
+		{"jammers cf32", "cf32_le", caps(nil, cw, chirp), false, false},
+		{"raw, no centre", "ci16_le", caps(nil, nil), true, true},
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
-			s := baseScenario(fs, "ci16_le", dur)
+			s := baseScenario(fs, tc.format, dur)
 			s.Seed, s.Captures, s.Raw = 31, tc.caps, tc.raw
 			captures := openAll(t, s, ingest.RawSettings{SampleRate: fs})
 			type way struct {

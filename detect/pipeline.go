@@ -166,8 +166,17 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 	if inline && !p.GNSSInline && runtime.GOMAXPROCS(0) > 1 {
 		inline = false
 		q := meterQueue(blockLen)
-		r.KeepBlocks(q + 2)
-		side = startMeterSide(meter, q)
+		var decode *decodeFor
+		if c.Format.CheapDecode() {
+			// The meter decodes the raw bytes itself, into a buffer of its
+			// own: half the bytes cross between the CPUs, and neither side
+			// writes memory the other has in its cache.
+			r.KeepRaw(q + 2)
+			decode = &decodeFor{format: c.Format, buf: make([]complex64, blockLen)}
+		} else {
+			r.KeepBlocks(q + 2)
+		}
+		side = startMeterSide(meter, q, decode)
 		// On every early return: stop the meter and wait for it, so that
 		// no goroutine outlives the call or reads a block after it.
 		defer side.stop()
@@ -337,14 +346,27 @@ type meterSide struct {
 	closed  bool
 }
 
-func startMeterSide(m SatelliteMeter, queue int) *meterSide {
+// decodeFor, when set, makes the meter's goroutine decode each block's
+// raw bytes itself into buf.
+type decodeFor struct {
+	format ingest.Format
+	buf    []complex64
+}
+
+func startMeterSide(m SatelliteMeter, queue int, dec *decodeFor) *meterSide {
 	s := &meterSide{blocks: make(chan ingest.Block, queue), done: make(chan struct{})}
 	go func() {
 		defer close(s.done)
 		for blk := range s.blocks {
-			if !s.aborted.Load() {
-				m.Block(blk.Start, blk.Samples)
+			if s.aborted.Load() {
+				continue
 			}
+			x := blk.Samples
+			if dec != nil {
+				x = dec.buf[:len(blk.Raw)/dec.format.SampleBytes()]
+				dec.format.Decode(x, blk.Raw)
+			}
+			m.Block(blk.Start, x)
 		}
 	}()
 	return s

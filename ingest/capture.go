@@ -243,6 +243,9 @@ type Block struct {
 	// (the Reader rotates among k buffers).
 	Samples []complex64
 	Clipped int // samples at a saturated code
+	// Raw are the block's bytes as read, owned by the Reader: valid until
+	// the next call of Next, or, after KeepRaw(k), for the next k−1 calls.
+	Raw []byte
 }
 
 // Reader streams a capture in blocks of a fixed number of samples (the last
@@ -267,6 +270,7 @@ type Reader struct {
 	closed  bool
 	noHash  bool
 	started bool // Next has been called
+	rawKeep int  // KeepRaw's k: raw buffers kept in rotation (0 or 1: none)
 	blk     []complex64
 	blks    [][]complex64 // KeepBlocks' rotation, blk among them; nil for one
 	nextBuf int           // index in blks of the buffer the next block fills
@@ -315,6 +319,25 @@ func (r *Reader) KeepBlocks(k int) {
 		r.blks[i] = samplePool.get(len(r.blk))
 	}
 	r.nextBuf = 0
+}
+
+// KeepRaw makes the Reader rotate among at least k raw buffers, so that a
+// Block's Raw bytes stay valid for the next k−1 calls of Next (a consumer
+// on another goroutine can decode them itself, into memory of its own,
+// while the caller fetches the following blocks). Memory for raw bytes is
+// k blocks. Call it before the first Next; it panics if k < 1 or if Next
+// was called.
+func (r *Reader) KeepRaw(k int) {
+	if k < 1 {
+		panic("ingest: KeepRaw needs k ≥ 1")
+	}
+	if r.started {
+		panic("ingest: KeepRaw after Next")
+	}
+	r.rawKeep = k
+	for len(r.bufs) < k {
+		r.bufs = append(r.bufs, rawPool.get(len(r.bufs[0])))
+	}
 }
 
 // hashDepth is how many blocks the hashing goroutines may lag behind Next;
@@ -366,6 +389,7 @@ func (r *Reader) SkipHash() { r.noHash = true }
 // buffer is no longer read.
 func (r *Reader) hash(raw []byte) {
 	if r.noHash {
+		r.rotateRaw()
 		return
 	}
 	if r.async && r.lanes == nil && !r.closed {
@@ -392,6 +416,7 @@ func (r *Reader) hash(raw []byte) {
 		if r.sha512 != nil {
 			r.sha512.Write(raw)
 		}
+		r.rotateRaw()
 		return
 	}
 	for i := range r.lanes {
@@ -402,6 +427,15 @@ func (r *Reader) hash(raw []byte) {
 	}
 	r.cur = (r.cur + 1) % len(r.bufs)
 	r.raw = r.bufs[r.cur]
+}
+
+// rotateRaw moves on to the next raw buffer when KeepRaw asked for
+// several and no hashing goroutine does it (hash rotates after sending).
+func (r *Reader) rotateRaw() {
+	if r.rawKeep > 1 {
+		r.cur = (r.cur + 1) % len(r.bufs)
+		r.raw = r.bufs[r.cur]
+	}
 }
 
 // waitHash waits for every block sent to be hashed.
@@ -470,7 +504,7 @@ func (r *Reader) Next() (Block, error) {
 	if bad > 0 {
 		return Block{}, captureErr(r.name, "sample %d is NaN or infinite (%d such samples in this block)", r.next+int64(firstZeroedNaN(raw, r.format)), bad)
 	}
-	b := Block{Start: r.next, Samples: samples, Clipped: clipped}
+	b := Block{Start: r.next, Samples: samples, Clipped: clipped, Raw: raw}
 	r.next += int64(want)
 	if r.left >= 0 {
 		r.left -= int64(want)

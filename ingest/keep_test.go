@@ -291,3 +291,51 @@ func TestReaderBuffersReused(t *testing.T) {
 		t.Errorf("%d lengths kept, want at most %d", got, maxPooledLengths)
 	}
 }
+
+// TestReaderKeepRaw checks that after KeepRaw(k) a block's Raw bytes stay
+// those of its samples (each the little-endian ci16 code of its Q15 value)
+// for the next k−1 calls of Next, hashing or not, on one CPU or more.
+func TestReaderKeepRaw(t *testing.T) {
+	const n, block = 4096, 256
+	data := make([]byte, 4*n)
+	for i := range n {
+		binary.LittleEndian.PutUint16(data[4*i:], uint16(int16(i)))
+		binary.LittleEndian.PutUint16(data[4*i+2:], uint16(int16(-i)))
+	}
+	for _, procs := range []int{1, 2, 3} {
+		for _, skip := range []bool{false, true} {
+			for _, k := range []int{1, 2, 5} {
+				t.Run(fmt.Sprintf("procs=%d/skiphash=%v/k=%d", procs, skip, k), func(t *testing.T) {
+					defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(procs))
+					r := NewReader(bytes.NewReader(data), "raw", CI16LE, block, n)
+					defer r.Close()
+					if skip {
+						r.SkipHash()
+					}
+					r.KeepRaw(k)
+					var kept []Block
+					for {
+						blk, err := r.Next()
+						if err == io.EOF {
+							break
+						}
+						if err != nil {
+							t.Fatal(err)
+						}
+						kept = append(kept, blk)
+						// The last k blocks must still hold their own bytes.
+						for _, old := range kept[max(0, len(kept)-k):] {
+							want := data[4*old.Start : 4*(old.Start+int64(len(old.Samples)))]
+							if !bytes.Equal(old.Raw, want) {
+								t.Fatalf("block at %d: Raw changed %d blocks later", old.Start, len(kept)-1-int(old.Start)/block)
+							}
+						}
+					}
+					if !skip && r.SHA256() != fmt.Sprintf("%x", sha256.Sum256(data)) {
+						t.Error("SHA-256 of the data differs from crypto/sha256's")
+					}
+				})
+			}
+		}
+	}
+}
