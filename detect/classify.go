@@ -607,12 +607,6 @@ func dropPulseTones(x *Finding, c Finding, bin, fs float64) bool {
 	if len(kept) == 0 {
 		return false
 	}
-	strongest := kept[0]
-	for _, t := range kept {
-		if t.JNDB > strongest.JNDB {
-			strongest = t
-		}
-	}
-	x.LowHz, x.HighHz, x.OffsetHz, x.JN = lo-bin, hi+bin, strongest.OffsetHz, total
+	x.LowHz, x.HighHz, x.OffsetHz, x.JN = lo-bin, hi+bin, strongestTone(kept).OffsetHz, total
 	return true
 }

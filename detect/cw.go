@@ -71,15 +71,22 @@ func (d CW) Detect(in *BlockInput, out []Finding) []Finding {
 	if len(tones) == 0 {
 		return out
 	}
+	strongest := strongestTone(tones)
+	bin := f.Fs / float64(f.N)
+	return append(out, Finding{Detector: d.Name(), Class: ClassCW, LowHz: lo - bin, HighHz: hi + bin,
+		OffsetHz: strongest.OffsetHz, JN: total / in.NoisePower, Tones: tones})
+}
+
+// strongestTone returns the tone of largest J/N (the first of equals);
+// tones must not be empty.
+func strongestTone(tones []ToneParam) ToneParam {
 	strongest := tones[0]
 	for _, t := range tones {
 		if t.JNDB > strongest.JNDB {
 			strongest = t
 		}
 	}
-	bin := f.Fs / float64(f.N)
-	return append(out, Finding{Detector: d.Name(), Class: ClassCW, LowHz: lo - bin, HighHz: hi + bin,
-		OffsetHz: strongest.OffsetHz, JN: total / in.NoisePower, Tones: tones})
+	return strongest
 }
 
 // narrowPeak reports whether the excess around bin k falls below a quarter
