@@ -40,6 +40,7 @@ type Pulse struct {
 	ends     []int
 	prof     []float64
 	sm       []float64
+	sums     []float64 // L-sample running sums of the envelope
 	// openEnd is the sample index just past the previous block when that
 	// block ended inside a pulse (which it counted), else −1: the same
 	// pulse's remainder at the start of the next block is not counted
@@ -88,27 +89,39 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 	for i, v := range x {
 		env[i] = float64(real(v))*float64(real(v)) + float64(imag(v))*float64(imag(v))
 	}
-	ns := d.reference(env, l, in.NoisePower, in.Cfg.PulsePfa)
-	gamma := d.threshold(l, in.Cfg.PulsePfa)
-	thr := gamma * ns * float64(l) // on the running sum
-	thrLow := (1 + gamma) / 2 * ns * float64(l)
-	// Runs of the L-sample running sum above the threshold.
-	d.starts, d.ends = d.starts[:0], d.ends[:0]
+	// The L-sample running sums, once for the reference and the runs:
+	// sums[j] = Σ env[j … j+L−1].
+	if len(env) < l {
+		return out
+	}
+	if cap(d.sums) < len(env) {
+		d.sums = make([]float64, len(env))
+	}
+	sums := d.sums[:len(env)-l+1]
 	var run float64
-	inRun := false
 	for i := range env {
 		run += env[i]
 		if i >= l {
 			run -= env[i-l]
 		}
-		if i < l-1 {
-			continue
+		if i >= l-1 {
+			sums[i-l+1] = run
 		}
+	}
+	ns := d.reference(sums, l, in.NoisePower)
+	gamma := d.threshold(l, in.Cfg.PulsePfa)
+	thr := gamma * ns * float64(l) // on the running sum
+	thrLow := (1 + gamma) / 2 * ns * float64(l)
+	// Runs of the L-sample running sum above the threshold.
+	d.starts, d.ends = d.starts[:0], d.ends[:0]
+	inRun := false
+	for j, run := range sums {
+		i := j + l - 1 // the window's last sample
 		// Hysteresis: a pulse starts above thr and ends below thrLow, half
 		// way down to the reference, so that noise on a long pulse's top
 		// does not split it.
 		if !inRun && run > thr {
-			d.starts = append(d.starts, i-l+1)
+			d.starts = append(d.starts, j)
 			inRun = true
 		} else if inRun && run < thrLow {
 			d.ends = append(d.ends, i)
@@ -275,23 +288,15 @@ func (d *Pulse) spectralDensity(prof []float64, used int, ns, rate, fs float64) 
 // reference is the power per sample the pulses must stand above: the
 // thermal noise, or more when a steady emitter (a CW, a chirp) lifts the
 // envelope. It is read from the lower quartile q of the L-sample running
-// mean: under noise alone that mean is Gamma(L, 1/L)·N, so N = q/q_L with
+// mean (sums holds the running sums): under noise alone that mean is Gamma(L, 1/L)·N, so N = q/q_L with
 // q_L that distribution's lower quartile. A steady emitter raises q; pulses
 // at duty cycles below 75 % do not.
-func (d *Pulse) reference(env []float64, l int, noise, pfa float64) float64 {
+func (d *Pulse) reference(sums []float64, l int, noise float64) float64 {
 	const bins = 1024
 	var hist [bins]int
 	top := 16 * noise // the histogram spans 0..16 N
-	var run float64
 	count := 0
-	for i := range env {
-		run += env[i]
-		if i >= l {
-			run -= env[i-l]
-		}
-		if i < l-1 {
-			continue
-		}
+	for _, run := range sums {
 		b := int(run / float64(l) / top * bins)
 		hist[min(max(b, 0), bins-1)]++
 		count++

@@ -43,7 +43,6 @@ type Swept struct {
 	lp      []complex64
 	mag     []float64
 	prof    []float64
-	edge    bool // the last level of the last fold peaked at its grid's edge
 }
 
 // Name implements Detector.
@@ -68,10 +67,11 @@ func (d *Swept) Detect(in *BlockInput, out []Finding) []Finding {
 	var sw SweepParams
 	ok := false
 	if d.last.PeriodS > 0 && constantEnvelope(f, len(in.Samples)) {
-		sw, ok = d.foldNear(in.Samples, f.Fs, d.last.PeriodS)
+		var edge bool
+		sw, ok, edge = d.foldNear(in.Samples, f.Fs, d.last.PeriodS)
 		// A best period at the edge of the ±1 step grid has drifted
 		// further than the fine fold can follow: search again.
-		ok = ok && !d.edge && sw.Coherent >= minSweepCoherence
+		ok = ok && !edge && sw.Coherent >= minSweepCoherence
 	}
 	if !ok {
 		period, found := d.periodicity(in)
@@ -79,7 +79,7 @@ func (d *Swept) Detect(in *BlockInput, out []Finding) []Finding {
 			d.last = SweepParams{}
 			return out
 		}
-		sw, ok = d.fold(in.Samples, f.Fs, period)
+		sw, ok, _ = d.fold(in.Samples, f.Fs, period)
 	}
 	if !ok || sw.Coherent < minSweepCoherence {
 		d.last = SweepParams{}
@@ -246,24 +246,25 @@ func constantEnvelope(f *Features, k int) bool {
 
 // foldNear folds the block around a known period only, at the finest
 // step of the full search and ±1 step (the parabola through the three
-// points refines it; d.edge tells when the best was at the edge).
-func (d *Swept) foldNear(x []complex64, fs, period float64) (SweepParams, bool) {
+// points refines it; edge tells when the best was at the edge).
+func (d *Swept) foldNear(x []complex64, fs, period float64) (sw SweepParams, ok, edge bool) {
 	return d.foldFrom(x, fs, period, len(x), period*float64(period*fs)/(8*float64(len(x))), 1)
 }
 
 // fold refines the period and measures the sweep from the folded lag
 // product.
-func (d *Swept) fold(x []complex64, fs, period float64) (SweepParams, bool) {
+func (d *Swept) fold(x []complex64, fs, period float64) (sw SweepParams, ok, edge bool) {
 	return d.foldFrom(x, fs, period, int(math.Round(period*fs))*8, 0.01*period, 6)
 }
 
 // foldFrom searches the period from span samples, ±half steps of step,
 // folding four times as many samples with a step four times finer at each
-// level until the whole block is folded, and measures the sweep.
-func (d *Swept) foldFrom(x []complex64, fs, period float64, span int, step float64, half int) (SweepParams, bool) {
+// level until the whole block is folded, and measures the sweep. edge
+// reports that the last level's best period was at its grid's edge.
+func (d *Swept) foldFrom(x []complex64, fs, period float64, span int, step float64, half int) (sw SweepParams, ok, edge bool) {
 	bins := int(math.Round(period * fs))
 	if bins < 6 || len(x) < 2 {
-		return SweepParams{}, false
+		return SweepParams{}, false, false
 	}
 	if cap(d.z) < bins {
 		d.z = make([]complex128, bins)
@@ -313,7 +314,7 @@ func (d *Swept) foldFrom(x []complex64, fs, period float64, span int, step float
 			}
 		}
 		period += (float64(bestI) + delta) * step
-		d.edge = bestI == -half || bestI == half
+		edge = bestI == -half || bestI == half
 		if span == len(x) {
 			break
 		}
@@ -326,9 +327,9 @@ func (d *Swept) foldFrom(x []complex64, fs, period float64, span int, step float
 	for b, v := range z {
 		prof[b] = fs / (2 * math.Pi) * cmplx.Phase(v)
 	}
-	sw, ok := sweepFromProfile(prof, period)
+	sw, ok = sweepFromProfile(prof, period)
 	sw.Coherent = coh
-	return sw, ok
+	return sw, ok, edge
 }
 
 // strongestSpan returns the start of the span-sample window with the

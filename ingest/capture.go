@@ -270,7 +270,6 @@ type Reader struct {
 	closed  bool
 	noHash  bool
 	started bool // Next has been called
-	rawKeep int  // KeepRaw's k: raw buffers kept in rotation (0 or 1: none)
 	blk     []complex64
 	blks    [][]complex64 // KeepBlocks' rotation, blk among them; nil for one
 	nextBuf int           // index in blks of the buffer the next block fills
@@ -334,7 +333,6 @@ func (r *Reader) KeepRaw(k int) {
 	if r.started {
 		panic("ingest: KeepRaw after Next")
 	}
-	r.rawKeep = k
 	for len(r.bufs) < k {
 		r.bufs = append(r.bufs, rawPool.get(len(r.bufs[0])))
 	}
@@ -389,7 +387,7 @@ func (r *Reader) SkipHash() { r.noHash = true }
 // buffer is no longer read.
 func (r *Reader) hash(raw []byte) {
 	if r.noHash {
-		r.rotateRaw()
+		r.rotate()
 		return
 	}
 	if r.async && r.lanes == nil && !r.closed {
@@ -416,7 +414,7 @@ func (r *Reader) hash(raw []byte) {
 		if r.sha512 != nil {
 			r.sha512.Write(raw)
 		}
-		r.rotateRaw()
+		r.rotate()
 		return
 	}
 	for i := range r.lanes {
@@ -425,14 +423,13 @@ func (r *Reader) hash(raw []byte) {
 		l.req <- raw
 		l.pending++
 	}
-	r.cur = (r.cur + 1) % len(r.bufs)
-	r.raw = r.bufs[r.cur]
+	r.rotate()
 }
 
-// rotateRaw moves on to the next raw buffer when KeepRaw asked for
-// several and no hashing goroutine does it (hash rotates after sending).
-func (r *Reader) rotateRaw() {
-	if r.rawKeep > 1 {
+// rotate moves on to the next raw buffer, if there are several (for the
+// hashing goroutines, or KeepRaw's).
+func (r *Reader) rotate() {
+	if len(r.bufs) > 1 {
 		r.cur = (r.cur + 1) % len(r.bufs)
 		r.raw = r.bufs[r.cur]
 	}

@@ -9,7 +9,6 @@ import (
 	"path/filepath"
 	"runtime"
 	"slices"
-	"strings"
 	"text/tabwriter"
 	"time"
 
@@ -174,14 +173,15 @@ func benchCaptures(dir string, fs float64, format string, seconds float64, n int
 	}
 	var out []*ingest.Capture
 	for _, t := range truths {
-		if !sha512 {
-			if err := dropSHA512(filepath.Join(dir, t.Capture)); err != nil {
-				return nil, err
-			}
-		}
 		c, err := ingest.Open(filepath.Join(dir, t.Capture), ingest.RawSettings{})
 		if err != nil {
 			return nil, err
+		}
+		if !sha512 {
+			c.Meta.Global.SHA512 = ""
+			if err := ingest.WriteMeta(c.MetaPath, c.Meta); err != nil {
+				return nil, err
+			}
 		}
 		out = append(out, c)
 	}
@@ -233,28 +233,4 @@ func timeGNSS(ctx context.Context, c *ingest.Capture) (acq, track time.Duration,
 		return 0, 0, err
 	}
 	return acq, max(time.Since(t0)-acq, time.Nanosecond), nil
-}
-
-// dropSHA512 rewrites the SigMF metadata of the capture at path without
-// its core:sha512.
-func dropSHA512(path string) error {
-	meta := path
-	if !strings.HasSuffix(meta, ingest.MetaExt) {
-		meta = strings.TrimSuffix(meta, ingest.DataExt) + ingest.MetaExt
-	}
-	f, err := os.Open(meta)
-	if err != nil {
-		return err
-	}
-	m, err := ingest.ParseMeta(f)
-	f.Close()
-	if err != nil {
-		return fmt.Errorf("%s: %w", meta, err)
-	}
-	m.Global.SHA512 = ""
-	b, err := m.MarshalJSON()
-	if err != nil {
-		return err
-	}
-	return os.WriteFile(meta, b, 0o644)
 }

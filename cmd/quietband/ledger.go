@@ -13,7 +13,6 @@ import (
 	"log/slog"
 	"os"
 	"path/filepath"
-	"reflect"
 	"runtime/debug"
 	"time"
 
@@ -122,36 +121,6 @@ func identify(path string, follow bool) (fileID, bool) {
 	id := fileID{size: st.Size(), mtime: st.ModTime().UnixNano()}
 	id.dev, id.ino, id.ctime = sysIdentity(st)
 	return id, true
-}
-
-// sysIdentity reads the device, inode and status change time from the
-// system's stat structure (syscall.Stat_t: Dev, Ino and Ctim on Linux,
-// Ctimespec on the BSDs and macOS). The fields differ in name and type
-// between systems, so they are looked up by name rather than spelled in
-// per-system files; where there are none (Windows) the result is zero.
-func sysIdentity(st fs.FileInfo) (dev, ino uint64, ctime int64) {
-	v := reflect.ValueOf(st.Sys())
-	if v.Kind() != reflect.Pointer || v.IsNil() || v.Elem().Kind() != reflect.Struct {
-		return 0, 0, 0
-	}
-	v = v.Elem()
-	num := func(f reflect.Value) int64 {
-		switch f.Kind() {
-		case reflect.Int, reflect.Int8, reflect.Int16, reflect.Int32, reflect.Int64:
-			return f.Int()
-		case reflect.Uint, reflect.Uint8, reflect.Uint16, reflect.Uint32, reflect.Uint64, reflect.Uintptr:
-			return int64(f.Uint())
-		}
-		return 0
-	}
-	dev, ino = uint64(num(v.FieldByName("Dev"))), uint64(num(v.FieldByName("Ino")))
-	for _, name := range []string{"Ctim", "Ctimespec"} {
-		if ts := v.FieldByName(name); ts.Kind() == reflect.Struct {
-			ctime = num(ts.FieldByName("Sec"))*1e9 + num(ts.FieldByName("Nsec"))
-			break
-		}
-	}
-	return dev, ino, ctime
 }
 
 // outcome is one SHA-256 a capture was recorded with, and how.

@@ -15,21 +15,7 @@ var benchSizes = []int{64, 256, 1024, 2048, 4096, 16384, 65536}
 // pure-Go radix-4 stages (what a machine without AVX runs).
 func BenchmarkForwardScalar(b *testing.B) {
 	for _, n := range []int{1024, 2048, 4096} {
-		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) {
-			src := make([]complex64, n)
-			for i := range src {
-				src[i] = complex(float32(i%7), float32(i%5))
-			}
-			dst := make([]complex64, n)
-			p := NewPlan(n)
-			p.vector = false
-			b.SetBytes(int64(8 * n))
-			b.ReportAllocs()
-			for b.Loop() {
-				p.Forward(dst, src)
-			}
-			b.ReportMetric(float64(n)*float64(b.N)/b.Elapsed().Seconds()/1e6, "MS/s")
-		})
+		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) { benchForward(b, n, false) })
 	}
 }
 
@@ -37,22 +23,27 @@ func BenchmarkForwardScalar(b *testing.B) {
 // plan and dst).
 func BenchmarkForward(b *testing.B) {
 	for _, n := range benchSizes {
-		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) {
-			rng := rand.New(rand.NewPCG(1, uint64(n)))
-			src := make([]complex64, n)
-			for i := range src {
-				src[i] = complex(float32(rng.NormFloat64()), float32(rng.NormFloat64()))
-			}
-			dst := make([]complex64, n)
-			p := NewPlan(n)
-			b.SetBytes(int64(8 * n))
-			b.ReportAllocs()
-			for b.Loop() {
-				p.Forward(dst, src)
-			}
-			b.ReportMetric(float64(n)*float64(b.N)/b.Elapsed().Seconds()/1e6, "MS/s")
-		})
+		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) { benchForward(b, n, hasVector) })
 	}
+}
+
+// benchForward times Forward of n random samples, with the vector kernel
+// if vector.
+func benchForward(b *testing.B, n int, vector bool) {
+	rng := rand.New(rand.NewPCG(1, uint64(n)))
+	src := make([]complex64, n)
+	for i := range src {
+		src[i] = complex(float32(rng.NormFloat64()), float32(rng.NormFloat64()))
+	}
+	dst := make([]complex64, n)
+	p := NewPlan(n)
+	p.vector = p.vector && vector
+	b.SetBytes(int64(8 * n))
+	b.ReportAllocs()
+	for b.Loop() {
+		p.Forward(dst, src)
+	}
+	b.ReportMetric(float64(n)*float64(b.N)/b.Elapsed().Seconds()/1e6, "MS/s")
 }
 
 // BenchmarkInverse measures Plan.Inverse in place.

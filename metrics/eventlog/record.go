@@ -155,20 +155,7 @@ func Scan(path string, fn func(Record) error) error {
 	if err != nil {
 		return err
 	}
-	r := NewReader(segs...)
-	defer r.Close()
-	for {
-		rec, err := r.Next()
-		if err == io.EOF {
-			return nil
-		}
-		if err != nil {
-			return err
-		}
-		if err := fn(rec); err != nil {
-			return err
-		}
-	}
+	return scanFiles(segs, 0, fn)
 }
 
 // ScanFrom calls fn for every record of the log whose active file is path
@@ -185,6 +172,12 @@ func ScanFrom(path string, from uint64, fn func(Record) error) error {
 	if err != nil {
 		return err
 	}
+	return scanFiles(files, from, fn)
+}
+
+// scanFiles calls fn for every record of files with seq ≥ from, in order,
+// stopping at the first error.
+func scanFiles(files []string, from uint64, fn func(Record) error) error {
 	r := NewReader(files...)
 	defer r.Close()
 	for {
