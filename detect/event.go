@@ -93,6 +93,26 @@ type CaptureRecord struct {
 	Error      string   `json:"error,omitempty"`
 	Events     int      `json:"events"`
 	Stats      *Stats   `json:"stats,omitempty"`
+	// Fault, when set, says that the front end, not the sky, explains the
+	// samples (an ok capture may carry one: what could be analysed was).
+	Fault *Fault `json:"fault,omitempty"`
+	// Notes name, one plain sentence each, every stage that was not run
+	// on this capture (or not in full) and why.
+	Notes []string `json:"notes,omitempty"`
+}
+
+// Front-end fault kinds of a capture record.
+const (
+	FaultDead         = "dead"         // every sample zero
+	FaultStuck        = "stuck"        // every sample the same non-zero value
+	FaultGap          = "gap"          // a run of zeros or a sample drop inside the capture
+	FaultUnnormalised = "unnormalised" // float samples far beyond full scale
+)
+
+// Fault is a front-end fault found in a capture.
+type Fault struct {
+	Kind   string `json:"kind"`
+	Detail string `json:"detail"`
 }
 
 // Capture statuses.
@@ -112,6 +132,12 @@ type Stats struct {
 	Baseline       string      `json:"baseline"` // "learning", "learned" or "loaded"
 	Satellites     []Satellite `json:"satellites"`
 	GNSSSkipped    string      `json:"gnss_skipped,omitempty"`
+	// ClockOffsetHz is the receiver's common Doppler offset, when
+	// satellites were measured.
+	ClockOffsetHz *float64 `json:"clock_offset_hz,omitempty"`
+	// SpectrumInverted says whether the capture's spectrum was found (or
+	// configured) inverted; nil when it could not be determined.
+	SpectrumInverted *bool `json:"spectrum_inverted,omitempty"`
 }
 
 // Satellite is one satellite measured in a capture.
@@ -121,7 +147,17 @@ type Satellite struct {
 	CN0DBHz        float64 `json:"cn0_dbhz"`
 	DopplerHz      float64 `json:"doppler_hz"`
 	CodePhaseChips float64 `json:"code_phase_chips"`
+	// Method says how the values were measured: "tracked" (C/N0 from the
+	// tracking loops' prompts) or "acquired" (from the acquisition peak
+	// only, when the capture was too short to track).
+	Method string `json:"method,omitempty"`
 }
+
+// Satellite measurement methods.
+const (
+	MethodTracked  = "tracked"
+	MethodAcquired = "acquired"
+)
 
 func ptr[T any](v T) *T { return &v }
 
