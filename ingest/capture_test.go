@@ -409,16 +409,27 @@ func TestOpenRaw(t *testing.T) {
 }
 
 // TestIsCaptureFile checks the file names Open takes: the two files of a
-// SigMF recording (SigMF 1.2.6 additional_content.md, "Files") and raw
-// files with a datatype extension; archives and collections are not.
+// SigMF recording (SigMF 1.2.6 additional_content.md, "Files"), raw files
+// with a datatype ending and the common raw-data endings (whose format
+// must then be given); archives, collections and sidecars are not, even
+// when a pattern matches them; a pattern adds any other name.
 func TestIsCaptureFile(t *testing.T) {
 	cases := map[string]bool{
 		"a.sigmf-meta": true, "a.sigmf-data": true, "A.SIGMF-META": true, "x.ci16": true, "x.cu8": true,
-		"x.cf32_be": true, "x.bin": false, "x": false, "x.sigmf": false, "x.sigmf-collection": false, "x.tmp": false,
+		"x.cf32_be": true, "x.ri8": true, "x.cs16": true, "x.bin": true, "x.DAT": true, "x.iq": true, "x.raw": true,
+		"x": false, "x.sigmf": false, "x.sigmf-collection": false, "x.tmp": false,
+		"x.truth.json": false, "x.json": false, "README.md": false, "LICENSE.txt": false,
 	}
 	for name, want := range cases {
 		if got := IsCaptureFile(filepath.Join("/d", name)); got != want {
 			t.Errorf("IsCaptureFile(%q) = %v, want %v", name, got, want)
+		}
+	}
+	pat := RawSettings{Pattern: "cap_*"}
+	for name, want := range map[string]bool{"cap_001": true, "cap_1.u8": true, "other": false, "cap_1.truth.json": false,
+		"cap_1.sigmf-meta": true, "x.bin": true, "cap_notes.txt": false} {
+		if got := pat.IsCapture(filepath.Join("/d", name)); got != want {
+			t.Errorf("pattern cap_*: IsCapture(%q) = %v, want %v", name, got, want)
 		}
 	}
 }
@@ -475,8 +486,24 @@ func TestOpenErrors(t *testing.T) {
 	}{
 		{"unknown datatype", sigmf(metaDoc(`"core:datatype": "cs16_le", "core:version": "1.2.6", "core:sample_rate": 1e6`, "", ""), 400, "meta"),
 			[]string{"core:datatype", "unknown datatype", `"cs16_le"`}},
-		{"real datatype", sigmf(metaDoc(`"core:datatype": "rf32_le", "core:version": "1.2.6", "core:sample_rate": 1e6`, "", ""), 400, "meta"),
-			[]string{"real-valued"}},
+		{"real datatype without IF", sigmf(metaDoc(`"core:datatype": "rf32_le", "core:version": "1.2.6", "core:sample_rate": 1e6`, "", ""), 400, "meta"),
+			[]string{"real-valued", "rf32_le", "IF is not known", "quietband:if_hz", "--if"}},
+		{"real datatype without LO side", sigmf(metaDoc(`"core:datatype": "ri8", "core:version": "1.2.6", "core:sample_rate": 1e6, "quietband:if_hz": 250e3`, "", ""), 400, "meta"),
+			[]string{"real-valued", "LO side is not known", "quietband:lo_side", "--lo-side"}},
+		{"real datatype bad if_hz", sigmf(metaDoc(`"core:datatype": "ri8", "core:version": "1.2.6", "core:sample_rate": 1e6, "quietband:if_hz": "quarter"`, "", ""), 400, "meta"),
+			[]string{"quietband:if_hz must be a positive number"}},
+		{"real datatype bad lo_side", sigmf(metaDoc(`"core:datatype": "ri8", "core:version": "1.2.6", "core:sample_rate": 1e6, "quietband:if_hz": 250e3, "quietband:lo_side": "upper"`, "", ""), 400, "meta"),
+			[]string{"quietband:lo_side", `"low" or "high"`, `"upper"`}},
+		{"real datatype IF too low", sigmf(metaDoc(`"core:datatype": "ri8", "core:version": "1.2.6", "core:sample_rate": 1e6, "quietband:if_hz": 100e3, "quietband:lo_side": "low"`, "", ""), 400, "meta"),
+			[]string{"IF 100000 Hz", "0.2–0.3"}},
+		{"real datatype IF disagrees", func(t *testing.T, base string) (string, RawSettings, string) {
+			p := writePair(t, base, metaDoc(`"core:datatype": "ri8", "core:version": "1.2.6", "core:sample_rate": 1e6, "quietband:if_hz": 250e3, "quietband:lo_side": "low"`, "", ""), 400)
+			return p, RawSettings{IFHz: 260e3}, p
+		}, []string{"quietband:if_hz says 250000 Hz", "--if", "260000 Hz"}},
+		{"real datatype LO side disagrees", func(t *testing.T, base string) (string, RawSettings, string) {
+			p := writePair(t, base, metaDoc(`"core:datatype": "ri8", "core:version": "1.2.6", "core:sample_rate": 1e6, "quietband:if_hz": 250e3, "quietband:lo_side": "low"`, "", ""), 400)
+			return p, RawSettings{LOSide: HighSide}, p
+		}, []string{"quietband:lo_side says low", "--lo-side", "high"}},
 		{"missing datatype", sigmf(metaDoc(`"core:version": "1.2.6", "core:sample_rate": 1e6`, "", ""), 400, "meta"),
 			[]string{"core:datatype is missing"}},
 		{"missing rate", sigmf(metaDoc(`"core:datatype": "ci16_le", "core:version": "1.2.6"`, "", ""), 400, "meta"),
@@ -522,8 +549,14 @@ func TestOpenErrors(t *testing.T) {
 			os.Mkdir(base+".ci16", 0o755)
 			return base + ".ci16", RawSettings{SampleRate: 1e6}, base + ".ci16"
 		}, []string{"not a regular file"}},
-		{"raw no format", raw(".bin", 400, RawSettings{SampleRate: 1e6}), []string{"no sample format", `".bin"`}},
-		{"raw rate missing", raw(".ci16", 400, RawSettings{}), []string{"sample rate", "got 0"}},
+		{"raw no format", raw(".bin", 400, RawSettings{SampleRate: 1e6}), []string{"no sample format", `".bin"`, "--format", "input's format"}},
+		{"raw rate missing", raw(".ci16", 400, RawSettings{}), []string{"no sample rate", "--rate", "sample_rate"}},
+		{"raw rate missing with format", raw(".bin", 400, RawSettings{Format: CI8}), []string{"no sample rate", "--rate", "sample_rate"}},
+		{"raw real without IF", raw(".ri8", 400, RawSettings{SampleRate: 12e6}), []string{"real-valued", "ri8", "IF is not known", "--if", "if_hz"}},
+		{"raw real without LO side", raw(".bin", 400, RawSettings{Format: RI16LE, SampleRate: 12e6, IFHz: 3e6}), []string{"real-valued", "ri16_le", "--lo-side", "lo_side"}},
+		{"raw real IF beyond range", raw(".ri8", 400, RawSettings{SampleRate: 12e6, IFHz: 5e6, LOSide: LowSide}), []string{"IF 5e+06 Hz", "0.2–0.3"}},
+		{"raw single real sample", raw(".ri8", 1, RawSettings{SampleRate: 12e6, IFHz: 3e6, LOSide: LowSide}), []string{"single real sample"}},
+		{"raw sidecar with format", raw(".truth.json", 400, RawSettings{Format: CI8, SampleRate: 1e6}), []string{"sidecar", ".json"}},
 		{"raw rate negative", raw(".ci16", 400, RawSettings{SampleRate: -1}), []string{"sample rate", "got -1"}},
 		{"raw rate absurd", raw(".ci16", 400, RawSettings{SampleRate: 1e15}), []string{"sample rate", "got 1e+15"}},
 		{"raw rate NaN", raw(".ci16", 400, RawSettings{SampleRate: math.NaN()}), []string{"sample rate", "got NaN"}},

@@ -8,9 +8,11 @@ import (
 	"strings"
 )
 
-// Format is a complex sample format, named as SigMF names its datatypes
-// (SigMF core:datatype, e.g. "ci16_le"): interleaved I then Q, each component
-// of the given width and endianness.
+// Format is a sample format, named as SigMF names its datatypes (SigMF
+// core:datatype, e.g. "ci16_le"): complex ones (c...) interleave I then Q,
+// each component of the given width and endianness; real ones (r...) hold
+// one real value per sample, as an IF sampler writes them (turned into
+// complex baseband by the Reader, see IFConversion).
 //
 // Decoding maps full scale to 1.0 so that power in dBFS is
 // 10·log10(mean |x|²): signed integers are divided by 2^(bits−1), unsigned
@@ -33,8 +35,28 @@ const (
 	CF32BE               // IEEE-754 binary32 big-endian
 	CF64LE               // IEEE-754 binary64 little-endian
 	CF64BE               // IEEE-754 binary64 big-endian
+	CU32LE               // offset-binary 32-bit little-endian, mid-scale 2147483647.5
+	CU32BE               // offset-binary 32-bit big-endian
+	RI8                  // real, signed 8-bit
+	RU8                  // real, offset-binary 8-bit, mid-scale 127.5
+	RI16LE               // real, signed 16-bit little-endian
+	RI16BE               // real, signed 16-bit big-endian
+	RU16LE               // real, offset-binary 16-bit little-endian
+	RU16BE               // real, offset-binary 16-bit big-endian
+	RI32LE               // real, signed 32-bit little-endian
+	RI32BE               // real, signed 32-bit big-endian
+	RF32LE               // real, IEEE-754 binary32 little-endian
+	RF32BE               // real, IEEE-754 binary32 big-endian
+	RF64LE               // real, IEEE-754 binary64 little-endian
+	RF64BE               // real, IEEE-754 binary64 big-endian
+	RU32LE               // real, offset-binary 32-bit little-endian
+	RU32BE               // real, offset-binary 32-bit big-endian
 	numFormats
 )
+
+// firstReal is the first real format: CI8..CF64BE are complex,
+// RI8..RF64BE real.
+const firstReal = RI8
 
 var formatNames = [numFormats]string{
 	FormatUnknown: "unknown",
@@ -50,17 +72,74 @@ var formatNames = [numFormats]string{
 	CF32BE:        "cf32_be",
 	CF64LE:        "cf64_le",
 	CF64BE:        "cf64_be",
+	CU32LE:        "cu32_le",
+	CU32BE:        "cu32_be",
+	RI8:           "ri8",
+	RU8:           "ru8",
+	RI16LE:        "ri16_le",
+	RI16BE:        "ri16_be",
+	RU16LE:        "ru16_le",
+	RU16BE:        "ru16_be",
+	RI32LE:        "ri32_le",
+	RI32BE:        "ri32_be",
+	RF32LE:        "rf32_le",
+	RF32BE:        "rf32_be",
+	RF64LE:        "rf64_le",
+	RF64BE:        "rf64_be",
+	RU32LE:        "ru32_le",
+	RU32BE:        "ru32_be",
 }
 
-var componentBytes = [numFormats]int{0, 1, 1, 2, 2, 2, 2, 4, 4, 4, 4, 8, 8}
+var componentBytes = [numFormats]int{0, 1, 1, 2, 2, 2, 2, 4, 4, 4, 4, 8, 8, 4, 4, 1, 1, 2, 2, 2, 2, 4, 4, 4, 4, 8, 8, 4, 4}
 
-// Formats lists every supported format, in a stable order.
+// Formats lists the complex formats, in a stable order.
 func Formats() []Format {
-	out := make([]Format, 0, numFormats-1)
-	for f := CI8; f < numFormats; f++ {
+	out := make([]Format, 0, firstReal-1)
+	for f := CI8; f < firstReal; f++ {
 		out = append(out, f)
 	}
 	return out
+}
+
+// RealFormats lists the real-valued formats, in a stable order (the same
+// as Formats: each is the real twin of the complex format at the same
+// place).
+func RealFormats() []Format {
+	out := make([]Format, 0, numFormats-firstReal)
+	for f := firstReal; f < numFormats; f++ {
+		out = append(out, f)
+	}
+	return out
+}
+
+// IsReal reports whether f is a real-valued format (SigMF "r...").
+func (f Format) IsReal() bool { return f >= firstReal && f < numFormats }
+
+// IsFloat reports whether f holds IEEE-754 floats (cf32, cf64, rf32, rf64).
+func (f Format) IsFloat() bool {
+	switch f {
+	case CF32LE, CF32BE, CF64LE, CF64BE, RF32LE, RF32BE, RF64LE, RF64BE:
+		return true
+	}
+	return false
+}
+
+// complexTwin maps a real format to the complex one with the same
+// component type (RI16LE → CI16LE); a complex format maps to itself.
+func (f Format) complexTwin() Format {
+	if f.IsReal() {
+		return f - firstReal + CI8
+	}
+	return f
+}
+
+// ComponentBytes is the size of one component (I, Q or a real value) in
+// bytes.
+func (f Format) ComponentBytes() int {
+	if f >= numFormats {
+		return 0
+	}
+	return componentBytes[f]
 }
 
 // String returns the SigMF datatype name of f.
@@ -71,10 +150,14 @@ func (f Format) String() string {
 	return formatNames[f]
 }
 
-// SampleBytes is the size of one complex sample (I and Q) in bytes.
+// SampleBytes is the size of one sample of the file in bytes: a complex
+// sample (I and Q) for complex formats, one real value for real ones.
 func (f Format) SampleBytes() int {
 	if f >= numFormats {
 		return 0
+	}
+	if f.IsReal() {
+		return componentBytes[f]
 	}
 	return 2 * componentBytes[f]
 }
@@ -82,9 +165,10 @@ func (f Format) SampleBytes() int {
 // Valid reports whether f is a supported format.
 func (f Format) Valid() bool { return f > FormatUnknown && f < numFormats }
 
-// ParseFormat parses a SigMF complex datatype ("ci16_le", "cu8", "cf32_be",
-// ...). The endianness suffix is mandatory for multi-byte types and absent
-// for 8-bit ones, as the SigMF datatype grammar requires.
+// ParseFormat parses a SigMF datatype, complex ("ci16_le", "cu8",
+// "cf32_be", ...) or real ("ri8", "ri16_le", "rf32_le", ...). The
+// endianness suffix is mandatory for multi-byte types and absent for 8-bit
+// ones, as the SigMF datatype grammar requires.
 func ParseFormat(s string) (Format, error) {
 	for f := CI8; f < numFormats; f++ {
 		if s == formatNames[f] {
@@ -94,36 +178,49 @@ func ParseFormat(s string) (Format, error) {
 	switch {
 	case s == "":
 		return FormatUnknown, fmt.Errorf("no datatype given")
-	case realDatatype.MatchString(s):
-		return FormatUnknown, fmt.Errorf("datatype %q is real-valued; quietband needs complex IQ (c...)", s)
-	case s == "ci8_le" || s == "ci8_be" || s == "cu8_le" || s == "cu8_be":
+	case eightBitSuffixed.MatchString(s):
 		return FormatUnknown, fmt.Errorf("datatype %q: 8-bit types take no endianness suffix (SigMF), use %q", s, s[:3])
-	case s == "ci16" || s == "cu16" || s == "ci32" || s == "cf32" || s == "cf64":
+	case unsuffixed.MatchString(s):
 		return FormatUnknown, fmt.Errorf("datatype %q lacks the _le/_be endianness suffix SigMF requires", s)
 	}
 	return FormatUnknown, fmt.Errorf("unknown datatype %q (supported: %s)", s, supportedList())
 }
 
-// realDatatype is the real-valued half of the SigMF datatype ABNF.
-var realDatatype = regexp.MustCompile(`^r((f32|f64|i32|i16|u32|u16)(_le|_be)|i8|u8)$`)
+var (
+	eightBitSuffixed = regexp.MustCompile(`^[cr][iu]8_(le|be)$`)
+	unsuffixed       = regexp.MustCompile(`^[cr](i16|u16|i32|u32|f32|f64)$`)
+)
 
 func supportedList() string {
 	names := make([]string, 0, numFormats-1)
-	for _, f := range Formats() {
+	for f := CI8; f < numFormats; f++ {
 		names = append(names, f.String())
 	}
 	return strings.Join(names, ", ")
 }
 
 // FormatForExtension maps a raw-file extension to its format: the SigMF
-// datatype names themselves (".ci16_le"), and the short forms ".ci8",
-// ".cu8", ".ci16" and ".cf32", which mean little-endian. The boolean is
-// false for an extension that names no format.
+// datatype names themselves (".ci16_le", ".ri8"); the short forms ".ci16",
+// ".cu16", ".ci32", ".cf32", ".cf64" and their real twins (".ri16" ...),
+// which mean little-endian; and the endings other recorders commonly give
+// raw IQ (common practice, from memory): ".cs8" (complex signed 8-bit) →
+// ci8, ".cs16" and ".sc16" (complex signed 16-bit) → ci16_le, ".fc32"
+// (complex float 32-bit) → cf32_le. None of these four is a SigMF datatype
+// (the grammar has no "s" type and puts the c first), so none can mean
+// anything else to a SigMF reader; the little-endian reading is what the
+// little-endian hosts that write them produce. The boolean is false for an
+// extension that names no format.
 func FormatForExtension(ext string) (Format, bool) {
 	ext = strings.TrimPrefix(strings.ToLower(ext), ".")
 	switch ext {
-	case "ci16", "cu16", "ci32", "cf32", "cf64":
+	case "ci16", "cu16", "ci32", "cu32", "cf32", "cf64", "ri16", "ru16", "ri32", "ru32", "rf32", "rf64":
 		ext += "_le"
+	case "cs8":
+		ext = "ci8"
+	case "cs16", "sc16":
+		ext = "ci16_le"
+	case "fc32":
+		ext = "cf32_le"
 	}
 	f, err := ParseFormat(ext)
 	return f, err == nil
@@ -142,6 +239,8 @@ func (f Format) scale() (scale, offset float64) {
 		return 32767.5, 32767.5
 	case CI32LE, CI32BE:
 		return 2147483648, 0
+	case CU32LE, CU32BE:
+		return 2147483647.5, 2147483647.5
 	}
 	return 1, 0
 }
@@ -154,6 +253,9 @@ func (f Format) scale() (scale, offset float64) {
 // range is saturated to ±math.MaxFloat32. NaN and Inf floats are replaced
 // by 0 and counted in bad.
 func (f Format) Decode(dst []complex64, src []byte) (clipped, bad int) {
+	if f.IsReal() {
+		panic("ingest: Decode of a real format (use DecodeReal)")
+	}
 	if len(src) != len(dst)*f.SampleBytes() {
 		panic("ingest: Decode length mismatch")
 	}
@@ -220,6 +322,20 @@ func (f Format) Decode(dst []complex64, src []byte) (clipped, bad int) {
 			}
 			dst[i] = complex(float32(float64(a)/2147483648), float32(float64(b)/2147483648))
 		}
+	case CU32LE, CU32BE:
+		src = src[:8*len(dst)]
+		for i := range dst {
+			var a, b uint32
+			if f == CU32LE {
+				a, b = binary.LittleEndian.Uint32(src[8*i:]), binary.LittleEndian.Uint32(src[8*i+4:])
+			} else {
+				a, b = binary.BigEndian.Uint32(src[8*i:]), binary.BigEndian.Uint32(src[8*i+4:])
+			}
+			if a == 0 || a == math.MaxUint32 || b == 0 || b == math.MaxUint32 {
+				clipped++
+			}
+			dst[i] = complex(float32((float64(a)-2147483647.5)/2147483647.5), float32((float64(b)-2147483647.5)/2147483647.5))
+		}
 	case CF32LE, CF32BE:
 		src = src[:8*len(dst)]
 		for i := range dst {
@@ -263,6 +379,100 @@ func (f Format) Decode(dst []complex64, src []byte) (clipped, bad int) {
 	return clipped, bad
 }
 
+// DecodeReal converts len(dst) real values from src (which must hold
+// exactly len(dst)·SampleBytes bytes) of real format f into dst, with the
+// scaling of the complex twin (ri16_le as ci16_le, ...): a real value
+// decodes exactly as the same code does as I or Q. It returns the number of
+// values at the format's most negative or most positive code (for floats,
+// magnitude ≥ 1; an rf64 value beyond the float32 range is saturated) and
+// the number of NaN or infinite floats, which become 0.
+//
+// (The Reader decodes real data faster, two values at a time as the I and
+// Q of the complex twin; TestDecodeRealPairs checks the two agree.)
+func (f Format) DecodeReal(dst []float32, src []byte) (clipped, bad int) {
+	if !f.IsReal() {
+		panic("ingest: DecodeReal of a complex format (use Decode)")
+	}
+	if len(src) != len(dst)*f.SampleBytes() {
+		panic("ingest: DecodeReal length mismatch")
+	}
+	le := f == RI16LE || f == RU16LE || f == RI32LE || f == RU32LE || f == RF32LE || f == RF64LE
+	var bo binary.ByteOrder = binary.BigEndian
+	if le {
+		bo = binary.LittleEndian
+	}
+	switch f {
+	case RI8:
+		for i := range dst {
+			v := int8(src[i])
+			if v == -128 || v == 127 {
+				clipped++
+			}
+			dst[i] = float32(v) * (1.0 / 128)
+		}
+	case RU8:
+		for i := range dst {
+			v := src[i]
+			if v == 0 || v == 255 {
+				clipped++
+			}
+			dst[i] = (float32(v) - 127.5) * (1.0 / 127.5)
+		}
+	case RI16LE, RI16BE:
+		for i := range dst {
+			v := bo.Uint16(src[2*i:])
+			clipped += clip16(v)
+			dst[i] = float32(int16(v)) * (1.0 / 32768)
+		}
+	case RU16LE, RU16BE:
+		for i := range dst {
+			v := bo.Uint16(src[2*i:])
+			clipped += clip16(v ^ 0x8000)
+			dst[i] = (float32(v) - 32767.5) * (1.0 / 32767.5)
+		}
+	case RI32LE, RI32BE:
+		for i := range dst {
+			v := int32(bo.Uint32(src[4*i:]))
+			if v == math.MinInt32 || v == math.MaxInt32 {
+				clipped++
+			}
+			dst[i] = float32(float64(v) / 2147483648)
+		}
+	case RU32LE, RU32BE:
+		for i := range dst {
+			v := bo.Uint32(src[4*i:])
+			if v == 0 || v == math.MaxUint32 {
+				clipped++
+			}
+			dst[i] = float32((float64(v) - 2147483647.5) / 2147483647.5)
+		}
+	case RF32LE, RF32BE:
+		for i := range dst {
+			v := math.Float32frombits(bo.Uint32(src[4*i:]))
+			if !finite32(v) {
+				bad++
+				v = 0
+			} else if v >= 1 || v <= -1 {
+				clipped++
+			}
+			dst[i] = v
+		}
+	case RF64LE, RF64BE:
+		for i := range dst {
+			v := math.Float64frombits(bo.Uint64(src[8*i:]))
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				bad++
+				v = 0
+			} else if v >= 1 || v <= -1 {
+				clipped++
+				v = max(-math.MaxFloat32, min(v, math.MaxFloat32))
+			}
+			dst[i] = float32(v)
+		}
+	}
+	return clipped, bad
+}
+
 // CheapDecode reports whether decoding f costs next to nothing beside the
 // analysis (ci16_le with the vector decoder, a fraction of a nanosecond a
 // sample), so that a second consumer may as well decode the raw bytes
@@ -288,96 +498,119 @@ func finite32(v float32) bool {
 	return v == v && v <= math.MaxFloat32 && v >= -math.MaxFloat32
 }
 
-// Encode converts src into dst (len(src)·SampleBytes bytes) in format f.
-// Components beyond full scale are saturated to the format's extreme codes,
-// never wrapped, and the number of samples so clipped is returned. Floats are
-// written as they are and never clip.
+// Encode converts src into dst (len(src)·SampleBytes bytes) in complex
+// format f. Components beyond full scale are saturated to the format's
+// extreme codes, never wrapped, and the number of samples so clipped is
+// returned. Floats are written as they are and never clip.
 func (f Format) Encode(dst []byte, src []complex64) (clipped int) {
+	if f.IsReal() {
+		panic("ingest: Encode of a real format (use EncodeReal)")
+	}
 	if len(dst) != len(src)*f.SampleBytes() {
 		panic("ingest: Encode length mismatch")
 	}
-	switch f {
-	case CF32LE, CF32BE:
-		var bo binary.ByteOrder = binary.LittleEndian
-		if f == CF32BE {
-			bo = binary.BigEndian
-		}
-		for i, v := range src {
-			bo.PutUint32(dst[8*i:], math.Float32bits(real(v)))
-			bo.PutUint32(dst[8*i+4:], math.Float32bits(imag(v)))
-		}
-		return 0
-	case CF64LE, CF64BE:
-		var bo binary.ByteOrder = binary.LittleEndian
-		if f == CF64BE {
-			bo = binary.BigEndian
-		}
-		for i, v := range src {
-			bo.PutUint64(dst[16*i:], math.Float64bits(float64(real(v))))
-			bo.PutUint64(dst[16*i+8:], math.Float64bits(float64(imag(v))))
-		}
-		return 0
-	}
-	scale, offset := f.scale()
-	// Integer codes span [lo, hi]; a value is rounded to the nearest code.
-	var lo, hi float64
-	switch f {
-	case CI8:
-		lo, hi = -128, 127
-	case CU8:
-		lo, hi = 0, 255
-	case CI16LE, CI16BE:
-		lo, hi = math.MinInt16, math.MaxInt16
-	case CU16LE, CU16BE:
-		lo, hi = 0, math.MaxUint16
-	case CI32LE, CI32BE:
-		lo, hi = math.MinInt32, math.MaxInt32
-	default:
+	if !f.Valid() {
 		panic("ingest: Encode of unknown format")
 	}
-	quant := func(x float32) (float64, bool) {
-		v := math.Round(float64(x)*scale + offset)
-		switch {
-		case v != v:
-			return offset, false
-		case v < lo:
-			return lo, true
-		case v > hi:
-			return hi, true
-		}
-		return v, false
-	}
-	width := componentBytes[f]
-	var bo binary.ByteOrder = binary.LittleEndian
-	if f == CI16BE || f == CU16BE || f == CI32BE {
-		bo = binary.BigEndian
-	}
+	enc := newComponentEncoder(f)
+	w := componentBytes[f]
 	for i, v := range src {
-		a, ca := quant(real(v))
-		b, cb := quant(imag(v))
+		ca := enc.put(dst[2*w*i:], real(v))
+		cb := enc.put(dst[2*w*i+w:], imag(v))
 		if ca || cb {
 			clipped++
 		}
-		o := 2 * width * i
-		switch width {
-		case 1:
-			if f == CI8 {
-				dst[o], dst[o+1] = byte(int8(a)), byte(int8(b))
-			} else {
-				dst[o], dst[o+1] = byte(a), byte(b)
-			}
-		case 2:
-			if f == CU16LE || f == CU16BE {
-				bo.PutUint16(dst[o:], uint16(a))
-				bo.PutUint16(dst[o+2:], uint16(b))
-			} else {
-				bo.PutUint16(dst[o:], uint16(int16(a)))
-				bo.PutUint16(dst[o+2:], uint16(int16(b)))
-			}
-		case 4:
-			bo.PutUint32(dst[o:], uint32(int32(a)))
-			bo.PutUint32(dst[o+4:], uint32(int32(b)))
+	}
+	return clipped
+}
+
+// EncodeReal converts the real values src into dst (len(src)·SampleBytes
+// bytes) in real format f, as Encode does for complex ones: values beyond
+// full scale are saturated and counted, floats are written as they are.
+func (f Format) EncodeReal(dst []byte, src []float32) (clipped int) {
+	if !f.IsReal() {
+		panic("ingest: EncodeReal of a complex format (use Encode)")
+	}
+	if len(dst) != len(src)*f.SampleBytes() {
+		panic("ingest: EncodeReal length mismatch")
+	}
+	enc := newComponentEncoder(f.complexTwin())
+	w := componentBytes[f]
+	for i, v := range src {
+		if enc.put(dst[w*i:], v) {
+			clipped++
 		}
 	}
 	return clipped
+}
+
+// componentEncoder writes one component in a complex format's component
+// type: integer codes rounded to the nearest and saturated to [lo, hi],
+// floats as they are.
+type componentEncoder struct {
+	f             Format // complex
+	bo            binary.ByteOrder
+	scale, offset float64
+	lo, hi        float64
+}
+
+func newComponentEncoder(f Format) componentEncoder {
+	e := componentEncoder{f: f, bo: binary.LittleEndian}
+	switch f {
+	case CI16BE, CU16BE, CI32BE, CU32BE, CF32BE, CF64BE:
+		e.bo = binary.BigEndian
+	}
+	e.scale, e.offset = f.scale()
+	switch f {
+	case CI8:
+		e.lo, e.hi = -128, 127
+	case CU8:
+		e.lo, e.hi = 0, 255
+	case CI16LE, CI16BE:
+		e.lo, e.hi = math.MinInt16, math.MaxInt16
+	case CU16LE, CU16BE:
+		e.lo, e.hi = 0, math.MaxUint16
+	case CI32LE, CI32BE:
+		e.lo, e.hi = math.MinInt32, math.MaxInt32
+	case CU32LE, CU32BE:
+		e.lo, e.hi = 0, math.MaxUint32
+	}
+	return e
+}
+
+// put writes x at the start of dst and reports whether it saturated.
+func (e *componentEncoder) put(dst []byte, x float32) bool {
+	switch e.f {
+	case CF32LE, CF32BE:
+		e.bo.PutUint32(dst, math.Float32bits(x))
+		return false
+	case CF64LE, CF64BE:
+		e.bo.PutUint64(dst, math.Float64bits(float64(x)))
+		return false
+	}
+	v := math.Round(float64(x)*e.scale + e.offset)
+	sat := false
+	switch {
+	case v != v:
+		v = e.offset
+	case v < e.lo:
+		v, sat = e.lo, true
+	case v > e.hi:
+		v, sat = e.hi, true
+	}
+	switch e.f {
+	case CI8:
+		dst[0] = byte(int8(v))
+	case CU8:
+		dst[0] = byte(v)
+	case CI16LE, CI16BE:
+		e.bo.PutUint16(dst, uint16(int16(v)))
+	case CU16LE, CU16BE:
+		e.bo.PutUint16(dst, uint16(v))
+	case CI32LE, CI32BE:
+		e.bo.PutUint32(dst, uint32(int32(v)))
+	case CU32LE, CU32BE:
+		e.bo.PutUint32(dst, uint32(v))
+	}
+	return sat
 }

@@ -32,6 +32,8 @@ var integerCodes = map[Format]codeRange{
 	CU16BE: {0, 65535, 32767.5, 32767.5},
 	CI32LE: {-2147483648, 2147483647, 2147483648, 0},
 	CI32BE: {-2147483648, 2147483647, 2147483648, 0},
+	CU32LE: {0, 4294967295, 2147483647.5, 2147483647.5},
+	CU32BE: {0, 4294967295, 2147483647.5, 2147483647.5},
 }
 
 func isFloat(f Format) bool { return f >= CF32LE && f <= CF64BE }
@@ -48,6 +50,7 @@ func TestFormatsAndSampleBytes(t *testing.T) {
 		{"ci16_le", 4}, {"ci16_be", 4}, {"cu16_le", 4}, {"cu16_be", 4},
 		{"ci32_le", 8}, {"ci32_be", 8},
 		{"cf32_le", 8}, {"cf32_be", 8}, {"cf64_le", 16}, {"cf64_be", 16},
+		{"cu32_le", 8}, {"cu32_be", 8},
 	}
 	got := Formats()
 	if len(got) != len(want) {
@@ -55,8 +58,20 @@ func TestFormatsAndSampleBytes(t *testing.T) {
 	}
 	for i, w := range want {
 		f := got[i]
-		if f.String() != w.name || f.SampleBytes() != w.bytes || !f.Valid() {
+		if f.String() != w.name || f.SampleBytes() != w.bytes || !f.Valid() || f.IsReal() {
 			t.Errorf("Formats()[%d] = %q (%d bytes, valid %v), want %q (%d bytes)", i, f, f.SampleBytes(), f.Valid(), w.name, w.bytes)
+		}
+	}
+	// The real twins: one value per sample, so half the bytes; 14 names,
+	// which with the 14 complex ones are the 28 of the SigMF grammar.
+	reals := RealFormats()
+	if len(reals) != len(want) {
+		t.Fatalf("RealFormats() has %d entries, want %d", len(reals), len(want))
+	}
+	for i, w := range want {
+		f := reals[i]
+		if f.String() != "r"+w.name[1:] || f.SampleBytes() != w.bytes/2 || !f.Valid() || !f.IsReal() {
+			t.Errorf("RealFormats()[%d] = %q (%d bytes, valid %v, real %v), want %q (%d bytes)", i, f, f.SampleBytes(), f.Valid(), f.IsReal(), "r"+w.name[1:], w.bytes/2)
 		}
 	}
 	if FormatUnknown.Valid() || Format(200).Valid() || Format(200).SampleBytes() != 0 || Format(200).String() != "unknown" {
@@ -190,6 +205,8 @@ func TestSaturation(t *testing.T) {
 		{CU16LE, "ffff0000"},         // uint16 65535, 0
 		{CI32LE, "ffffff7f00000080"}, // int32 2^31−1, −2^31 little-endian
 		{CI32BE, "7fffffff80000000"},
+		{CU32LE, "ffffffff00000000"}, // uint32 2^32−1, 0
+		{CU32BE, "ffffffff00000000"},
 	}
 	for _, tc := range codes {
 		raw := make([]byte, tc.f.SampleBytes())
@@ -252,6 +269,9 @@ func TestByteOrder(t *testing.T) {
 		{CU16BE, "80007fff", complex(1.0/65535, -1.0/65535)},
 		{CI32LE, "00000040000000c0", complex(0.5, -0.5)},
 		{CI32BE, "40000000c0000000", complex(0.5, -0.5)},
+		// offset binary: 0x80000000 = 2^31 → +0.5/(2^31 − 0.5), 0x7FFFFFFF → −0.5/(2^31 − 0.5)
+		{CU32LE, "00000080ffffff7f", complex(0.5/2147483647.5, -0.5/2147483647.5)},
+		{CU32BE, "800000007fffffff", complex(0.5/2147483647.5, -0.5/2147483647.5)},
 		{CF32LE, "0000803f000000c0", complex(1, -2)},
 		{CF32BE, "3f800000c0000000", complex(1, -2)},
 		{CF64LE, "000000000000f03f000000000000e0bf", complex(1, -0.5)},
@@ -332,6 +352,10 @@ func TestParseFormat(t *testing.T) {
 	accepted := map[string]Format{
 		"ci8": CI8, "cu8": CU8, "ci16_le": CI16LE, "ci16_be": CI16BE, "cu16_le": CU16LE, "cu16_be": CU16BE,
 		"ci32_le": CI32LE, "ci32_be": CI32BE, "cf32_le": CF32LE, "cf32_be": CF32BE, "cf64_le": CF64LE, "cf64_be": CF64BE,
+		"cu32_le": CU32LE, "cu32_be": CU32BE,
+		"ri8": RI8, "ru8": RU8, "ri16_le": RI16LE, "ri16_be": RI16BE, "ru16_le": RU16LE, "ru16_be": RU16BE,
+		"ri32_le": RI32LE, "ri32_be": RI32BE, "ru32_le": RU32LE, "ru32_be": RU32BE,
+		"rf32_le": RF32LE, "rf32_be": RF32BE, "rf64_le": RF64LE, "rf64_be": RF64BE,
 	}
 	for s, want := range accepted {
 		got, err := ParseFormat(s)
@@ -350,9 +374,10 @@ func TestParseFormat(t *testing.T) {
 		{"ci16", []string{"endianness"}},
 		{"ci8_le", []string{"8-bit", "no endianness suffix", `"ci8"`}},
 		{"cu8_be", []string{"8-bit", `"cu8"`}},
-		{"rf32_le", []string{"real-valued"}},
-		{"ri8", []string{"real-valued"}},
-		{"ru16_be", []string{"real-valued"}},
+		{"rf32", []string{`"rf32"`, "endianness"}},
+		{"ri16", []string{"endianness"}},
+		{"ri8_le", []string{"8-bit", `"ri8"`}},
+		{"ru8_be", []string{"8-bit", `"ru8"`}},
 		{"", []string{"no datatype"}},
 		{"garbage", []string{"unknown datatype", `"garbage"`, "supported", "ci16_le"}},
 		// Starts with "r" but is no SigMF real type: garbage, not "real".
@@ -398,7 +423,20 @@ func TestFormatForExtension(t *testing.T) {
 		{"cf32_le", CF32LE, true},
 		{".bin", FormatUnknown, false},
 		{".sigmf-data", FormatUnknown, false},
-		{".rf32_le", FormatUnknown, false},
+		{".rf32_le", RF32LE, true},
+		{".ri8", RI8, true},
+		{".ri16", RI16LE, true},
+		{".rf32", RF32LE, true},
+		{".cu32", CU32LE, true},
+		// Endings of other recorders (FormatForExtension doc): not SigMF
+		// names, little-endian.
+		{".cs8", CI8, true},
+		{".cs16", CI16LE, true},
+		{".sc16", CI16LE, true},
+		{".CS16", CI16LE, true},
+		{".fc32", CF32LE, true},
+		{".dat", FormatUnknown, false},
+		{".iq", FormatUnknown, false},
 		{".ci8_le", FormatUnknown, false},
 		{"", FormatUnknown, false},
 	}
