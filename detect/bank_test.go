@@ -164,10 +164,13 @@ func benchBlock(b *testing.B, fs float64, em ...synth.Emitter) *BlockInput {
 	center, _ := c.CenterHz()
 	base := st.Baselines.snapshot(BaselineKey(c.Format.String(), fs, center, true, cfg.FFTSize))
 	eng := NewSpectrum(cfg.FFTSize, cfg.Frames, fs)
-	in := &BlockInput{F: eng.Analyze(0, x, 0), Samples: x}
-	var thr thresholdCache
-	in.prepare(base.PSD, base.Frames, &cfg, center, true, &thr)
+	in := &BlockInput{F: eng.Analyze(0, x, 0), Samples: x, Cfg: &cfg, Excluded: make([]bool, cfg.FFTSize)}
+	exclusions(in.Excluded, cfg.FFTSize, fs, &cfg, center, true)
 	(&SpectralKurtosis{}).Compute(in)
+	ref := newNoiseReference(cfg.FFTSize)
+	ref.reset(base.PSD, base.Frames)
+	var thr thresholdCache
+	ref.apply(in, &thr)
 	return in
 }
 
@@ -236,8 +239,8 @@ func BenchmarkBlock(b *testing.B) {
 			cfg := Config{}.Defaults(fs)
 			p := NewPipeline(Config{}, nil)
 			bk := p.bankFor(cfg, fs)
-			floor := append([]float64(nil), in.Floor...)
-			bk.reset(floor, 0, 1575.42e6, true)
+			base := &Baseline{PSD: append([]float64(nil), in.Floor...)}
+			bk.reset(base, 1575.42e6, true)
 			// ci16 input: the block is decoded from its bytes each time.
 			raw := make([]byte, len(in.Samples)*ingest.CI16LE.SampleBytes())
 			ingest.CI16LE.Encode(raw, in.Samples)

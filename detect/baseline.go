@@ -11,17 +11,22 @@ import (
 )
 
 // Baseline is what is normal at a site for one input (sample rate, centre,
-// format and FFT size): the mean PSD of clean captures, which absorbs the
-// GNSS signals' own bump, the front end's filter slopes, a DC spike and
-// fixed spurs, and (with the C/N0 detector) the satellites' usual C/N0.
+// format and FFT size): the front end's smooth noise passband (filter
+// ripple, tilt and roll-off, the GNSS signals' own bump) at the site's
+// thermal noise level, and the satellites' usual C/N0. Narrow lines are not
+// part of it: a spur that is always there is reported in every capture
+// (as one episode; the configuration may mark it known).
 //
-// It is learned from captures in which nothing was detected: the first
-// Warmup captures are averaged equally, later ones with weight W
-// (exponential average), and nothing is learned while an event is active.
+// The passband is learned from every capture, outside the time and
+// frequency cells its events occupy (floorLearner), fitted smooth
+// (Passband): the first Warmup captures are averaged equally, later ones
+// with weight W (an exponential average, which follows slow gain and
+// temperature drift). So a site whose first capture already has
+// interference still learns, and no interference is learned as normal.
 type Baseline struct {
 	Key      string    `json:"key"`
 	FFTSize  int       `json:"fft_size"`
-	PSD      []float64 `json:"psd"` // centred bin order
+	PSD      []float64 `json:"psd"` // the smooth noise floor per bin, centred order
 	Power    float64   `json:"power"`
 	Captures int       `json:"captures"`
 	// Frames is the effective number of frames averaged into each bin of
@@ -165,7 +170,7 @@ type baselineFile struct {
 // WriteTo writes the set as JSON (sorted by key, so that it is stable).
 func (s *Baselines) WriteTo(w io.Writer) (int64, error) {
 	s.mu.Lock()
-	f := baselineFile{Version: 1}
+	f := baselineFile{Version: 2}
 	for _, b := range s.items {
 		if len(b.PSD) > 0 {
 			f.Baselines = append(f.Baselines, b)
@@ -189,8 +194,8 @@ func ReadBaselines(r io.Reader) (*Baselines, error) {
 	if err := dec.Decode(&f); err != nil {
 		return nil, fmt.Errorf("baseline file: %w", err)
 	}
-	if f.Version != 1 {
-		return nil, fmt.Errorf("baseline file: version %d, want 1", f.Version)
+	if f.Version != 1 && f.Version != 2 {
+		return nil, fmt.Errorf("baseline file: version %d, want 1 or 2", f.Version)
 	}
 	s := NewBaselines()
 	for i, b := range f.Baselines {
@@ -200,6 +205,14 @@ func ReadBaselines(r io.Reader) (*Baselines, error) {
 		for _, v := range b.PSD {
 			if !(v > 0) || math.IsInf(v, 0) {
 				return nil, fmt.Errorf("baseline file: entry %s has a non-positive or non-finite PSD value", b.Key)
+			}
+		}
+		if f.Version == 1 {
+			// Version 1 kept the mean PSD, spurs included: keep only its
+			// smooth passband, so that the spurs are reported again.
+			fit, ok := NewPassband(len(b.PSD)).Fit(b.PSD, int(math.Max(b.Frames, 1)), nil)
+			if ok {
+				b.PSD = append([]float64(nil), fit...)
 			}
 		}
 		b.Loaded = true

@@ -35,6 +35,8 @@ type tracker struct {
 	prev     []float32 // previous block's frame matrix
 	prevF    Features
 	last     *BlockInput
+	order    []int     // scratch of explainBlock
+	act      []float64 // scratch of frameActivity
 }
 
 type trackedEvent struct {
@@ -61,6 +63,29 @@ type trackedEvent struct {
 	riseSum    float64
 	bandBins   [][2]int
 	frameLevel float64 // mean per-frame excess while present
+	// last is the event's finding of the latest block it was seen in, and
+	// rep its strongest: the emitter whose footprint explains others
+	// (footprint.go). Their pulse spectra are copies the event owns.
+	last, rep           Finding
+	lastLobes, repLobes []float32
+	// after is the event of the same emitter that ended before this one
+	// began in the same capture (it was switched off and on again): they
+	// share an episode.
+	after *trackedEvent
+}
+
+// finding is the event as one finding: its class, band, mean J/N and
+// tones, for the footprints of explainEvents.
+func (e *trackedEvent) finding() Finding {
+	x := Finding{Class: e.class, LowHz: e.lo, HighHz: e.hi, JN: e.jnSum / float64(max(e.hits, 1))}
+	if e.class == ClassCW {
+		x.Tones = append([]ToneParam(nil), e.tones...)
+		x.JN = 0
+		for _, t := range x.Tones {
+			x.JN += math.Pow(10, t.JNDB/10)
+		}
+	}
+	return x
 }
 
 // maxEventGroups bounds the pulse arrival times an event keeps for its PRI
@@ -73,78 +98,20 @@ func newTracker(cfg Config, fs float64, blockLen int) *tracker {
 
 func (t *tracker) block(in *BlockInput, fs []Finding) {
 	f := in.F
-	// Fusion within the block.
-	// Findings that claim the narrow ones inside their band: a sweep (its
-	// line spectrum), a comb of tones (the same, where the sweep fills too
-	// little of the block to be measured), a pulse train (its spectrum
-	// in frames where SK cannot tell it from noise).
 	bin := f.Fs / float64(f.N)
-	// A pulse train's lines, in its main lobe and in its sidelobes, are
-	// its own: they leave the CW findings tone by tone.
-	for _, c := range fs {
-		if c.Class != ClassPulsed {
-			continue
-		}
-		for i := range fs {
-			if x := &fs[i]; x.Class == ClassCW && len(x.Tones) > 0 {
-				dropPulseTones(x, c, bin, f.Fs)
-			}
+	// Fusion within the block: a tone that keys on or off inside the
+	// block leaks over many bins (its footprint says how far), and every
+	// finding that a stronger emitter's footprint accounts for is
+	// absorbed (footprint.go).
+	for i := range fs {
+		if x := &fs[i]; x.Class == ClassCW && len(x.Tones) > 0 {
+			x.keyed = t.keyed(in, x)
 		}
 	}
-	var swept, claims []Finding
-	for _, x := range fs {
-		if x.Class == ClassCW && len(x.Tones) == 0 {
-			continue
-		}
-		switch {
-		case x.Class == ClassSwept:
-			swept = append(swept, x)
-			claims = append(claims, x)
-		case x.Class == ClassPulsed, x.Class == ClassCW && isComb(x.Tones):
-			claims = append(claims, x)
-		}
-	}
-	for _, o := range t.open {
-		if o.class == ClassSwept {
-			claims = append(claims, Finding{Class: ClassSwept, LowHz: o.lo, HighHz: o.hi})
-		}
-	}
-	claimed := func(x Finding) bool {
-		for _, c := range claims {
-			// A sweep's spectrum has skirts beyond its edges.
-			margin := 2 * bin
-			if c.Class == ClassSwept {
-				margin = math.Max(margin, 0.05*(c.HighHz-c.LowHz))
-			}
-			if c.Class == ClassPulsed && c.explainsSidelobe(x, bin, f.Fs) {
-				return true
-			}
-			if c.Class != x.Class && overlaps(x.LowHz, x.HighHz, c.LowHz-margin, c.HighHz+margin) {
-				return true
-			}
-		}
-		return false
-	}
-	sweeping := len(swept) > 0
-	for _, o := range t.open {
-		if o.class == ClassSwept && o.missed == 0 {
-			sweeping = true
-		}
-	}
+	t.explainBlock(fs, &grid{bin: bin, fs: f.Fs, frames: max(f.Frames, 1), irr: t.cfg.ImageRejectionDB})
 	var classed []Finding
 	for _, x := range fs {
-		if x.Class == "" || (x.Class == ClassCW && (len(x.Tones) == 0 || isComb(x.Tones))) {
-			continue
-		}
-		if x.Class == ClassNarrowbandNoise && claimed(x) {
-			continue
-		}
-		// While a sweep is on (in this block or the last), the tones and
-		// the floor rise inside its band are its own: partial blocks at its
-		// start and end show its lines and leakage without the sweep
-		// itself being measurable. A real CW inside an active sweep's band
-		// is not reported separately until the sweep stops.
-		if (x.Class == ClassCW || x.Class == ClassWidebandNoise) && sweeping && claimed(x) {
+		if x.Class == "" || (x.Class == ClassCW && (len(x.Tones) == 0 || isSweepComb(x.Tones))) {
 			continue
 		}
 		classed = append(classed, x)
@@ -158,9 +125,21 @@ func (t *tracker) block(in *BlockInput, fs []Finding) {
 				break
 			}
 		}
+		var before *trackedEvent
+		if ev != nil && ev.missed > 0 && t.gapBefore(in, ev, x) {
+			// The emitter was off for at least a block and came back: a
+			// new event of the same episode.
+			before, ev = ev, nil
+			for i, o := range t.open {
+				if o == before {
+					t.open = append(t.open[:i], t.open[i+1:]...)
+					break
+				}
+			}
+		}
 		if ev == nil {
 			ev = &trackedEvent{class: x.Class, lo: x.LowHz, hi: x.HighHz, detectors: map[string]bool{},
-				firstBlock: t.blockNo, start: f.Start, excess: make([]float64, f.N)}
+				firstBlock: t.blockNo, start: f.Start, excess: make([]float64, f.N), after: before}
 			ev.setBand(f, x)
 			ev.frameLevel = x.JN * in.NoisePower / in.Rise
 			ev.start = t.refineStart(in, ev)
@@ -168,7 +147,7 @@ func (t *tracker) block(in *BlockInput, fs []Finding) {
 			t.events = append(t.events, ev)
 		}
 		matched[ev] = true
-		ev.absorb(in, x, fs)
+		ev.absorb(t, in, x, fs)
 		ev.missed = 0
 		if ev.firstBlock == t.blockNo-1 && ev.hits == 2 && ev.class != ClassPulsed {
 			// The event opened in the previous block, which the
@@ -208,41 +187,69 @@ func (t *tracker) block(in *BlockInput, fs []Finding) {
 	t.blockNo++
 }
 
-// finish marks the events still active in the last block and drops the
-// events a sweep explains: tones, floor rises and noise bands inside a
-// sweep's band that began with it (in the block where the sweep started
-// but filled too little of the block to be measured) or during it.
+// occupied marks in mask the bins that the events open after the last
+// block occupy (their bands, with two bins of margin; an event missed in a
+// block but still held open may be there unmeasured), and reports whether
+// the whole block is taken (a wideband rise, a pulse train or a sweep
+// spreads over every bin): what the baseline must not learn.
+func (t *tracker) occupied(mask []bool) bool {
+	clear(mask)
+	f := &t.prevF
+	for _, o := range t.open {
+		switch o.class {
+		case ClassWidebandNoise, ClassPulsed, ClassSwept:
+			return true
+		}
+		for _, b := range o.bandBins {
+			for k := max(b[0]-2, 0); k <= min(b[1]+2, f.N-1); k++ {
+				mask[k] = true
+			}
+		}
+	}
+	return false
+}
+
+// finish marks the events still active in the last block, drops the
+// events another event accounts for (explainEvents) and sorts them.
 func (t *tracker) finish() {
 	for _, o := range t.open {
 		o.openAtEnd = o.missed == 0
 	}
-	kept := t.events[:0]
-	for _, e := range t.events {
-		explained := false
-		if e.class == ClassCW || e.class == ClassWidebandNoise || e.class == ClassNarrowbandNoise {
-			for _, s := range t.events {
-				if s.class != ClassSwept && (s.class != ClassPulsed || e.class == ClassWidebandNoise) {
-					continue
-				}
-				margin := 0.05 * (s.hi - s.lo)
-				if overlaps(e.lo, e.hi, s.lo-margin, s.hi+margin) &&
-					e.start >= s.start-int64(t.blockLen) && e.start <= s.end {
-					explained = true
-					break
-				}
-			}
-		}
-		if !explained {
-			kept = append(kept, e)
-		}
-	}
-	t.events = kept
+	t.explainEvents()
 	sort.SliceStable(t.events, func(i, j int) bool {
 		if t.events[i].start != t.events[j].start {
 			return t.events[i].start < t.events[j].start
 		}
 		return t.events[i].class < t.events[j].class
 	})
+}
+
+// keyed reports whether a CW finding's tones are present in only part of
+// the block's frames (switched on or off inside it): a frame's power in
+// a tone's bins (±maxToneHalfWidth) falls below half of the tone's power
+// over the floor.
+func (t *tracker) keyed(in *BlockInput, x *Finding) bool {
+	f := in.F
+	for _, tn := range x.Tones {
+		k := f.Bin(tn.OffsetHz)
+		lo, hi := max(k-maxToneHalfWidth, 0), min(k+maxToneHalfWidth, f.N-1)
+		var floor float64
+		for j := lo; j <= hi; j++ {
+			floor += in.Floor[j]
+		}
+		p := math.Pow(10, tn.JNDB/10) * in.NoisePower
+		for i := 0; i < f.Frames; i++ {
+			fr := f.Frame(i)
+			var s float64
+			for j := lo; j <= hi; j++ {
+				s += float64(fr[j])
+			}
+			if s-floor < p/2 {
+				return true
+			}
+		}
+	}
+	return false
 }
 
 func (e *trackedEvent) setBand(f *Features, x Finding) {
@@ -269,82 +276,143 @@ func (e *trackedEvent) frameExcess(frame []float32, in *BlockInput) float64 {
 	return s
 }
 
-// refineStart finds the first active frame of a new event, looking back
-// into the previous block when the activity runs into it.
+// The start and end of an event within blocks come from the per-frame
+// excess x_i of its band over the thermal floor, against the level
+// ℓ = half of the event's mean per-frame excess: the start is the frame s
+// that maximizes Σ_{i≥s}(x_i − ℓ), the end the frame e that maximizes
+// Σ_{i<e}(x_i − ℓ) (the maximum-likelihood change point of a step in the
+// mean, the CUSUM estimate; Page 1954, from memory). A frame dipping
+// under ℓ by chance does not cut a weak emitter short, as a frame-by-frame
+// test would.
+
+// frameActivity fills t.act with x_i − ℓ for the frames of the previous
+// block (when prev) and of this one, and returns the index of this
+// block's first frame in it.
+func (t *tracker) frameActivity(in *BlockInput, e *trackedEvent, prev bool) int {
+	f := in.F
+	lvl := e.frameLevel / 2
+	act := t.act[:0]
+	if prev && t.prevF.Frames > 0 && t.prevF.N == f.N {
+		n := f.N
+		for i := 0; i < t.prevF.Frames; i++ {
+			act = append(act, e.frameExcess(t.prev[i*n:(i+1)*n], in)-lvl)
+		}
+	}
+	first := len(act)
+	for i := 0; i < f.Frames; i++ {
+		act = append(act, e.frameExcess(f.Frame(i), in)-lvl)
+	}
+	t.act = act
+	return first
+}
+
+// changeStart returns the s maximizing Σ_{i≥s} act[i].
+func changeStart(act []float64) int {
+	best, at, sum := 0.0, len(act), 0.0
+	for i := len(act) - 1; i >= 0; i-- {
+		sum += act[i]
+		if sum >= best {
+			best, at = sum, i
+		}
+	}
+	return at
+}
+
+// changeEnd returns the e maximizing Σ_{i<e} act[i] (0 when no prefix is
+// positive).
+func changeEnd(act []float64) int {
+	best, at, sum := 0.0, 0, 0.0
+	for i, v := range act {
+		sum += v
+		if sum > best {
+			best, at = sum, i+1
+		}
+	}
+	return at
+}
+
+// splitGap is the shortest silence, at frame resolution, that ends an
+// event when its emitter comes back after missing whole blocks: an
+// emitter keyed off and on is reported as one event per transmission.
+const splitGap = 1e-3
+
+// gapBefore reports whether finding x, matched to open event e that was
+// missed in the last blocks, starts after a silence of at least splitGap
+// since e's last activity.
+func (t *tracker) gapBefore(in *BlockInput, e *trackedEvent, x Finding) bool {
+	f := in.F
+	start := f.Start
+	if e.class == ClassPulsed {
+		if x.Pulse == nil || x.End <= 0 {
+			return false
+		}
+		start = x.Start
+		gap := float64(start-e.end) / f.Fs
+		return gap >= math.Max(4*x.Pulse.PRIS, float64(f.Samples)/f.Fs)
+	}
+	if e.frameLevel > 0 && f.Frames > 0 {
+		t.frameActivity(in, e, false)
+		if s := changeStart(t.act); s < len(t.act) {
+			start = f.Start + int64(s*f.N)
+		}
+	}
+	return float64(start-e.end)/f.Fs >= math.Max(splitGap, 2*float64(f.N)/f.Fs)
+}
+
+// refineStart finds the start of a new event in its first block, looking
+// back into the previous block when the activity runs into it.
 func (t *tracker) refineStart(in *BlockInput, e *trackedEvent) int64 {
 	f := in.F
-	if e.class == ClassPulsed {
+	if e.class == ClassPulsed || e.frameLevel <= 0 || f.Frames == 0 {
 		return f.Start
 	}
-	lvl := e.frameLevel / 2
-	if lvl <= 0 {
+	first := t.frameActivity(in, e, true)
+	s := changeStart(t.act)
+	if s >= len(t.act) {
 		return f.Start
 	}
-	first := -1
-	for i := 0; i < f.Frames; i++ {
-		if e.frameExcess(f.Frame(i), in) > lvl {
-			first = i
-			break
-		}
-	}
-	if first < 0 {
-		return f.Start
-	}
-	if first == 0 && t.prevF.Frames > 0 {
-		pf := &t.prevF
-		n := pf.N
-		back := 0
-		for i := pf.Frames - 1; i >= 0; i-- {
-			if e.frameExcess(t.prev[i*n:(i+1)*n], in) > lvl {
-				back++
-			} else {
-				break
-			}
-		}
-		return f.Start - int64(back*n)
-	}
-	return f.Start + int64(first*f.N)
+	return f.Start + int64((s-first)*f.N)
 }
 
-// startInPrevious is the start of the run of active frames that ends the
-// previous block (this block's start if there is none).
+// startInPrevious is the start found again when the event's second block
+// is in, with its band and level now better known (the previous block,
+// where it opened, may have held too little of it to measure).
 func (t *tracker) startInPrevious(in *BlockInput, e *trackedEvent) int64 {
-	pf := &t.prevF
-	n := pf.N
-	lvl := e.frameLevel / 2
-	back := 0
-	for i := pf.Frames - 1; i >= 0 && lvl > 0; i-- {
-		if e.frameExcess(t.prev[i*n:(i+1)*n], in) <= lvl {
-			break
-		}
-		back++
+	first := t.frameActivity(in, e, true)
+	s := changeStart(t.act)
+	if s == 0 {
+		// Active all through the previous block: the start found when
+		// the event opened, possibly earlier still, stands.
+		return min(e.start, in.F.Start-int64(first*in.F.N))
 	}
-	if back == pf.Frames {
-		// Active all through: the start found when the event opened,
-		// possibly earlier still, stands.
-		return min(e.start, in.F.Start-int64(back*n))
-	}
-	return in.F.Start - int64(back*n)
+	return in.F.Start + int64((s-first)*in.F.N)
 }
 
-// activeEnd is the end of the last active frame of the event in a block.
+// activeEnd is the end of the event's activity within a block (0 when it
+// is not active there).
 func (t *tracker) activeEnd(in *BlockInput, e *trackedEvent) int64 {
 	f := in.F
-	lvl := e.frameLevel / 2
-	end := int64(0)
-	if lvl <= 0 {
+	if e.frameLevel <= 0 || f.Frames == 0 {
 		return 0
 	}
-	for i := 0; i < f.Frames; i++ {
-		if e.frameExcess(f.Frame(i), in) > lvl {
-			end = f.Start + int64((i+1)*f.N)
-		}
+	t.frameActivity(in, e, false)
+	end := changeEnd(t.act)
+	if end == 0 {
+		return 0
 	}
-	return end
+	return f.Start + int64(end*f.N)
 }
 
-func (e *trackedEvent) absorb(in *BlockInput, x Finding, all []Finding) {
+func (e *trackedEvent) absorb(t *tracker, in *BlockInput, x Finding, all []Finding) {
 	f := in.F
+	e.last = x
+	e.lastLobes = append(e.lastLobes[:0], x.sidelobes...)
+	e.last.sidelobes = e.lastLobes
+	if x.JN >= e.rep.JN || e.rep.Class == "" {
+		e.rep = x
+		e.repLobes = append(e.repLobes[:0], x.sidelobes...)
+		e.rep.sidelobes = e.repLobes
+	}
 	e.hits++
 	e.detectors[x.Detector] = true
 	for _, s := range all {
@@ -377,7 +445,7 @@ func (e *trackedEvent) absorb(in *BlockInput, x Finding, all []Finding) {
 		e.end = x.End
 	default:
 		e.frameLevel += (x.JN*in.NoisePower/in.Rise - e.frameLevel) / float64(e.hits)
-		if end := (&tracker{}).activeEnd(in, e); end > 0 {
+		if end := t.activeEnd(in, e); end > 0 {
 			e.end = end
 		} else {
 			e.end = f.Start + int64(f.Samples)
@@ -522,91 +590,4 @@ func sortedKeys(m map[string]bool) []string {
 	}
 	sort.Strings(out)
 	return out
-}
-
-// isComb reports whether tones form a long regular comb: the line spectrum
-// of a periodic sweep seen in a block where the sweep itself could not be
-// measured (it covers only part of the block). Such a block raises no cw
-// event; the sweep is picked up where it fills a block, and its start is
-// then refined back into this one.
-func isComb(t []ToneParam) bool {
-	if len(t) < 8 {
-		return false
-	}
-	gaps := make([]float64, len(t)-1)
-	for i := range gaps {
-		gaps[i] = t[i+1].OffsetHz - t[i].OffsetHz
-	}
-	med := medianOf(gaps)
-	regular := 0
-	for _, g := range gaps {
-		if math.Abs(g-med) < 0.1*med {
-			regular++
-		}
-	}
-	return regular >= len(gaps)*2/3
-}
-
-// explainsSidelobe reports whether narrow finding x, outside pulse train
-// c's main lobe, is no stronger than c's own spectrum there. A band
-// [lo, hi] of width B gets from the train, over the noise power N, on
-// average R·max(B, rate)/fs with R its power spectral density over the
-// noise's (Finding.sidelobes) and rate its pulse rate: its lines, rate
-// apart, carry R·rate/fs each, one of which a band narrower than rate
-// can catch whole. x is explained if its J/N is at most 4× that with the
-// largest R over its band ± one bin (the 4 covers a pair's interference,
-// up to 2× the average, and the scatter of one block's estimate). A CW
-// finding is judged tone by tone (each over its ±maxToneHalfWidth bins):
-// see dropPulseTones.
-func (c Finding) explainsSidelobe(x Finding, bin, fs float64) bool {
-	return c.sidelobeJN(x.LowHz, x.HighHz, math.Max(x.HighHz-x.LowHz, 1.5*bin), bin, fs) >= x.JN
-}
-
-// sidelobeJN is the most J/N pulse train c's spectrum explains in the band
-// lo..hi of width band (see explainsSidelobe); 0 without a spectrum.
-func (c Finding) sidelobeJN(lo, hi, band, bin, fs float64) float64 {
-	if len(c.sidelobes) == 0 || c.sidelobeStep <= 0 {
-		return 0
-	}
-	dlo, dhi := math.Abs(lo-c.OffsetHz), math.Abs(hi-c.OffsetHz)
-	near, far := math.Min(dlo, dhi), math.Max(dlo, dhi)
-	if lo <= c.OffsetHz && c.OffsetHz <= hi {
-		near = 0
-	}
-	i0 := max(0, int((near-bin)/c.sidelobeStep))
-	i1 := min(len(c.sidelobes)-1, int(math.Ceil((far+bin)/c.sidelobeStep)))
-	r := float32(0)
-	for i := i0; i <= i1; i++ {
-		r = max(r, c.sidelobes[i])
-	}
-	return 4 * float64(r) * math.Max(band, c.pulseRate) / fs
-}
-
-// dropPulseTones removes from CW finding x the tones that are pulse train
-// c's own lines (a periodic train has a line spectrum): those in its main
-// lobe (± 2 bins), and those outside it that its spectrum explains (see
-// explainsSidelobe), in place, and updates x's band and J/N; it reports
-// whether any tone is left.
-func dropPulseTones(x *Finding, c Finding, bin, fs float64) bool {
-	band := float64(2*maxToneHalfWidth+1) * bin
-	kept := x.Tones[:0]
-	lo, hi, total := math.Inf(1), math.Inf(-1), 0.0
-	for _, t := range x.Tones {
-		jn := math.Pow(10, t.JNDB/10)
-		inLobe := t.OffsetHz >= c.LowHz-2*bin && t.OffsetHz <= c.HighHz+2*bin
-		if inLobe || jn <= c.sidelobeJN(t.OffsetHz, t.OffsetHz, band, bin, fs) {
-			continue
-		}
-		kept = append(kept, t)
-		lo, hi, total = math.Min(lo, t.OffsetHz), math.Max(hi, t.OffsetHz), total+jn
-	}
-	if len(kept) == len(x.Tones) {
-		return true
-	}
-	x.Tones = kept
-	if len(kept) == 0 {
-		return false
-	}
-	x.LowHz, x.HighHz, x.OffsetHz, x.JN = lo-bin, hi+bin, strongestTone(kept).OffsetHz, total
-	return true
 }

@@ -52,6 +52,10 @@ type Config struct {
 	// BaselineWarmup is how many clean captures are averaged equally
 	// before the baseline becomes an exponential average. Default 4.
 	BaselineWarmup int `yaml:"baseline_warmup" json:"baseline_warmup"`
+	// ImageRejectionDB is the image rejection the front end's I/Q paths
+	// reach at least: a finding at −f this far or more below an emitter
+	// at +f is taken for its image. Default 20 dB (REFERENCES §12.4).
+	ImageRejectionDB float64 `yaml:"image_rejection_db" json:"image_rejection_db"`
 }
 
 // Mask is a frequency range the detectors ignore.
@@ -104,6 +108,9 @@ func (c Config) Defaults(fs float64) Config {
 	if c.BaselineWarmup == 0 {
 		c.BaselineWarmup = 4
 	}
+	if c.ImageRejectionDB == 0 {
+		c.ImageRejectionDB = defaultImageRejectionDB
+	}
 	return c
 }
 
@@ -124,6 +131,8 @@ func (c Config) Validate() error {
 		return fmt.Errorf("wideband_rise_db %g must be > 0", c.WidebandRiseDB)
 	case !(c.BaselineWeight > 0 && c.BaselineWeight <= 1):
 		return fmt.Errorf("baseline_weight %g must be in (0, 1]", c.BaselineWeight)
+	case !(c.ImageRejectionDB >= 6 && c.ImageRejectionDB <= 80):
+		return fmt.Errorf("image_rejection_db %g must be from 6 to 80", c.ImageRejectionDB)
 	case c.HoldBlocks < 0 || c.MinPulses < 2:
 		return fmt.Errorf("hold_blocks must be ≥ 0 and min_pulses ≥ 2")
 	}

@@ -107,3 +107,40 @@ func narrowPeak(in *BlockInput, k int, peak float64) bool {
 	}
 	return true
 }
+
+// transientEdges is how many on/off edges a keyed tone is allowed per
+// block in its footprint.
+const transientEdges = 2
+
+// cwFootprint is what a tone accounts for besides itself: within
+// maxToneHalfWidth bins, its own main lobe and close-in leakage (anything
+// weaker); and, when it keys on or off inside the block, the transient: a
+// tone cut inside a frame leaks like the Hann window's edge, the power at
+// k bins and beyond being about 2/(π²k) of the tone's in that frame (a
+// cut spectrum falls as 1/(πk) in amplitude, both sides; common practice),
+// so over M frames with e edges a band k bins away holds at most
+// 2e/(π²kM) of the tone's power (4× margin for the scatter of one block).
+func cwFootprint(c *Finding, class string, lo, hi, jn float64, g *grid) bool {
+	bin := g.bin
+	if class == ClassWidebandNoise {
+		return false
+	}
+	for _, t := range c.Tones {
+		tj := math.Pow(10, t.JNDB/10)
+		d := 0.0
+		switch {
+		case t.OffsetHz < lo:
+			d = lo - t.OffsetHz
+		case t.OffsetHz > hi:
+			d = t.OffsetHz - hi
+		}
+		k := d / bin
+		if k <= maxToneHalfWidth && jn <= tj {
+			return true
+		}
+		if c.keyed && jn <= 4*tj*2*transientEdges/(math.Pi*math.Pi*math.Max(k, 1)*float64(g.frames)) {
+			return true
+		}
+	}
+	return false
+}

@@ -22,15 +22,23 @@ type BlockInput struct {
 	Samples []complex64
 	Cfg     *Config
 
-	// Floor is the per-bin noise reference: the learned baseline PSD, or
-	// (before there is one) a flat floor from the block's median bin.
+	// Floor is the per-bin noise reference (see NoiseReference): the
+	// front end's smooth passband at the block's noise level, from the
+	// site baseline's passband or, before there is one, fitted to the
+	// block itself. Narrow lines, bands and sweeps stand above it.
 	Floor []float64
 	// NoisePower is Σ Floor: the noise power in the capture bandwidth.
 	NoisePower  float64
 	HasBaseline bool
-	// Rise is the linear wideband floor rise folded into Floor (1 when
-	// none); NoisePower/Rise is the thermal noise power.
+	// Rise is the linear wideband floor rise over the baseline that
+	// NoiseFloor reported in this block (1 when none); NoisePower/Rise is
+	// the thermal noise power.
 	Rise float64
+	// LevelRise is the block's noise level over the baseline's (linear;
+	// 1 without a baseline), and SubbandRise the same in each of
+	// wideSubbands equal sub-bands: what NoiseFloor tests.
+	LevelRise   float64
+	SubbandRise [wideSubbands]float64
 	// Ratio is PSD/Floor per bin; Excluded marks bins no detector looks
 	// at (the DC bin of direct-conversion front ends, masks).
 	Ratio    []float64
@@ -83,6 +91,9 @@ type Finding struct {
 	sidelobes    []float32
 	sidelobeStep float64
 	pulseRate    float64
+	// keyed, for a CW finding, says that a tone was switched on or off
+	// inside the block (its on/off transients spread over many bins).
+	keyed bool
 }
 
 // SweepParams describe a swept tone.
@@ -108,37 +119,17 @@ type PulseParams struct {
 	Groups []int64
 }
 
-// prepare fills the references shared by all detectors. floor is the
-// baseline PSD (nil when there is none).
-func (in *BlockInput) prepare(floor []float64, floorFrames float64, cfg *Config, center float64, hasCenter bool, thr *thresholdCache) {
-	f := in.F
-	n := f.N
-	in.Cfg = cfg
-	if len(in.Ratio) != n {
-		in.Ratio = make([]float64, n)
-		in.Excluded = make([]bool, n)
-		in.Floor = make([]float64, n)
-	}
-	in.HasBaseline = floor != nil
-	if floor != nil {
-		copy(in.Floor, floor)
-	} else {
-		// A flat floor from the median bin: the median of Gamma(M,1/M) is
-		// about 1 − 1/(3M) of its mean (Wilson–Hilferty).
-		med := medianScratch(&in.scratch, f.PSD) / (1 - 1/(3*float64(max(f.Frames, 1))))
-		for k := range in.Floor {
-			in.Floor[k] = med
-		}
-	}
-	in.NoisePower, in.Rise = 0, 1
-	for k := range in.Floor {
-		in.NoisePower += in.Floor[k]
-	}
+// exclude marks the bins no detector looks at: the DC bin of
+// direct-conversion front ends (±DCExcludeHz/2) and the configured masks.
+// They depend only on the configuration and the capture's centre, so the
+// pipeline computes them once per capture.
+func exclusions(ex []bool, n int, fs float64, cfg *Config, center float64, hasCenter bool) {
+	f := Features{N: n, Fs: fs}
 	dc := f.Bin(0)
-	halfDC := int(math.Ceil(cfg.DCExcludeHz / (f.Fs / float64(n)) / 2))
+	halfDC := int(math.Ceil(cfg.DCExcludeHz / (fs / float64(n)) / 2))
 	for k := 0; k < n; k++ {
 		off := f.Offset(k)
-		ex := k >= dc-halfDC && k <= dc+halfDC
+		x := k >= dc-halfDC && k <= dc+halfDC
 		for _, m := range cfg.Masks {
 			lo, hi := m.LowHz, m.HighHz
 			if m.Absolute {
@@ -148,20 +139,11 @@ func (in *BlockInput) prepare(floor []float64, floorFrames float64, cfg *Config,
 				lo, hi = lo-center, hi-center
 			}
 			if off >= lo && off <= hi {
-				ex = true
+				x = true
 			}
 		}
-		in.Excluded[k] = ex
-		if in.Floor[k] > 0 {
-			in.Ratio[k] = f.PSD[k] / in.Floor[k]
-		} else {
-			in.Ratio[k] = 1
-		}
+		ex[k] = x
 	}
-	if floor == nil {
-		floorFrames = 0 // the block's own median: as good as known
-	}
-	in.BinThreshold = thr.bin(f.Frames, floorFrames, cfg.BinPfa)
 }
 
 // thresholdCache keeps thresholds that depend only on the numbers of
@@ -290,19 +272,4 @@ func (in *BlockInput) bandPower(lo, hi int) float64 {
 		}
 	}
 	return s
-}
-
-// raiseFloor scales the noise reference by a wideband floor rise (dB) and
-// recomputes the ratios, so that narrow detectors see only what stands
-// above the raised floor.
-func (in *BlockInput) raiseFloor(db float64) {
-	g := math.Pow(10, db/10)
-	in.Rise = g
-	in.NoisePower *= g
-	for k := range in.Floor {
-		in.Floor[k] *= g
-		if in.Floor[k] > 0 {
-			in.Ratio[k] = in.F.PSD[k] / in.Floor[k]
-		}
-	}
 }

@@ -21,8 +21,8 @@ func TestSpectralKurtosisOnNoise(t *testing.T) {
 	cfg := Config{SKPfa: 0.01}.Defaults(1e6)
 	cfg.DCExcludeHz = 1 // nothing excluded but the DC bin itself
 	sk := &SpectralKurtosis{}
-	var thr thresholdCache
-	in := &BlockInput{}
+	in := &BlockInput{Cfg: &cfg, Excluded: make([]bool, n)}
+	exclusions(in.Excluded, n, 1e6, &cfg, 0, false)
 	var sum, sum2 float64
 	var count, low, high int
 	for b := 0; b < blocks; b++ {
@@ -30,7 +30,6 @@ func TestSpectralKurtosisOnNoise(t *testing.T) {
 			x[i] = complex(float32(rng.NormFloat64()), float32(rng.NormFloat64()))
 		}
 		in.F, in.Samples = eng.Analyze(0, x, 0), x
-		in.prepare(nil, 0, &cfg, 0, false, &thr)
 		sk.Compute(in)
 		for k, v := range in.SK {
 			if in.Excluded[k] {

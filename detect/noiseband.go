@@ -94,3 +94,11 @@ func edge(in *BlockInput, k, dir int, level float64) float64 {
 		k = nx
 	}
 }
+
+// bandFootprint is what a noise band accounts for besides itself:
+// fragments of itself (another, weaker noise band inside its edges ± 2
+// bins, split off where the band's own fluctuations dip). A tone inside a
+// band is another emitter and stays.
+func bandFootprint(c *Finding, class string, lo, hi, jn float64, g *grid) bool {
+	return class == ClassNarrowbandNoise && jn <= c.JN && lo >= c.LowHz-2*g.bin && hi <= c.HighHz+2*g.bin
+}

@@ -136,10 +136,6 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 	center, hasCenter := c.CenterHz()
 	key := BaselineKey(c.Format.String(), fs, center, hasCenter, cfg.FFTSize)
 	base := p.state.Baselines.snapshot(key)
-	var floor []float64
-	if len(base.PSD) == cfg.FFTSize {
-		floor = base.PSD
-	}
 	blockLen := cfg.FFTSize * cfg.Frames
 	r, err := c.NewReader(blockLen)
 	if err != nil {
@@ -148,7 +144,7 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 	defer r.Close()
 
 	b := p.bankFor(cfg, fs)
-	b.reset(floor, base.Frames, center, hasCenter)
+	b.reset(&base, center, hasCenter)
 	if p.Observer != nil {
 		p.Observer.Begin(c, blockLen, cfg.FFTSize)
 	}
@@ -203,7 +199,6 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 	if side != nil {
 		side.join()
 	}
-	psdSum, psdBlocks := b.psdSum, b.psdBlocks
 	sha := r.SHA256()
 	tr.finish()
 	var measured SatelliteResult
@@ -232,17 +227,22 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 	switch {
 	case base.Loaded:
 		stats.Baseline = "loaded"
-	case floor != nil:
+	case len(base.PSD) == cfg.FFTSize:
 		stats.Baseline = "learned"
 	default:
 		stats.Baseline = "learning"
 	}
 	prev := p.state.episodes[key]
 	var stillOpen []openEpisode
+	episodes := map[*trackedEvent]string{}
 	for _, ev := range tr.events {
 		e := ev.toEvent(c, name, cfg, fs, center, hasCenter, in.NoisePower/in.Rise)
 		e.ID = eventID(sha, e.Class, e.SampleStart, e.OffsetHz, fp)
 		e.Episode = e.ID
+		if ep, ok := episodes[ev.after]; ok && ev.after != nil {
+			e.Episode = ep
+		}
+		episodes[ev] = e.Episode
 		if ev.firstBlock == 0 {
 			for _, o := range prev {
 				if o.class == e.Class && overlaps(o.lo, o.hi, ev.lo, ev.hi) && !o.end.IsZero() &&
@@ -284,7 +284,7 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 		res.Events = append(res.Events, drop)
 	}
 
-	if len(res.Events) == 0 && len(stats.Satellites) > 0 {
+	if learnCN0(res.Events) && len(stats.Satellites) > 0 {
 		cn0 := map[int]float64{}
 		for _, s := range stats.Satellites {
 			cn0[s.PRN] = s.CN0DBHz
@@ -294,14 +294,20 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 			b.learnCN0(cn0, mean, cfg.BaselineWarmup, cfg.BaselineWeight)
 		})
 	}
-	if len(res.Events) == 0 && psdBlocks > 0 {
-		for k := range psdSum {
-			psdSum[k] /= float64(psdBlocks)
+	// The baseline learns the passband from every cell no event occupied
+	// (floorLearner), so that a site whose captures all carry a spur or a
+	// beacon still learns, and no interference is learned as normal.
+	if psd, blocks, power := b.learner.mean(); blocks > 0 {
+		skip := b.ref.skip
+		for k := range skip {
+			skip[k] = b.learner.cnt[k] == 0 || b.in.Excluded[k]
 		}
-		p.state.Baselines.update(key, func(b *Baseline) {
-			b.FFTSize = cfg.FFTSize
-			b.learn(psdSum, psdBlocks*cfg.Frames, st.power(), c.Start(), cfg.BaselineWarmup, cfg.BaselineWeight)
-		})
+		if fit, ok := b.ref.pb.Fit(psd, blocks*cfg.Frames, skip); ok {
+			p.state.Baselines.update(key, func(bl *Baseline) {
+				bl.FFTSize = cfg.FFTSize
+				bl.learn(fit, blocks*cfg.Frames, power, c.Start(), cfg.BaselineWarmup, cfg.BaselineWeight)
+			})
+		}
 	}
 
 	rec := CaptureRecord{Capture: name, SHA256: sha, Format: c.Format.String(), SampleRate: fs,
@@ -387,6 +393,22 @@ func (s *meterSide) stop() {
 	s.join()
 }
 
+// learnCN0 reports whether a capture with these events may teach the
+// site's C/N0 baseline: not when its satellites were degraded (a cn0_drop)
+// or when an interference predicted to cost them more than 1 dB was
+// present (a weak spur that is always there does not stop learning).
+func learnCN0(evs []Event) bool {
+	for _, e := range evs {
+		if e.Class == ClassCN0Drop || e.Class == ClassWidebandNoise {
+			return false
+		}
+		if e.Impact != nil && e.Impact.CN0DegradationDB > 1 {
+			return false
+		}
+	}
+	return true
+}
+
 func eventID(sha, class string, start int64, offset float64, fp string) string {
 	h := sha256.Sum256(fmt.Appendf(nil, "%s|%s|%d|%.0f|%s", sha, class, start, offset, fp))
 	return hex.EncodeToString(h[:12])
@@ -427,14 +449,13 @@ func (s *statsAcc) add(in *BlockInput, clipped int) {
 		}
 	}
 	if f.Frames > 0 {
-		// Noise floor: the median bin ratio to the reference shape, scaled
-		// to the band (robust against narrow interference). One value per
-		// block, kept in a bounded reservoir: past maxFloors values, every
+		// Noise floor: the noise reference's power in the capture band
+		// (robust against narrow interference). One value per block, kept in a bounded reservoir: past maxFloors values, every
 		// other one is dropped and only every other block is kept, so the
 		// median is over evenly spaced blocks of the whole capture.
 		s.seen++
 		if s.seen%s.stride == 0 {
-			s.floors = append(s.floors, medianScratch(&in.scratch, in.Ratio)/(1-1/(3*float64(f.Frames)))*in.NoisePower)
+			s.floors = append(s.floors, in.NoisePower)
 			if len(s.floors) == maxFloors {
 				for i := 0; i < maxFloors/2; i++ {
 					s.floors[i] = s.floors[2*i+1]
@@ -498,11 +519,10 @@ type bank struct {
 	in          BlockInput
 	tr          *tracker
 	st          statsAcc
-	psdSum      []float64
-	psdBlocks   int
+	ref         *NoiseReference
+	learner     floorLearner
+	occupied    []bool
 	findings    []Finding
-	floor       []float64
-	floorFrames float64
 	center      float64
 	hasCenter   bool
 }
@@ -517,15 +537,16 @@ func (p *Pipeline) bankFor(cfg Config, fs float64) *bank {
 		return b
 	}
 	b := &bank{cfg: cfg, eng: NewSpectrum(cfg.FFTSize, cfg.Frames, fs), sk: &SpectralKurtosis{}, pulse: &Pulse{},
-		psdSum: make([]float64, cfg.FFTSize)}
+		ref: newNoiseReference(cfg.FFTSize), occupied: make([]bool, cfg.FFTSize)}
+	b.in.Excluded = make([]bool, cfg.FFTSize)
 	b.detectors = []Detector{b.sk, CW{}, NoiseBand{}, &Swept{}, b.pulse}
 	p.banks[key] = b
 	return b
 }
 
-// reset prepares the bank for a new capture.
-func (b *bank) reset(floor []float64, floorFrames float64, center float64, hasCenter bool) {
-	b.floor, b.floorFrames, b.center, b.hasCenter = floor, floorFrames, center, hasCenter
+// reset prepares the bank for a new capture over the input's baseline.
+func (b *bank) reset(base *Baseline, center float64, hasCenter bool) {
+	b.center, b.hasCenter = center, hasCenter
 	fs := b.eng.fs
 	var prev []float32
 	if b.tr != nil {
@@ -534,8 +555,10 @@ func (b *bank) reset(floor []float64, floorFrames float64, center float64, hasCe
 	b.tr = newTracker(b.cfg, fs, b.cfg.FFTSize*b.cfg.Frames)
 	b.tr.prev = prev[:0]
 	b.st = statsAcc{skMax: math.Inf(-1), floors: b.st.floors[:0], stride: 1}
-	clear(b.psdSum)
-	b.psdBlocks = 0
+	b.ref.reset(base.PSD, base.Frames)
+	b.learner.reset(b.cfg.FFTSize)
+	b.in.Cfg = &b.cfg
+	exclusions(b.in.Excluded, b.cfg.FFTSize, fs, &b.cfg, center, hasCenter)
 }
 
 // block runs the spectral pass over one block; obs, if any, sees the block
@@ -543,17 +566,16 @@ func (b *bank) reset(floor []float64, floorFrames float64, center float64, hasCe
 func (b *bank) block(blk ingest.Block, obs BlockObserver) {
 	f := b.eng.Analyze(blk.Start, blk.Samples, blk.Clipped)
 	in := &b.in
-	in.F, in.Samples = f, blk.Samples
-	in.prepare(b.floor, b.floorFrames, &b.cfg, b.center, b.hasCenter, &b.thr)
+	in.F, in.Samples, in.Cfg = f, blk.Samples, &b.cfg
 	b.sk.Compute(in)
+	b.ref.apply(in, &b.thr)
 	fnd := b.findings[:0]
 	if f.Frames >= minFrames {
-		// A wideband rise lifts the floor every narrow detector compares
-		// against (a sweep's leakage between its lines can mimic one; the
-		// classifier then lets the sweep claim it).
+		// A wideband rise is interference too: the narrow detectors then
+		// measure against the raised floor, and J/N against the thermal.
 		fnd = NoiseFloor{}.Detect(in, fnd)
 		if len(fnd) > 0 {
-			in.raiseFloor(fnd[0].FloorRiseDB)
+			in.Rise = in.LevelRise
 		}
 		for _, d := range b.detectors {
 			fnd = d.Detect(in, fnd)
@@ -567,10 +589,10 @@ func (b *bank) block(blk ingest.Block, obs BlockObserver) {
 	}
 	b.tr.block(in, fnd)
 	b.st.add(in, blk.Clipped)
+	whole := b.tr.occupied(b.occupied)
 	if f.Frames == b.cfg.Frames {
-		for k, v := range f.PSD {
-			b.psdSum[k] += v
-		}
-		b.psdBlocks++
+		b.learner.add(f, b.occupied, whole)
+	} else {
+		b.learner.add(nil, b.occupied, whole)
 	}
 }

@@ -486,3 +486,48 @@ func pri(t []float64) float64 {
 	}
 	return (n*sxy - sx*sy) / den
 }
+
+// pulseFootprint is what a pulse train accounts for besides itself: the
+// level it lifts (a wideband finding no stronger than its peak), its main
+// lobe (±2 bins), and, beyond it, whatever its average spectrum explains
+// (sidelobeJN): a band of width B receives from the train, over the noise
+// power N, on average R·max(B, rate)/fs with R its power spectral density
+// over the noise's (Finding.sidelobes) and rate its pulses per second: its
+// lines, rate apart, carry R·rate/fs each, one of which a band narrower
+// than rate can catch whole. A finding is explained if its J/N is at most
+// 4× that with the largest R over its band ± one bin (the 4 covers a pair's
+// interference, up to 2× the average, and the scatter of one block's
+// estimate). A tone is judged over its ±maxToneHalfWidth bins.
+func pulseFootprint(c *Finding, class string, lo, hi, jn float64, g *grid) bool {
+	if class == ClassWidebandNoise {
+		return jn <= c.JN
+	}
+	if overlaps(lo, hi, c.LowHz-2*g.bin, c.HighHz+2*g.bin) {
+		return true
+	}
+	band := math.Max(hi-lo, 1.5*g.bin)
+	if class == ClassCW {
+		band = float64(2*maxToneHalfWidth+1) * g.bin
+	}
+	return c.sidelobeJN(lo, hi, band, g.bin, g.fs) >= jn
+}
+
+// sidelobeJN is the most J/N pulse train c's spectrum explains in the band
+// lo..hi of width band (see pulseFootprint); 0 without a spectrum.
+func (c Finding) sidelobeJN(lo, hi, band, bin, fs float64) float64 {
+	if len(c.sidelobes) == 0 || c.sidelobeStep <= 0 {
+		return 0
+	}
+	dlo, dhi := math.Abs(lo-c.OffsetHz), math.Abs(hi-c.OffsetHz)
+	near, far := math.Min(dlo, dhi), math.Max(dlo, dhi)
+	if lo <= c.OffsetHz && c.OffsetHz <= hi {
+		near = 0
+	}
+	i0 := max(0, int((near-bin)/c.sidelobeStep))
+	i1 := min(len(c.sidelobes)-1, int(math.Ceil((far+bin)/c.sidelobeStep)))
+	r := float32(0)
+	for i := i0; i <= i1; i++ {
+		r = max(r, c.sidelobes[i])
+	}
+	return 4 * float64(r) * math.Max(band, c.pulseRate) / fs
+}

@@ -516,3 +516,60 @@ func fastAtan2(y, x float32) float32 {
 	}
 	return r
 }
+
+// sweptFootprint is what a sweep accounts for besides itself: everything
+// inside its span (±2 bins: its comb of lines, partial bursts at its
+// start and end), the level it lifts when it covers most of the band, and
+// its skirts. A chirp cut at each period's end (flyback, turnaround)
+// leaks beyond its edges: by stationary phase the sweep's in-band density
+// is J/S for span S, and the endpoint term of a chirp cut at an edge
+// frequency falls as 1/(2πΔf) in amplitude, so Δf beyond the edge the
+// density is at most about 2·μ/(4π²Δf²) of the in-band one for sweep rate
+// μ (two endpoints per period; common practice for truncated linear FM).
+// A finding outside the span is explained when its density stands at most
+// 4× that (scatter of one block); a tone is one line of the skirt's comb,
+// which carries the density over one line spacing 1/T (period T).
+func sweptFootprint(c *Finding, class string, lo, hi, jn float64, g *grid) bool {
+	if c.Sweep == nil {
+		return false
+	}
+	if class == ClassWidebandNoise {
+		return jn <= 2*c.JN
+	}
+	sl, sh := c.LowHz-2*g.bin, c.HighHz+2*g.bin
+	if overlaps(lo, hi, sl, sh) {
+		return true
+	}
+	d := math.Max(sl-hi, lo-sh)
+	span := math.Max(c.HighHz-c.LowHz, g.bin)
+	mu := math.Abs(c.Sweep.RateHzS)
+	r := 2 * mu / (4 * math.Pi * math.Pi * d * d)
+	w := math.Max(hi-lo, g.bin)
+	if class == ClassCW && c.Sweep.PeriodS > 0 {
+		w = math.Max(w, 1/c.Sweep.PeriodS)
+	}
+	return jn/w <= 4*r*c.JN/span
+}
+
+// isSweepComb reports whether tones form a long regular comb: the line
+// spectrum of a periodic sweep seen in a block where the sweep itself could
+// not be measured (it covers only part of the block). Such a block raises
+// no cw event; the sweep is picked up where it fills a block, and its start
+// is then refined back into this one.
+func isSweepComb(t []ToneParam) bool {
+	if len(t) < 8 {
+		return false
+	}
+	gaps := make([]float64, len(t)-1)
+	for i := range gaps {
+		gaps[i] = t[i+1].OffsetHz - t[i].OffsetHz
+	}
+	med := medianOf(gaps)
+	regular := 0
+	for _, g := range gaps {
+		if math.Abs(g-med) < 0.1*med {
+			regular++
+		}
+	}
+	return regular >= len(gaps)*2/3
+}
