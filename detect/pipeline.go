@@ -510,21 +510,21 @@ func (p *Pipeline) BlockLen(fs float64) int {
 // one per FFT size and rate and reuses it, so that the steady state of the
 // pass allocates nothing.
 type bank struct {
-	cfg         Config
-	eng         *Spectrum
-	sk          *SpectralKurtosis
-	pulse       *Pulse
-	detectors   []Detector
-	thr         thresholdCache
-	in          BlockInput
-	tr          *tracker
-	st          statsAcc
-	ref         *NoiseReference
-	learner     floorLearner
-	occupied    []bool
-	findings    []Finding
-	center      float64
-	hasCenter   bool
+	cfg       Config
+	eng       *Spectrum
+	sk        *SpectralKurtosis
+	pulse     *Pulse
+	detectors []Detector
+	thr       thresholdCache
+	in        BlockInput
+	tr        *tracker
+	st        statsAcc
+	ref       *NoiseReference
+	learner   floorLearner
+	occupied  []bool
+	findings  []Finding
+	center    float64
+	hasCenter bool
 }
 
 func (p *Pipeline) bankFor(cfg Config, fs float64) *bank {
