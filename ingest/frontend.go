@@ -3,6 +3,7 @@ package ingest
 import (
 	"fmt"
 	"math"
+	"unsafe"
 )
 
 // Front-end fault kinds (the capture record's fault.kind, DESIGN.md "Event
@@ -64,7 +65,8 @@ type FrontEnd struct {
 	GapCount, GapSamples int64
 	MinGap               int64
 	// RMS is √(mean |x|²) and Peak the largest |I|, |Q| or |x|, in
-	// full-scale units.
+	// full-scale units, for float formats (the unnormalised test); 0 for
+	// integer ones, whose codes cannot exceed full scale.
 	RMS, Peak float64
 	// Levels are the first samples' values (see Levels).
 	Levels Levels
@@ -114,7 +116,7 @@ func NewFrontEndCheck(f Format) *FrontEndCheck { return &FrontEndCheck{format: f
 
 const signBit = 1 << 31
 
-// chunk bounds the float32 partial sums before they go into float64.
+// feChunk bounds the float32 partial sums before they go into float64.
 const feChunk = 1024
 
 func (a *FrontEndCheck) minGap() int64 {
@@ -137,62 +139,65 @@ func (a *FrontEndCheck) AddComplex(x []complex64) {
 		}
 	}
 	minGap := a.minGap()
-	pk, run := a.peak, a.run
-	for c := 0; c < len(x); c += feChunk {
-		blk := x[c:min(c+feChunk, len(x))]
-		var s0, s1 float32
-		if a.vary[0] && a.vary[1] {
-			for i, v := range blk {
-				re, im := real(v), imag(v)
-				s0 += re * re
-				s1 += im * im
-				br, bi := math.Float32bits(re)&^signBit, math.Float32bits(im)&^signBit
-				pk = max(pk, br, bi)
-				if br|bi == 0 {
-					run++
-				} else if run != 0 {
-					a.endRun(a.n+int64(c+i), run, minGap)
-					run = 0
-				}
+	run := a.run
+	i := 0
+	if !(a.vary[0] && a.vary[1]) {
+		// Until both components have changed once (the first samples of a
+		// live capture; all of a stuck one).
+		f0, f1 := a.first[0], a.first[1]
+		for ; i < len(x) && !(a.vary[0] && a.vary[1]); i++ {
+			v := x[i]
+			if real(v) != f0 {
+				a.vary[0] = true
 			}
-		} else {
-			f0, f1 := a.first[0], a.first[1]
-			for i, v := range blk {
-				re, im := real(v), imag(v)
-				s0 += re * re
-				s1 += im * im
-				br, bi := math.Float32bits(re)&^signBit, math.Float32bits(im)&^signBit
-				pk = max(pk, br, bi)
-				if re != f0 {
-					a.vary[0] = true
-				}
-				if im != f1 {
-					a.vary[1] = true
-				}
-				if br|bi == 0 {
-					run++
-				} else if run != 0 {
-					a.endRun(a.n+int64(c+i), run, minGap)
-					run = 0
-				}
+			if imag(v) != f1 {
+				a.vary[1] = true
+			}
+			if zeroBits(real(v))|zeroBits(imag(v)) == 0 {
+				run++
+			} else if run != 0 {
+				a.endRun(a.n+int64(i), run, minGap)
+				run = 0
 			}
 		}
-		a.sum += float64(s0) + float64(s1)
+	}
+	// The usual case, four samples a step: a sample's 64 bits without the
+	// two sign bits are 0 only for a zero sample (I and Q ±0), and one
+	// test finds whether any of the four is.
+	u := wordsOf(x)
+	for ; i+3 < len(u); i += 4 {
+		z0, z1, z2, z3 := u[i]&noSigns, u[i+1]&noSigns, u[i+2]&noSigns, u[i+3]&noSigns
+		if min(z0, z1, z2, z3) != 0 {
+			if run != 0 {
+				a.endRun(a.n+int64(i), run, minGap)
+				run = 0
+			}
+			continue
+		}
+		for k, z := range [4]uint64{z0, z1, z2, z3} {
+			if z == 0 {
+				run++
+			} else if run != 0 {
+				a.endRun(a.n+int64(i+k), run, minGap)
+				run = 0
+			}
+		}
+	}
+	for ; i < len(u); i++ {
+		if u[i]&noSigns == 0 {
+			run++
+		} else if run != 0 {
+			a.endRun(a.n+int64(i), run, minGap)
+			run = 0
+		}
+	}
+	a.run = run
+	if a.format.IsFloat() {
+		a.addLevel(realsOf(x))
 	}
 	if t := a.thr; t > 0 {
-		var out int64
-		for _, v := range x {
-			if abs32(real(v)) > t {
-				out++
-			}
-			if abs32(imag(v)) > t {
-				out++
-			}
-		}
-		a.outer += out
-		a.comps += 2 * int64(len(x))
+		a.addOccupancy(realsOf(x), t)
 	}
-	a.peak, a.run = pk, run
 	a.n += int64(len(x))
 }
 
@@ -210,39 +215,118 @@ func (a *FrontEndCheck) AddReal(x []float32) {
 		}
 	}
 	minGap := a.minGap()
-	pk, run := a.peak, a.run
-	f0 := a.first[0]
-	for c := 0; c < len(x); c += feChunk {
-		blk := x[c:min(c+feChunk, len(x))]
-		var s0 float32
-		for i, u := range blk {
-			s0 += u * u
-			bu := math.Float32bits(u) &^ signBit
-			pk = max(pk, bu)
-			if u != f0 {
+	run := a.run
+	i := 0
+	if !a.vary[0] {
+		f0 := a.first[0]
+		for ; i < len(x) && !a.vary[0]; i++ {
+			if x[i] != f0 {
 				a.vary[0] = true
 			}
-			if bu == 0 {
+			if zeroBits(x[i]) == 0 {
 				run++
 			} else if run != 0 {
-				a.endRun(a.n+int64(c+i), run, minGap)
+				a.endRun(a.n+int64(i), run, minGap)
 				run = 0
 			}
 		}
-		a.sum += float64(s0)
 	}
-	if t := a.thr; t > 0 {
-		var out int64
-		for _, v := range x {
-			if abs32(v) > t {
-				out++
+	for ; i+3 < len(x); i += 4 {
+		z0, z1, z2, z3 := zeroBits(x[i]), zeroBits(x[i+1]), zeroBits(x[i+2]), zeroBits(x[i+3])
+		if min(z0, z1, z2, z3) != 0 {
+			if run != 0 {
+				a.endRun(a.n+int64(i), run, minGap)
+				run = 0
+			}
+			continue
+		}
+		for k, z := range [4]uint32{z0, z1, z2, z3} {
+			if z == 0 {
+				run++
+			} else if run != 0 {
+				a.endRun(a.n+int64(i+k), run, minGap)
+				run = 0
 			}
 		}
-		a.outer += out
-		a.comps += int64(len(x))
 	}
-	a.peak, a.run = pk, run
+	for ; i < len(x); i++ {
+		if zeroBits(x[i]) == 0 {
+			run++
+		} else if run != 0 {
+			a.endRun(a.n+int64(i), run, minGap)
+			run = 0
+		}
+	}
+	a.run = run
+	if a.format.IsFloat() {
+		a.addLevel(x)
+	}
+	if t := a.thr; t > 0 {
+		a.addOccupancy(x, t)
+	}
 	a.n += int64(len(x))
+}
+
+// zeroBits is the bits of v without the sign: 0 exactly for ±0.
+func zeroBits(v float32) uint32 { return math.Float32bits(v) << 1 }
+
+// addLevel adds components to the sum of squares and the peak (float
+// formats: the unnormalised test), in float32 partial sums of feChunk
+// values at most, eight at a time into four sums and two peaks (short
+// dependency chains).
+func (a *FrontEndCheck) addLevel(v []float32) {
+	pk := a.peak
+	for c := 0; c < len(v); c += feChunk {
+		blk := v[c:min(c+feChunk, len(v))]
+		var s0, s1, s2, s3 float32
+		p0, p1 := pk, pk
+		i := 0
+		for ; i+7 < len(blk); i += 8 {
+			w := blk[i : i+8 : i+8]
+			s0 += w[0]*w[0] + w[1]*w[1]
+			s1 += w[2]*w[2] + w[3]*w[3]
+			s2 += w[4]*w[4] + w[5]*w[5]
+			s3 += w[6]*w[6] + w[7]*w[7]
+			m0 := max(math.Float32bits(w[0])&^signBit, math.Float32bits(w[1])&^signBit)
+			m1 := max(math.Float32bits(w[2])&^signBit, math.Float32bits(w[3])&^signBit)
+			m2 := max(math.Float32bits(w[4])&^signBit, math.Float32bits(w[5])&^signBit)
+			m3 := max(math.Float32bits(w[6])&^signBit, math.Float32bits(w[7])&^signBit)
+			p0 = max(p0, max(m0, m1))
+			p1 = max(p1, max(m2, m3))
+		}
+		for ; i < len(blk); i++ {
+			s0 += blk[i] * blk[i]
+			p0 = max(p0, math.Float32bits(blk[i])&^signBit)
+		}
+		pk = max(p0, p1)
+		a.sum += float64(s0) + float64(s1) + float64(s2) + float64(s3)
+	}
+	a.peak = pk
+}
+
+// addOccupancy counts the components beyond the magnitude threshold t,
+// without branches (the outcome is a coin toss on 2-bit data): for
+// non-negative floats the order of the bits is the order of the values.
+func (a *FrontEndCheck) addOccupancy(v []float32, t float32) {
+	tb := math.Float32bits(t)
+	var out int64
+	for _, u := range v {
+		out += int64((tb - math.Float32bits(u)&^signBit) >> 31)
+	}
+	a.outer += out
+	a.comps += int64(len(v))
+}
+
+// noSigns masks the sign bits of a complex64's two float32s.
+const noSigns = 0x7fffffff_7fffffff
+
+// wordsOf views complex samples as 64-bit words (one sample each) for bit
+// tests; see realsOf for the layout.
+func wordsOf(x []complex64) []uint64 {
+	if len(x) == 0 {
+		return nil
+	}
+	return unsafe.Slice((*uint64)(unsafe.Pointer(unsafe.SliceData(x))), len(x))
 }
 
 func abs32(v float32) float32 { return math.Float32frombits(math.Float32bits(v) &^ signBit) }

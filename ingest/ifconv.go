@@ -190,8 +190,11 @@ type ifConverter struct {
 	cyc     float64 // IF/fs, cycles per file sample (general IF)
 	pairs   []complex64
 	mixed   []complex64 // general IF: mixed samples, mixed[k] = file sample 2·base + k
-	base    int64       // pair index of pairs[0]
-	have    int64       // pairs base … have−1 are filled
+	// IF = fs/4: the pairs' real and imaginary parts apart (even[j] =
+	// real(pairs[j]), odd[j] = imag(pairs[j])), contiguous for the filter.
+	even, odd []float32
+	base      int64 // pair index of pairs[0]
+	have      int64 // pairs base … have−1 are filled
 }
 
 func newIFConverter(c IFConversion, fs float64, blockSamples int) *ifConverter {
@@ -199,7 +202,12 @@ func newIFConverter(c IFConversion, fs float64, blockSamples int) *ifConverter {
 	v.quarter = math.Abs(4*c.IFHz-fs) <= 1e-9*fs
 	n := blockSamples + 2*hbK + 1
 	v.pairs = samplePool.get(n)
-	if !v.quarter {
+	if v.quarter {
+		// One complex buffer holds both halves (n + n float32s).
+		v.even = realsOf(samplePool.get(n))
+		v.odd = v.even[n:]
+		v.even = v.even[:n:n]
+	} else {
 		v.mixed = samplePool.get(2 * n)
 	}
 	v.reset()
@@ -212,6 +220,10 @@ func (v *ifConverter) reset() {
 	if v.mixed != nil {
 		clear(v.mixed[:2*hbK])
 	}
+	if v.even != nil {
+		clear(v.even[:hbK])
+		clear(v.odd[:hbK])
+	}
 }
 
 func (v *ifConverter) release() {
@@ -219,7 +231,11 @@ func (v *ifConverter) release() {
 	if v.mixed != nil {
 		samplePool.put(v.mixed)
 	}
-	v.pairs, v.mixed = nil, nil
+	if v.even != nil {
+		// Give back the complex buffer they were cut from.
+		samplePool.put(unsafe.Slice((*complex64)(unsafe.Pointer(unsafe.SliceData(v.even))), len(v.even)))
+	}
+	v.pairs, v.mixed, v.even, v.odd = nil, nil, nil, nil
 }
 
 // compact drops the pairs no output from m0 on needs.
@@ -232,6 +248,10 @@ func (v *ifConverter) compact(m0 int64) {
 	copy(v.pairs, v.pairs[drop:keep])
 	if v.mixed != nil {
 		copy(v.mixed, v.mixed[2*drop:2*keep])
+	}
+	if v.even != nil {
+		copy(v.even, v.even[drop:keep])
+		copy(v.odd, v.odd[drop:keep])
 	}
 	v.base += int64(drop)
 }
@@ -246,6 +266,13 @@ func (v *ifConverter) slot(n int) []complex64 {
 func (v *ifConverter) commit(n int) {
 	if v.mixed != nil {
 		v.mix(v.have, n)
+	}
+	if v.even != nil {
+		j := int(v.have - v.base)
+		ev, od := v.even[j:j+n], v.odd[j:j+n]
+		for i, p := range v.pairs[j : j+n] {
+			ev[i], od[i] = real(p), imag(p)
+		}
 	}
 	v.have += int64(n)
 }
@@ -298,27 +325,85 @@ func (v *ifConverter) output(dst []complex64, m0 int64) {
 //	z[m] = (−1)^m · (e[m] − j·Σ_{i=1…K} g_i·(−1)^i·(o[m−i] − o[m+i−1]))
 //
 // (g_i the doubled taps at offsets ±(2i−1), the centre tap 1): hbK
-// multiplications per output sample and none for the mixer.
+// multiplications per output sample and none for the mixer. The sum runs
+// in halfBandQuarter (AVX where the CPU has it, the same operations in Go
+// otherwise).
 func (v *ifConverter) outputQuarter(dst []complex64, m0 int64) {
 	j0 := int(m0 - v.base)
-	p := v.pairs[j0-hbK : j0+len(dst)+hbK]
-	sign := float32(1)
+	s := float32(1)
 	if m0%2 != 0 {
-		sign = -1
+		s = -1
 	}
 	qs := float32(-1) // −j·S; the conjugate for a high-side LO
 	if v.invert {
 		qs = 1
 	}
-	for m := range dst {
-		w := p[m : m+2*hbK : m+2*hbK]
-		var s0, s1 float32
-		for i := 0; i < hbK; i += 2 {
-			s0 += hbAlt[i] * (imag(w[hbK-1-i]) - imag(w[hbK+i]))
-			s1 += hbAlt[i+1] * (imag(w[hbK-2-i]) - imag(w[hbK+i+1]))
+	var signs [2][8]float32 // (−1)^m for the real part, (−1)^m·qs for the imaginary
+	for k := range 8 {
+		signs[0][k], signs[1][k] = s, s*qs
+		s = -s
+	}
+	halfBandQuarter(dst, v.even, v.odd, j0, &signs)
+}
+
+// hbAltVec are hbAlt's taps, each repeated 8 times, for the vector kernel.
+var hbAltVec = func() (t [hbK][8]float32) {
+	for i := range t {
+		for k := range t[i] {
+			t[i][k] = hbAlt[i]
 		}
-		dst[m] = complex(sign*real(w[hbK]), sign*qs*(s0+s1))
-		sign = -sign
+	}
+	return t
+}()
+
+// halfBandQuarter writes z[m] for m = 0 … len(dst)−1, centred on pair j0+m
+// of even and odd (which must hold pairs j0−hbK … j0+len(dst)+hbK−2), with
+// the signs signs[0][m%8] on the real part and signs[1][m%8] on the
+// imaginary one. The vector kernel takes the outputs eight at a time; the
+// rest, and everything without it, goes through halfBandQuarterGo.
+func halfBandQuarter(dst []complex64, even, odd []float32, j0 int, signs *[2][8]float32) {
+	if len(dst) == 0 {
+		return
+	}
+	_ = odd[j0-hbK]
+	_ = odd[j0+len(dst)+hbK-2]
+	_ = even[j0+len(dst)-1]
+	done := 0
+	if useVectorHalfBand {
+		done = len(dst) &^ 7
+		if done > 0 {
+			halfBandQuarterAVX(&dst[0], &even[j0], &odd[j0], done, &hbAltVec, signs)
+		}
+	}
+	halfBandQuarterGo(dst[done:], even, odd, j0+done, signs, done)
+}
+
+// halfBandQuarterGo is the Go twin of the vector kernel: the same float32
+// operations in the same order (the explicit float32 conversions keep a
+// compiler from fusing a product into the following sum). phase is the
+// index of dst[0] in the sign pattern.
+func halfBandQuarterGo(dst []complex64, even, odd []float32, j0 int, signs *[2][8]float32, phase int) {
+	g := &hbAlt
+	for m := range dst {
+		w := (*[2 * hbK]float32)(odd[j0+m-hbK : j0+m+hbK]) // w[hbK+k] = o[m+k]
+		d0 := float32(g[0] * (w[11] - w[12]))
+		d1 := float32(g[1] * (w[10] - w[13]))
+		d2 := float32(g[2] * (w[9] - w[14]))
+		d3 := float32(g[3] * (w[8] - w[15]))
+		d4 := float32(g[4] * (w[7] - w[16]))
+		d5 := float32(g[5] * (w[6] - w[17]))
+		d6 := float32(g[6] * (w[5] - w[18]))
+		d7 := float32(g[7] * (w[4] - w[19]))
+		d8 := float32(g[8] * (w[3] - w[20]))
+		d9 := float32(g[9] * (w[2] - w[21]))
+		d10 := float32(g[10] * (w[1] - w[22]))
+		d11 := float32(g[11] * (w[0] - w[23]))
+		a := float32(float32(d0+d1) + float32(d2+d3))
+		b := float32(float32(d4+d5) + float32(d6+d7))
+		c := float32(float32(d8+d9) + float32(d10+d11))
+		sum := float32(float32(a+b) + c)
+		k := (phase + m) % 8
+		dst[m] = complex(even[j0+m]*signs[0][k], sum*signs[1][k])
 	}
 }
 
@@ -327,22 +412,21 @@ func (v *ifConverter) outputQuarter(dst []complex64, m0 int64) {
 func (v *ifConverter) outputGeneral(dst []complex64, m0 int64) {
 	j0 := int(m0 - v.base)
 	y := v.mixed[2*(j0-hbK) : 2*(j0+len(dst)+hbK)]
+	g := hbTaps
 	for m := range dst {
-		w := y[2*m : 2*m+4*hbK : 2*m+4*hbK] // file samples 2m−2K … 2m+2K−1 around the centre 2K
-		c := w[2*hbK]
-		var re, im float32
-		for i := 1; i <= hbK; i++ {
-			a, b := w[2*hbK-2*i+1], w[2*hbK+2*i-1]
-			g := hbTaps[i-1]
-			re += g * (real(a) + real(b))
-			im += g * (imag(a) + imag(b))
+		// File samples 2m−2K … 2m+2K−1 around the centre at 2K; the taps
+		// at offsets ±(2i−1), summed as a tree.
+		w := (*[4 * hbK]complex64)(y[2*m : 2*m+4*hbK])
+		var t [hbK]complex64
+		for i := range hbK {
+			a, b := w[2*hbK-2*i-1], w[2*hbK+2*i+1]
+			t[i] = complex(g[i]*(real(a)+real(b)), g[i]*(imag(a)+imag(b)))
 		}
-		re += real(c)
-		im += imag(c)
+		z := w[2*hbK] + (((t[0] + t[1]) + (t[2] + t[3])) + ((t[4] + t[5]) + (t[6] + t[7])) + ((t[8] + t[9]) + (t[10] + t[11])))
 		if v.invert {
-			im = -im
+			z = complex(real(z), -imag(z))
 		}
-		dst[m] = complex(re, im)
+		dst[m] = z
 	}
 }
 

@@ -305,3 +305,109 @@ func TestRealsOfLayout(t *testing.T) {
 		t.Fatal("realsOf(nil) not nil")
 	}
 }
+
+// BenchmarkIFConvert measures the conversion alone (filter and, for an IF
+// other than fs/4, the mixer), per complex output sample, on 64 Ki
+// outputs from decoded pairs.
+func BenchmarkIFConvert(b *testing.B) {
+	for _, tc := range []struct {
+		name string
+		conv IFConversion
+	}{{"quarter", IFConversion{3e6, LowSide}}, {"nco", IFConversion{2.9e6, LowSide}}} {
+		b.Run(tc.name, func(b *testing.B) {
+			v := newIFConverter(tc.conv, 12e6, benchSamples)
+			defer v.release()
+			p := v.slot(benchSamples + hbK)
+			copy(p, noise(13, len(p), 0.1))
+			v.commit(len(p))
+			dst := make([]complex64, benchSamples)
+			b.ReportAllocs()
+			for b.Loop() {
+				if !v.quarter {
+					v.mix(0, benchSamples+hbK) // the mixer runs once per pair read
+				}
+				v.output(dst, 0)
+			}
+			b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N)/benchSamples, "ns/sample")
+		})
+	}
+}
+
+// BenchmarkReaderRealIF streams 16 MiB of ri8 (real, fs/4 IF) through the
+// Reader from memory, in blocks of 64 Ki complex samples (read, SHA-256,
+// decode, convert), against the same bytes read as ci8 (complex: read,
+// SHA-256, decode): both give 8 Mi complex samples, so the difference is
+// the cost of the conversion as the pipeline sees it; ns/sample per
+// complex sample.
+func BenchmarkReaderRealIF(b *testing.B) {
+	data := make([]byte, 16<<20)
+	rand.NewChaCha8([32]byte{3}).Read(data)
+	for _, f := range []Format{CI8, RI8, RI16LE} {
+		b.Run(f.String(), func(b *testing.B) {
+			raw := data
+			if f == RI16LE {
+				raw = data[:len(data)/2*2]
+			}
+			n := int64(len(raw) / f.SampleBytes())
+			out := n
+			if f.IsReal() {
+				out = n / 2
+			}
+			b.SetBytes(int64(len(raw)))
+			for b.Loop() {
+				var r *Reader
+				if f.IsReal() {
+					r, _ = NewIFReader(bytes.NewReader(raw), "bench", f, benchSamples, n, 12e6, IFConversion{3e6, LowSide})
+				} else {
+					r = NewReader(bytes.NewReader(raw), "bench", f, benchSamples, n)
+				}
+				for {
+					if _, err := r.Next(); err != nil {
+						break
+					}
+				}
+				r.Close()
+			}
+			b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N)/float64(out), "ns/sample")
+		})
+	}
+}
+
+// TestVectorHalfBand checks that the AVX kernel of the fs/4 conversion
+// gives exactly the samples of its Go twin, for random values (with exact
+// zeros and both sign patterns), lengths with and without a scalar tail,
+// and both LO sides.
+func TestVectorHalfBand(t *testing.T) {
+	if !useVectorHalfBand {
+		t.Skip("no vector half-band kernel on this machine (needs amd64 with AVX, without the purego tag)")
+	}
+	rng := rand.New(rand.NewPCG(7, 7))
+	for _, n := range []int{1, 7, 8, 9, 64, 1001, 65536} {
+		even := make([]float32, n+2*hbK)
+		odd := make([]float32, n+2*hbK)
+		for i := range odd {
+			even[i], odd[i] = float32(rng.NormFloat64()), float32(rng.NormFloat64())
+			if rng.IntN(10) == 0 {
+				odd[i] = 0
+			}
+		}
+		for _, signs := range []*[2][8]float32{
+			{{1, -1, 1, -1, 1, -1, 1, -1}, {-1, 1, -1, 1, -1, 1, -1, 1}},
+			{{-1, 1, -1, 1, -1, 1, -1, 1}, {-1, 1, -1, 1, -1, 1, -1, 1}},
+		} {
+			var got [2][]complex64
+			for k, vec := range []bool{false, true} {
+				old := useVectorHalfBand
+				useVectorHalfBand = vec
+				got[k] = make([]complex64, n)
+				halfBandQuarter(got[k], even, odd, hbK, signs)
+				useVectorHalfBand = old
+			}
+			for i := range n {
+				if got[0][i] != got[1][i] {
+					t.Fatalf("n=%d output %d: %v (Go) vs %v (vector)", n, i, got[0][i], got[1][i])
+				}
+			}
+		}
+	}
+}
