@@ -128,7 +128,7 @@ func TestSatelliteCN0(t *testing.T) {
 			if len(tr.Satellites) != 1 || tr.Satellites[0].CN0DBHz != tc.cn0 {
 				t.Fatalf("truth satellites %+v, want one at %g dB-Hz", tr.Satellites, tc.cn0)
 			}
-			a2, sigma2, cn0, k, n := caEstimate(t, x, tr.SampleRate, tr.CenterHz, tr.Satellites[0])
+			a2, sigma2, cn0, k, n := caEstimate(t, x, tr.SampleRate, tr.CenterHz, tr.Satellites[0].Satellite)
 			sd := cn0StdDB(tc.cn0, tr.SampleRate, n, k)
 			t.Logf("C/N0 %.3f dB-Hz (truth %g, σ of the estimate %.3f dB); A² = %.4g, σ̂² = %.5g, %d windows of %d samples",
 				cn0, tc.cn0, sd, a2, sigma2, k, n)
@@ -141,7 +141,7 @@ func TestSatelliteCN0(t *testing.T) {
 			// L1 − fc + f_D. R = |Σ P_k²|/Σ|P_k|² ≈ λ/(λ+1) (0.97 at
 			// 45 dB-Hz); a carrier 1.3 Hz off turns 2θ through 2.6 cycles
 			// and R falls to ~0.1.
-			p, _ := caCorrelations(t, x, tr.SampleRate, tr.CenterHz, tr.Satellites[0])
+			p, _ := caCorrelations(t, x, tr.SampleRate, tr.CenterHz, tr.Satellites[0].Satellite)
 			var num complex128
 			var den float64
 			for _, v := range p {
@@ -207,7 +207,7 @@ func TestAttenuation(t *testing.T) {
 			t.Errorf("attenuation %g dB: truth C/N0 %g, want %g", a, got, want)
 		}
 		x := readCapture(t, dir, tr)
-		a2, _, cn0, k, n := caEstimate(t, x, tr.SampleRate, tr.CenterHz, tr.Satellites[0])
+		a2, _, cn0, k, n := caEstimate(t, x, tr.SampleRate, tr.CenterHz, tr.Satellites[0].Satellite)
 		sd := cn0StdDB(sat.CN0DBHz-a, tr.SampleRate, n, k)
 		t.Logf("attenuation %g dB: C/N0 %.3f dB-Hz (truth %g, σ %.3f dB)", a, cn0, sat.CN0DBHz-a, sd)
 		if math.Abs(cn0-(sat.CN0DBHz-a)) > 0.25 {
@@ -221,4 +221,74 @@ func TestAttenuation(t *testing.T) {
 			t.Errorf("attenuation %g dB: correlation power changed by %.3f dB", a, d)
 		}
 	}
+}
+
+// replica is a C/A replica with its own carrier and code rates, so that
+// tests can correlate with what the truth says the recording holds (a
+// clock offset, an inversion, a Doppler rate) or with something else on
+// purpose. At sample n: code phase chip0 + c1·n + c2·n² chips, carrier
+// f1·n + f2·n² cycles.
+type replica struct {
+	prn           int
+	chip0, c1, c2 float64
+	f1, f2        float64
+}
+
+// replicaFor is the replica of an apparent carrier offset (Hz), Doppler
+// rate (Hz/s) and code rate (chips/s) at rate fs.
+func replicaFor(prn int, chip0, carrierHz, rateHzS, chipRate, fs float64) replica {
+	return replica{prn: prn, chip0: gpsca.WrapChips(chip0), c1: chipRate / fs,
+		c2: rateHzS / gpsca.CarrierToCodeRatio / (2 * fs * fs), f1: carrierHz / fs, f2: rateHzS / (2 * fs * fs)}
+}
+
+// chipAt is the replica's code phase at sample n.
+func (r replica) chipAt(n float64) float64 { return r.chip0 + r.c1*n + r.c2*n*n }
+
+// correlations is caCorrelations for a replica: P_k over windows of one
+// code period starting at each code epoch, N samples long (one less than
+// a period's whole samples, so no data bit flips inside).
+func (r replica) correlations(t testing.TB, x []complex64) (p []complex128, n int) {
+	t.Helper()
+	code, err := gpsca.Code(r.prn)
+	if err != nil {
+		t.Fatal(err)
+	}
+	n = int(math.Floor(gpsca.CodeLength/r.c1)) - 2
+	for k := 1; ; k++ {
+		target := float64(k) * gpsca.CodeLength
+		s := int(math.Ceil((target - r.chip0) / r.c1))
+		for s > 0 && r.chipAt(float64(s-1)) >= target {
+			s--
+		}
+		for r.chipAt(float64(s)) < target {
+			s++
+		}
+		if s+n > len(x) {
+			break
+		}
+		var acc complex128
+		for i := s; i < s+n; i++ {
+			fi := float64(i)
+			c := int64(math.Floor(r.chipAt(fi))) % gpsca.CodeLength
+			_, frac := math.Modf(r.f1*fi + r.f2*fi*fi)
+			acc += complex128(x[i]) * complex(float64(code[c]), 0) * cmplx.Rect(1, -2*math.Pi*frac)
+		}
+		p = append(p, acc)
+	}
+	return p, n
+}
+
+// cn0 estimates the C/N0 the replica finds in x, as caEstimate does.
+func (r replica) cn0(t testing.TB, x []complex64, fs float64) float64 {
+	t.Helper()
+	p, n := r.correlations(t, x)
+	p2 := make([]float64, len(p))
+	for k, v := range p {
+		p2[k] = real(v)*real(v) + imag(v)*imag(v)
+	}
+	m, _ := meanStd(p2)
+	pd := meanPower(x)
+	nf := float64(n)
+	a2 := (m - nf*pd) / (nf*nf - nf)
+	return db(max(a2, 1e-30) * fs / (pd - a2))
 }

@@ -43,6 +43,24 @@ type Scenario struct {
 	Start       time.Time `yaml:"start" json:"start"`             // first capture's start
 	Seed        uint64    `yaml:"seed" json:"seed"`
 	Captures    []Capture `yaml:"captures" json:"captures"`
+	// FrontEnd is the recorder's front end (passband, DC offset, I/Q
+	// imbalance, quantization, spurs, gain, clock, faults) for every
+	// capture; a capture's own front_end overrides it part by part. Nil:
+	// an ideal front end, the samples are the sky's sum as they always were.
+	FrontEnd *FrontEnd `yaml:"front_end,omitempty" json:"front_end,omitempty"`
+	// Sky is the satellites at Start (offset_s 0), for the captures that
+	// list none: each such capture gets them propagated to its offset_s
+	// (Propagate: Doppler moved by its rate, code phase advanced by the
+	// chips sent in between).
+	Sky []Satellite `yaml:"sky,omitempty" json:"sky,omitempty"`
+	// RandomSky fills Sky with RandomSky(satellites, seed) when Sky is empty.
+	RandomSky *RandomSkySpec `yaml:"random_sky,omitempty" json:"random_sky,omitempty"`
+}
+
+// RandomSkySpec asks for a sky drawn by RandomSky.
+type RandomSkySpec struct {
+	Satellites int    `yaml:"satellites" json:"satellites"`
+	Seed       uint64 `yaml:"seed" json:"seed"`
 }
 
 // Capture is one recording of a scenario.
@@ -54,6 +72,10 @@ type Capture struct {
 	// AttenuationDB lowers every satellite (an obstructed or failing antenna).
 	AttenuationDB float64   `yaml:"attenuation_db" json:"attenuation_db"`
 	Emitters      []Emitter `yaml:"emitters" json:"emitters"`
+	// FrontEnd overrides the scenario's front end for this capture: each
+	// part given here (passband, quantization, sample_drops, ...) replaces
+	// the scenario's, the others are kept.
+	FrontEnd *FrontEnd `yaml:"front_end,omitempty" json:"front_end,omitempty"`
 }
 
 // Satellite is one GPS L1 C/A signal.
@@ -62,6 +84,10 @@ type Satellite struct {
 	CN0DBHz        float64 `yaml:"cn0_dbhz" json:"cn0_dbhz"`
 	DopplerHz      float64 `yaml:"doppler_hz" json:"doppler_hz"`
 	CodePhaseChips float64 `yaml:"code_phase_chips" json:"code_phase_chips"` // at the capture's first sample
+	// DopplerRateHzS is the Doppler's rate of change (Hz/s; a static
+	// receiver sees at most about ±1 Hz/s, see RandomSky): the carrier
+	// phase is quadratic in time and the code follows the carrier at 1/1540.
+	DopplerRateHzS float64 `yaml:"doppler_rate_hz_s,omitempty" json:"doppler_rate_hz_s,omitempty"`
 }
 
 // Emitter kinds.
@@ -85,7 +111,14 @@ type Emitter struct {
 	OffsetHz float64 `yaml:"offset_hz,omitempty" json:"offset_hz"`
 	// cw
 	Tones []Tone `yaml:"tones,omitempty" json:"tones,omitempty"`
-	// swept: a linear chirp between LowHz and HighHz (offsets from centre)
+	// On keys the emitter on and off abruptly: [[start_s, end_s], ...],
+	// increasing and not overlapping. start_s and end_s then become the
+	// first start and the last end.
+	On [][]float64 `yaml:"on,omitempty" json:"on,omitempty"`
+	// swept: a linear chirp between LowHz and HighHz (offsets from centre).
+	// The span may reach beyond ±fs/2 (cheap jammers sweep 10–40 MHz): the
+	// recorder's anti-alias filter then shapes the chirp (antiAliasGain) so
+	// that nothing aliases.
 	LowHz   float64 `yaml:"low_hz,omitempty" json:"low_hz,omitempty"`
 	HighHz  float64 `yaml:"high_hz,omitempty" json:"high_hz,omitempty"`
 	PeriodS float64 `yaml:"period_s,omitempty" json:"period_s,omitempty"`
@@ -96,6 +129,11 @@ type Emitter struct {
 	WidthS       float64 `yaml:"width_s,omitempty" json:"width_s,omitempty"`
 	PRIS         float64 `yaml:"pri_s,omitempty" json:"pri_s,omitempty"`
 	PairSpacingS float64 `yaml:"pair_spacing_s,omitempty" json:"pair_spacing_s,omitempty"`
+	// ChannelsHz makes a pulsed emitter hop: each pulse (or pair) is sent
+	// on one of these offsets, chosen pseudo-randomly per pulse from the
+	// scenario's seed (as L5-band data links hop over channels 3 MHz
+	// apart). offset_hz is then unused and must be 0.
+	ChannelsHz []float64 `yaml:"channels_hz,omitempty" json:"channels_hz,omitempty"`
 	// wideband_noise: FloorRiseDB over the whole band
 	FloorRiseDB float64 `yaml:"floor_rise_db,omitempty" json:"floor_rise_db,omitempty"`
 	// narrowband_noise: BandwidthHz around OffsetHz, at JNDB
@@ -106,6 +144,11 @@ type Emitter struct {
 type Tone struct {
 	OffsetHz float64 `yaml:"offset_hz" json:"offset_hz"`
 	JNDB     float64 `yaml:"jn_db" json:"jn_db"`
+	// In the truth only: where the tone lies in the recording (after the
+	// receiver's clock offset and a spectrum inversion) and its J/N after
+	// the passband.
+	ApparentOffsetHz *float64 `yaml:"-" json:"apparent_offset_hz,omitempty"`
+	ApparentJNDB     *float64 `yaml:"-" json:"apparent_jn_db,omitempty"`
 }
 
 // DMEAlpha is the Gaussian pulse constant α of p(t) = exp(−α t²/2) used in
@@ -178,6 +221,26 @@ func (s *Scenario) Normalize() error {
 	if len(s.Captures) == 0 {
 		return errors.New("no captures")
 	}
+	if s.FrontEnd != nil {
+		if err := s.FrontEnd.check(s, 0, math.Inf(1)); err != nil {
+			return fmt.Errorf("front_end.%w", err)
+		}
+	}
+	if s.RandomSky != nil {
+		if len(s.Sky) > 0 {
+			return errors.New("give sky or random_sky, not both")
+		}
+		if s.RandomSky.Satellites < 1 || s.RandomSky.Satellites > 32 {
+			return fmt.Errorf("random_sky.satellites %d not in 1..32", s.RandomSky.Satellites)
+		}
+		s.Sky = RandomSky(s.RandomSky.Satellites, s.RandomSky.Seed)
+		s.RandomSky = nil
+	}
+	for j, sat := range s.Sky {
+		if err := sat.check(s, 0, nil); err != nil {
+			return fmt.Errorf("sky[%d]: %w", j, err)
+		}
+	}
 	seen := map[string]bool{}
 	for i := range s.Captures {
 		c := &s.Captures[i]
@@ -200,23 +263,22 @@ func (s *Scenario) Normalize() error {
 		if !finite(c.OffsetS, c.AttenuationDB) {
 			return fmt.Errorf("capture %s: offset_s %g and attenuation_db %g must be finite numbers", c.Name, c.OffsetS, c.AttenuationDB)
 		}
+		if c.Satellites == nil && len(s.Sky) > 0 {
+			c.Satellites = Propagate(s.Sky, c.OffsetS)
+		}
+		fe := mergeFrontEnd(s.FrontEnd, c.FrontEnd)
+		if fe != nil {
+			if err := fe.check(s, i, c.DurationS); err != nil {
+				return fmt.Errorf("capture %s: front_end.%w", c.Name, err)
+			}
+		}
 		for j, sat := range c.Satellites {
-			if !finite(sat.CN0DBHz, sat.DopplerHz, sat.CodePhaseChips) {
-				return fmt.Errorf("capture %s: satellites[%d]: cn0_dbhz, doppler_hz and code_phase_chips must be finite numbers", c.Name, j)
-			}
-			// The carrier must fall inside the capture, or it would alias.
-			if f := gpsca.L1 - s.CenterHz + sat.DopplerHz; math.Abs(f) >= s.SampleRate/2 {
-				return fmt.Errorf("capture %s: satellites[%d]: L1 carrier at %g Hz from center_hz lies outside ±fs/2 = ±%g Hz", c.Name, j, f, s.SampleRate/2)
-			}
-			if sat.PRN < 1 || sat.PRN > 32 {
-				return fmt.Errorf("capture %s: satellites[%d]: prn %d not in 1..32", c.Name, j, sat.PRN)
-			}
-			if sat.CN0DBHz < 0 || sat.CN0DBHz > 70 {
-				return fmt.Errorf("capture %s: satellites[%d]: cn0_dbhz %g out of range [0, 70]", c.Name, j, sat.CN0DBHz)
+			if err := sat.check(s, c.DurationS, fe); err != nil {
+				return fmt.Errorf("capture %s: satellites[%d]: %w", c.Name, j, err)
 			}
 		}
 		for j := range c.Emitters {
-			if err := c.Emitters[j].normalize(s.SampleRate, c.DurationS); err != nil {
+			if err := c.Emitters[j].normalize(s.SampleRate, c.DurationS, fe.clock(s.CenterHz)); err != nil {
 				return fmt.Errorf("capture %s: emitters[%d] (%s): %w", c.Name, j, c.Emitters[j].Kind, err)
 			}
 		}
@@ -224,10 +286,63 @@ func (s *Scenario) Normalize() error {
 	return nil
 }
 
-func (e *Emitter) normalize(fs, dur float64) error {
+// check validates one satellite of a capture dur seconds long (0: of the
+// scenario's sky) seen through the front end fe (nil: ideal).
+func (sat Satellite) check(s *Scenario, dur float64, fe *FrontEnd) error {
+	if !finite(sat.CN0DBHz, sat.DopplerHz, sat.CodePhaseChips, sat.DopplerRateHzS) {
+		return errors.New("cn0_dbhz, doppler_hz, doppler_rate_hz_s and code_phase_chips must be finite numbers")
+	}
+	// The carrier must fall inside the capture, or it would alias.
+	if f := gpsca.L1 - s.CenterHz + sat.DopplerHz; math.Abs(f) >= s.SampleRate/2 {
+		return fmt.Errorf("L1 carrier at %g Hz from center_hz lies outside ±fs/2 = ±%g Hz", f, s.SampleRate/2)
+	}
+	if sat.PRN < 1 || sat.PRN > 32 {
+		return fmt.Errorf("prn %d not in 1..32", sat.PRN)
+	}
+	if sat.CN0DBHz < 0 || sat.CN0DBHz > 70 {
+		return fmt.Errorf("cn0_dbhz %g out of range [0, 70]", sat.CN0DBHz)
+	}
+	if math.Abs(sat.DopplerRateHzS) > 10 {
+		return fmt.Errorf("doppler_rate_hz_s %g out of range [−10, 10] (a static receiver sees at most about ±1 Hz/s)", sat.DopplerRateHzS)
+	}
+	// Through the receiver's clock and over the whole capture, too.
+	ck := fe.clock(s.CenterHz)
+	for _, t := range []float64{0, dur} {
+		fd := sat.DopplerHz + sat.DopplerRateHzS*t
+		if f := ck.carrier(gpsca.L1 + fd); math.Abs(f) >= s.SampleRate/2 {
+			return fmt.Errorf("L1 carrier at %g Hz from center_hz %g s into the capture (doppler_hz %g, doppler_rate_hz_s %g, clock_ppm %g) lies outside ±fs/2 = ±%g Hz",
+				f, t, sat.DopplerHz, sat.DopplerRateHzS, ck.ppm, s.SampleRate/2)
+		}
+	}
+	return nil
+}
+
+// maxSweepHz bounds a sweep's low_hz and high_hz: beyond ±100 MHz from the
+// centre no GNSS front end would let anything through.
+const maxSweepHz = 100e6
+
+func (e *Emitter) normalize(fs, dur float64, ck clock) error {
 	if !finite(e.StartS, e.EndS, e.JNDB, e.OffsetHz, e.LowHz, e.HighHz, e.PeriodS, e.WidthS, e.PRIS,
 		e.PairSpacingS, e.FloorRiseDB, e.BandwidthHz) {
 		return errors.New("every value must be a finite number")
+	}
+	if len(e.On) > 0 {
+		for k, iv := range e.On {
+			if len(iv) != 2 || !finite(iv...) {
+				return fmt.Errorf("on[%d] must be [start_s, end_s], two finite numbers", k)
+			}
+			if iv[0] < 0 || iv[1] > dur+1e-12 || iv[0] >= iv[1] {
+				return fmt.Errorf("on[%d] [%g, %g] must satisfy 0 ≤ start < end ≤ %g", k, iv[0], iv[1], dur)
+			}
+			if k > 0 && iv[0] < e.On[k-1][1] {
+				return fmt.Errorf("on[%d] starts at %g s, before on[%d] ends (%g s): intervals must increase and not overlap", k, iv[0], k-1, e.On[k-1][1])
+			}
+		}
+		first, last := e.On[0][0], e.On[len(e.On)-1][1]
+		if (e.StartS != 0 && e.StartS != first) || (e.EndS != 0 && e.EndS != last) {
+			return fmt.Errorf("start_s %g / end_s %g disagree with the on intervals (%g to %g s): give one or the other", e.StartS, e.EndS, first, last)
+		}
+		e.StartS, e.EndS = first, last
 	}
 	if e.EndS == 0 {
 		e.EndS = dur
@@ -240,7 +355,13 @@ func (e *Emitter) normalize(fs, dur float64) error {
 		if math.Abs(f) >= nyq {
 			return fmt.Errorf("%s %g Hz outside ±fs/2 = ±%g Hz", name, f, nyq)
 		}
+		if a := ck.offset(f); math.Abs(a) >= nyq {
+			return fmt.Errorf("%s %g Hz lies at %g Hz after the receiver clock offset (clock_ppm %g), outside ±fs/2 = ±%g Hz", name, f, a, ck.ppm, nyq)
+		}
 		return nil
+	}
+	if len(e.ChannelsHz) > 0 && e.Kind != KindPulsed {
+		return fmt.Errorf("channels_hz is for pulsed emitters, not %s", e.Kind)
 	}
 	switch e.Kind {
 	case KindCW:
@@ -265,17 +386,27 @@ func (e *Emitter) normalize(fs, dur float64) error {
 		if e.Shape != "up" && e.Shape != "down" && e.Shape != "triangle" {
 			return fmt.Errorf("shape %q is not up, down or triangle", e.Shape)
 		}
-		if err := inBand("low_hz", e.LowHz); err != nil {
-			return err
-		}
-		if err := inBand("high_hz", e.HighHz); err != nil {
-			return err
+		if math.Abs(e.LowHz) > maxSweepHz || math.Abs(e.HighHz) > maxSweepHz {
+			return fmt.Errorf("low_hz %g / high_hz %g beyond ±%g Hz from the centre", e.LowHz, e.HighHz, maxSweepHz)
 		}
 		if !(e.HighHz > e.LowHz) {
 			return errors.New("high_hz must be above low_hz")
 		}
 		if !(e.PeriodS >= 10/fs) {
 			return fmt.Errorf("period_s %g shorter than 10 samples", e.PeriodS)
+		}
+		lo, hi := ck.offset(e.LowHz), ck.offset(e.HighHz)
+		if hi <= -nyq || lo >= nyq {
+			return fmt.Errorf("sweep %g to %g Hz lies entirely outside ±fs/2 = ±%g Hz: the recording would hold nothing of it", lo, hi, nyq)
+		}
+		// A sweep that leaves the band must still dwell a few samples in
+		// it each time it crosses, or it is not a chirp any more.
+		dwell := sweepInBandFraction(lo, hi, fs) * e.PeriodS * fs
+		if e.Shape == "triangle" {
+			dwell /= 2 // it crosses the band twice per period
+		}
+		if sweepLeavesBand(lo, hi, fs) && dwell < 8 {
+			return fmt.Errorf("sweep %g to %g Hz every %g s crosses the ±%g Hz band in %.2g samples per period; it needs at least 8", lo, hi, e.PeriodS, nyq, dwell)
 		}
 	case KindPulsed:
 		if e.Pulse == "" {
@@ -297,7 +428,22 @@ func (e *Emitter) normalize(fs, dur float64) error {
 		if !(e.PRIS > e.WidthS+e.PairSpacingS) {
 			return fmt.Errorf("pri_s %g must exceed the pulse (pair) length", e.PRIS)
 		}
-		if err := inBand("offset_hz", e.OffsetHz); err != nil {
+		if len(e.ChannelsHz) > 0 {
+			if e.OffsetHz != 0 {
+				return fmt.Errorf("offset_hz %g and channels_hz both given: a hopping emitter's carrier is on its channels", e.OffsetHz)
+			}
+			if len(e.ChannelsHz) > 256 {
+				return fmt.Errorf("%d channels_hz, at most 256", len(e.ChannelsHz))
+			}
+			for k, f := range e.ChannelsHz {
+				if !finite(f) {
+					return fmt.Errorf("channels_hz[%d] %g is not a finite number", k, f)
+				}
+				if err := inBand(fmt.Sprintf("channels_hz[%d]", k), f); err != nil {
+					return err
+				}
+			}
+		} else if err := inBand("offset_hz", e.OffsetHz); err != nil {
 			return err
 		}
 	case KindWidebandNoise:
@@ -309,6 +455,9 @@ func (e *Emitter) normalize(fs, dur float64) error {
 	case KindNarrowbandNoise:
 		if !(e.BandwidthHz > 0) || math.Abs(e.OffsetHz)+e.BandwidthHz/2 > nyq {
 			return fmt.Errorf("band %g ± %g Hz must lie within ±fs/2", e.OffsetHz, e.BandwidthHz/2)
+		}
+		if a := ck.offset(e.OffsetHz); math.Abs(a)+e.BandwidthHz/2 > nyq {
+			return fmt.Errorf("band %g ± %g Hz lies at %g Hz after the receiver clock offset (clock_ppm %g), beyond ±fs/2", e.OffsetHz, e.BandwidthHz/2, a, ck.ppm)
 		}
 	default:
 		return fmt.Errorf("kind %q is not one of cw, swept, pulsed, wideband_noise, narrowband_noise", e.Kind)

@@ -214,17 +214,17 @@ func TestParseScenario(t *testing.T) {
 		t.Fatalf("captures %+v (the unnamed one should be yaml-test-002)", s.Captures)
 	}
 	c := s.Captures[0]
-	if c.DurationS != 0.01 || c.AttenuationDB != 2 || len(c.Satellites) != 1 || c.Satellites[0] != (Satellite{5, 45, -1200, 17.5}) {
+	if c.DurationS != 0.01 || c.AttenuationDB != 2 || len(c.Satellites) != 1 || c.Satellites[0] != (Satellite{PRN: 5, CN0DBHz: 45, DopplerHz: -1200, CodePhaseChips: 17.5}) {
 		t.Errorf("capture %+v", c)
 	}
 	em := c.Emitters
 	if len(em) != 7 {
 		t.Fatalf("%d emitters, want 7", len(em))
 	}
-	if len(em[0].Tones) != 2 || em[0].Tones[1] != (Tone{-2e5, 0}) {
+	if len(em[0].Tones) != 2 || em[0].Tones[1] != (Tone{OffsetHz: -2e5, JNDB: 0}) {
 		t.Errorf("cw tones %+v", em[0].Tones)
 	}
-	if len(em[1].Tones) != 1 || em[1].Tones[0] != (Tone{3e5, -2}) || em[1].Label != "spur" {
+	if len(em[1].Tones) != 1 || em[1].Tones[0] != (Tone{OffsetHz: 3e5, JNDB: -2}) || em[1].Label != "spur" {
 		t.Errorf("cw offset_hz/jn_db should become one tone: %+v", em[1])
 	}
 	if em[2].Shape != "triangle" || em[2].StartS != 0.002 || em[2].EndS != 0.008 {

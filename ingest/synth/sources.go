@@ -72,11 +72,16 @@ func (t *tone) add(dst []complex64, n0 int64) {
 // chirp adds a constant-envelope linear FM sweep between low and high Hz,
 // with period T: "up" and "down" are sawtooth sweeps, "triangle" goes up in
 // the first half-period and down in the second.
+//
+// A sweep that leaves the band (shaped) has its amplitude follow the
+// recorder's anti-alias response at its instantaneous frequency
+// (antiAliasGain), so that nothing of it aliases.
 type chirp struct {
 	amp, low, high, period, fs float64
 	shape                      string
 	cycles                     float64 // phase accumulator, cycles
 	on                         span
+	shaped                     bool
 }
 
 func (c *chirp) freq(t float64) float64 {
@@ -94,6 +99,10 @@ func (c *chirp) freq(t float64) float64 {
 }
 
 func (c *chirp) add(dst []complex64, n0 int64) {
+	if c.shaped {
+		c.addShaped(dst, n0)
+		return
+	}
 	d, lo := c.on.clip(dst, n0)
 	for i := range d {
 		t := float64(lo+int64(i)-c.on.lo) / c.fs
@@ -109,15 +118,71 @@ func (c *chirp) add(dst []complex64, n0 int64) {
 	}
 }
 
+// addShaped is add with the amplitude A·antiAliasGain(f(t)).
+func (c *chirp) addShaped(dst []complex64, n0 int64) {
+	d, lo := c.on.clip(dst, n0)
+	for i := range d {
+		t := float64(lo+int64(i)-c.on.lo) / c.fs
+		f0, f1 := c.freq(t), c.freq(t+1/c.fs)
+		if a := c.amp * antiAliasGain(f0, c.fs); a != 0 {
+			s, co := math.Sincos(2 * math.Pi * c.cycles)
+			d[i] += complex(float32(a*co), float32(a*s))
+		}
+		if math.Abs(f1-f0) > (c.high-c.low)/2 {
+			f1 = f0
+		}
+		c.cycles += (f0 + f1) / 2 / c.fs
+		c.cycles -= math.Floor(c.cycles)
+	}
+}
+
+// antiAliasFlat is where the modelled recorder's anti-alias filter starts
+// to roll off, as a fraction of fs/2: the outer 20 % of each half band
+// rolls off (REFERENCES §12.6 [M]: treat the outer 10–20 % as roll-off).
+const antiAliasFlat = 0.8
+
+// antiAliasGain is the amplitude response of the modelled anti-alias
+// filter at offset f: 1 up to antiAliasFlat·fs/2, a raised cosine
+// ½(1 + cos(π·x)) down to 0 at fs/2 (x from 0 to 1 across the roll-off),
+// 0 beyond. Applied to a sweep's instantaneous frequency, it stands for
+// the analog filter when the sweep dwells several samples in the roll-off;
+// a faster sweep is gated more abruptly than a real filter would do it.
+func antiAliasGain(f, fs float64) float64 {
+	a := math.Abs(f) / (fs / 2)
+	switch {
+	case a <= antiAliasFlat:
+		return 1
+	case a >= 1:
+		return 0
+	}
+	return 0.5 * (1 + math.Cos(math.Pi*(a-antiAliasFlat)/(1-antiAliasFlat)))
+}
+
+// sweepLeavesBand reports whether a sweep from lo to hi Hz reaches ±fs/2.
+func sweepLeavesBand(lo, hi, fs float64) bool { return lo <= -fs/2 || hi >= fs/2 }
+
+// sweepInBandFraction is the part of a linear sweep from lo to hi Hz
+// spent inside ±fs/2.
+func sweepInBandFraction(lo, hi, fs float64) float64 {
+	in := min(hi, fs/2) - max(lo, -fs/2)
+	return max(0, in) / (hi - lo)
+}
+
 // pulses adds a carrier at offset Hz keyed by a pulse train: one pulse (or
 // pair) every pri seconds, the first at first seconds after the emitter
 // starts. gaussian pulses are exp(−α t²/2) (peak 1); rect ones are 1 for
 // width seconds.
+//
+// A hopping train (channels non-empty, cycles per sample) sends pulse k on
+// channels[hop(k)], hop a hash of k and the emitter's key, each channel's
+// carrier phase continuous in the sample index.
 type pulses struct {
 	amp, cyclesPerSample, fs float64
 	gaussian                 bool
 	width, pri, pair, first  float64
 	on                       span
+	channels                 []float64
+	hopKey                   uint64
 }
 
 // gaussReach is how far a Gaussian pulse reaches: exp(−α t²/2) < 6·10⁻⁷
@@ -150,6 +215,10 @@ func (p *pulses) envelope(t float64) float64 {
 }
 
 func (p *pulses) add(dst []complex64, n0 int64) {
+	if len(p.channels) > 0 {
+		p.addHopping(dst, n0)
+		return
+	}
 	d, lo := p.on.clip(dst, n0)
 	for i := range d {
 		n := lo + int64(i)
@@ -160,6 +229,76 @@ func (p *pulses) add(dst []complex64, n0 int64) {
 		_, frac := math.Modf(p.cyclesPerSample * float64(n))
 		s, c := math.Sincos(2 * math.Pi * frac)
 		d[i] += complex(float32(p.amp*e*c), float32(p.amp*e*s))
+	}
+}
+
+// hop is the channel index of pulse k: SplitMix64 (Steele, Lea & Flood
+// 2014) of the key plus k, reduced modulo the number of channels (the
+// modulo bias is below 256/2⁶⁴).
+func (p *pulses) hop(k int64) int {
+	z := p.hopKey + uint64(k)*0x9e3779b97f4a7c15
+	z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9
+	z = (z ^ (z >> 27)) * 0x94d049bb133111eb
+	z ^= z >> 31
+	return int(z % uint64(len(p.channels)))
+}
+
+// addHopping adds a hopping train: every pulse (or pair) within reach of
+// each sample, on its own channel.
+func (p *pulses) addHopping(dst []complex64, n0 int64) {
+	d, lo := p.on.clip(dst, n0)
+	reach := 0.0
+	if p.gaussian {
+		reach = math.Abs(p.pair) + gaussReach
+	}
+	for i := range d {
+		n := lo + int64(i)
+		t := float64(n-p.on.lo) / p.fs
+		k0 := int64(math.Floor((t - p.first - reach) / p.pri))
+		k1 := int64(math.Floor((t - p.first + reach) / p.pri))
+		for k := k0; k <= k1; k++ {
+			t0 := p.first + float64(k)*p.pri
+			var e float64
+			if p.gaussian {
+				for _, c := range [2]float64{t0, t0 + p.pair} {
+					if dt := t - c; math.Abs(dt) < gaussReach {
+						e += math.Exp(-DMEAlpha * dt * dt / 2)
+					}
+				}
+			} else if t >= t0 && t < t0+p.width {
+				e = 1
+			}
+			if e == 0 {
+				continue
+			}
+			_, frac := math.Modf(p.channels[p.hop(k)] * float64(n))
+			s, c := math.Sincos(2 * math.Pi * frac)
+			d[i] += complex(float32(p.amp*e*c), float32(p.amp*e*s))
+		}
+	}
+}
+
+// keyed switches a source on and off: the source runs on (so its phase
+// and state go on), but only the samples inside the on spans are added.
+type keyed struct {
+	src     source
+	on      []span
+	scratch []complex64
+}
+
+func (k *keyed) add(dst []complex64, n0 int64) {
+	if cap(k.scratch) < len(dst) {
+		k.scratch = make([]complex64, len(dst))
+	}
+	s := k.scratch[:len(dst)]
+	clear(s)
+	k.src.add(s, n0)
+	for _, sp := range k.on {
+		d, lo := sp.clip(dst, n0)
+		src := s[lo-n0:]
+		for i := range d {
+			d[i] += src[i]
+		}
 	}
 }
 
