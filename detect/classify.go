@@ -543,6 +543,12 @@ func (e *trackedEvent) toEvent(c *ingest.Capture, name string, cfg Config, fs, c
 		ev.Params.SweepHighHz = ptr(s.HighHz)
 		ev.Params.SweepRateHzPerS = ptr(s.RateHzS)
 		ev.Params.Shape = s.Shape
+		span := s.SpanHz
+		if span <= 0 {
+			span = s.HighHz - s.LowHz
+		}
+		ev.Params.SweepSpanHz = ptr(span)
+		ev.Params.SpanExceedsBand = s.Beyond
 	case ClassPulsed:
 		h := float64(max(e.pulseHits, 1))
 		w := e.widthSum / h

@@ -104,6 +104,15 @@ type SweepParams struct {
 	RateHzS  float64
 	Shape    string
 	Coherent float64 // folded coherence, 0..1
+	// SpanHz is the whole span swept: HighHz − LowHz, or, when the sweep
+	// reaches beyond the capture's band (Beyond), rate × period (a
+	// sawtooth) or rate × period/2 (a triangle), LowHz..HighHz being the
+	// part of it seen in the band.
+	SpanHz float64
+	Beyond bool
+	// Power is the sweep's power while present (full scale 1) and Duty
+	// the share of its period it is present in the band, from the fold.
+	Power, Duty float64
 }
 
 // PulseParams describe a pulse train.

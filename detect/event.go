@@ -55,6 +55,12 @@ type Params struct {
 	SweepHighHz     *float64 `json:"sweep_high_hz,omitempty"`
 	SweepRateHzPerS *float64 `json:"sweep_rate_hz_per_s,omitempty"`
 	Shape           string   `json:"shape,omitempty"`
+	// SweepSpanHz is the whole span swept, and SpanExceedsBand says that
+	// it reaches beyond the capture's band: then sweep_low_hz and
+	// sweep_high_hz bound the part seen, and the span comes from the rate
+	// and the period.
+	SweepSpanHz     *float64 `json:"sweep_span_hz,omitempty"`
+	SpanExceedsBand bool     `json:"span_exceeds_band,omitempty"`
 	PulseWidthS     *float64 `json:"pulse_width_s,omitempty"`
 	PRIS            *float64 `json:"pri_s,omitempty"`
 	DutyCycle       *float64 `json:"duty_cycle,omitempty"`

@@ -184,7 +184,8 @@ func (t *tracker) explainBlock(fs []Finding, g *grid) {
 // other): a sweep's skirts and comb seen in a block before the sweep was
 // measurable, a tone's transients after it stopped.
 func (t *tracker) explainEvents() {
-	g := &grid{bin: t.fs / float64(t.cfg.FFTSize), fs: t.fs, frames: t.cfg.Frames, irr: t.cfg.ImageRejectionDB}
+	bin := t.fs / float64(t.cfg.FFTSize)
+	g := &grid{bin: bin, fs: t.fs, frames: t.cfg.Frames, irr: t.cfg.ImageRejectionDB}
 	slack := int64(t.blockLen)
 	kept := t.events[:0]
 	for _, e := range t.events {
@@ -216,11 +217,34 @@ func (t *tracker) explainEvents() {
 		switch {
 		case x.Class == "":
 		case e.class == ClassCW:
-			e.tones = x.Tones
+			e.retone(x.Tones, bin)
 			kept = append(kept, e)
 		default:
 			kept = append(kept, e)
 		}
 	}
 	t.events = kept
+}
+
+// retone keeps only tones (a subset of the event's) and scales the
+// event's band and J/N to them.
+func (e *trackedEvent) retone(tones []ToneParam, bin float64) {
+	if len(tones) == len(e.tones) {
+		return
+	}
+	var all, kept float64
+	for _, t := range e.tones {
+		all += math.Pow(10, t.JNDB/10)
+	}
+	lo, hi := math.Inf(1), math.Inf(-1)
+	for _, t := range tones {
+		kept += math.Pow(10, t.JNDB/10)
+		lo, hi = math.Min(lo, t.OffsetHz), math.Max(hi, t.OffsetHz)
+	}
+	if all > 0 {
+		e.jnSum *= kept / all
+		e.jnPeak *= kept / all
+	}
+	e.tones = append([]ToneParam(nil), tones...)
+	e.lo, e.hi = lo-bin, hi+bin
 }

@@ -232,6 +232,10 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 	default:
 		stats.Baseline = "learning"
 	}
+	if hasCenter {
+		inverted := stats.SpectrumInverted != nil && *stats.SpectrumInverted
+		tr.explainSatelliteLines(stats.Satellites, L1-center, inverted)
+	}
 	prev := p.state.episodes[key]
 	var stillOpen []openEpisode
 	episodes := map[*trackedEvent]string{}

@@ -49,6 +49,10 @@ type Pulse struct {
 	plan    *fft.Plan
 	spec    []complex64
 	lobes   []float32
+	// burstChirp's scratch.
+	slopes    []float64
+	chirpAt   []float64
+	upCenters []float64
 }
 
 // Name implements Detector.
@@ -214,6 +218,13 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 	w /= fs
 	if w <= 0 || peak <= 0 {
 		return out
+	}
+	if sw, ok := d.burstChirp(x, n, fs); ok {
+		// Each "pulse" is a sweep crossing the band: a sweep wider than
+		// the recorder's band, seen as bursts at its period.
+		return append(out, Finding{Detector: d.Name(), Class: ClassSwept, LowHz: sw.LowHz, HighHz: sw.HighHz,
+			OffsetHz: (sw.LowHz + sw.HighHz) / 2, JN: peak / ns, Sweep: &sw,
+			Start: in.F.Start + int64(d.starts[0]), End: in.F.Start + int64(d.ends[n-1])})
 	}
 	pp := &PulseParams{WidthS: w, Pulses: n}
 	groups := d.centers
@@ -530,4 +541,122 @@ func (c Finding) sidelobeJN(lo, hi, band, bin, fs float64) float64 {
 		r = max(r, c.sidelobes[i])
 	}
 	return 4 * float64(r) * math.Max(band, c.pulseRate) / fs
+}
+
+// burstChirp tells bursts of a sweep that crosses the band from pulses of
+// a carrier. In each run, the chirp rate is read from the second-order
+// phase difference (the second-order ambiguity function at lag 1, Peleg &
+// Porat 1991): with z[n] = x[n]·x*[n−1], whose angle is 2π·f(n)/fs, the
+// product y[n] = z[n]·z*[n−1] has the angle 2π·ḟ/fs², which stays small
+// (no wrapping, unlike f itself near ±fs/2), so the rate is
+// ḟ = fs²/2π·arg Σ y[n], the sum taken over the run. A burst of a sweep
+// wider than the band ramps across much of it (|ḟ|·duration above a
+// quarter of fs, the duration being the |z|-weighted spread of the run,
+// √12·σ, as of a uniform span) with the y[n] coherent (|Σy| ≥ ½ Σ|y|); a
+// pulse holds its carrier (ḟ ≈ 0). When most runs ramp, the emitter is a
+// sweep: all ramps of one sign, a sawtooth (up or down) whose period is
+// the runs' PRI; both signs, a triangle whose period is the PRI of the
+// runs of one sign. The rate is the median; the part of the sweep seen is
+// the range the ramps cover around their mean frequency; the whole span
+// follows from rate × period (a sawtooth) or rate × period/2 (a triangle).
+func (d *Pulse) burstChirp(x []complex64, n int, fs float64) (SweepParams, bool) {
+	d.slopes = d.slopes[:0]
+	d.chirpAt = d.chirpAt[:0]
+	lo, hi := math.Inf(1), math.Inf(-1)
+	for p := 0; p < n; p++ {
+		a, b := d.starts[p], d.ends[p]
+		if b-a < 4 {
+			continue
+		}
+		var zsum, ysum complex128
+		var zh [2][1]complex128
+		var ymag, sw, sx, sxx float64
+		prev := complex128(0)
+		half := (a + b) / 2
+		for i := max(a, 1); i < b; i++ {
+			z := complex128(x[i] * complex(real(x[i-1]), -imag(x[i-1])))
+			w := cmplx.Abs(z)
+			t := float64(i - a)
+			zsum += z
+			if i < half {
+				zh[0][0] += z
+			} else {
+				zh[1][0] += z
+			}
+			sw += w
+			sx += w * t
+			sxx += w * t * t
+			if prev != 0 {
+				y := z * cmplx.Conj(prev)
+				ysum += y
+				ymag += cmplx.Abs(y)
+			}
+			prev = z
+		}
+		if sw <= 0 || ymag <= 0 || cmplx.Abs(ysum) < 0.5*ymag {
+			continue
+		}
+		rate := cmplx.Phase(ysum) * fs * fs / (2 * math.Pi) // Hz/s
+		mean := sx / sw
+		dur := math.Sqrt(12*math.Max(sxx/sw-mean*mean, 0)) / fs
+		ext := rate * dur
+		// The mean frequencies of the run's two halves must move the same
+		// way by a good part of the band (the lag-1 estimate alone is too
+		// coarse on a long pulse: a small angle error is a large rate).
+		move := (cmplx.Phase(zh[1][0]) - cmplx.Phase(zh[0][0])) * fs / (2 * math.Pi)
+		if math.Abs(ext) < 0.25*fs || math.Abs(move) < 0.15*fs || move*ext < 0 {
+			continue
+		}
+		mid := cmplx.Phase(zsum) * fs / (2 * math.Pi)
+		lo, hi = math.Min(lo, mid-math.Abs(ext)/2), math.Max(hi, mid+math.Abs(ext)/2)
+		d.slopes = append(d.slopes, rate)
+		d.chirpAt = append(d.chirpAt, d.centers[p])
+	}
+	// Most runs must ramp.
+	if len(d.slopes) < 2 || 5*len(d.slopes) < 4*n {
+		return SweepParams{}, false
+	}
+	n = len(d.slopes)
+	up := 0
+	for _, v := range d.slopes {
+		if v > 0 {
+			up++
+		}
+	}
+	sw := SweepParams{Coherent: 1}
+	abs := d.slopes[:0:0]
+	for _, v := range d.slopes {
+		abs = append(abs, math.Abs(v))
+	}
+	rate := medianOf(abs)
+	switch {
+	case up == n || up == 0:
+		sw.Shape = "up"
+		sw.RateHzS = rate
+		if up == 0 {
+			sw.Shape, sw.RateHzS = "down", -rate
+		}
+		sw.PeriodS = pri(d.chirpAt) / fs
+		sw.SpanHz = rate * sw.PeriodS
+	case up >= n/3 && up <= n-n/3:
+		sw.Shape = "triangle"
+		sw.RateHzS = rate
+		ups := d.upCenters[:0]
+		for i, v := range d.slopes {
+			if v > 0 {
+				ups = append(ups, d.chirpAt[i])
+			}
+		}
+		d.upCenters = ups
+		sw.PeriodS = pri(ups) / fs
+		sw.SpanHz = rate * sw.PeriodS / 2
+	default:
+		return SweepParams{}, false
+	}
+	if !(sw.PeriodS > 0) {
+		return SweepParams{}, false
+	}
+	sw.LowHz, sw.HighHz = math.Max(lo, -fs/2), math.Min(hi, fs/2)
+	sw.Beyond = sw.SpanHz > 1.1*(sw.HighHz-sw.LowHz)
+	return sw, true
 }

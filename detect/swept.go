@@ -43,6 +43,10 @@ type Swept struct {
 	lp      []complex64
 	mag     []float64
 	prof    []float64
+
+	slowPlan *fft.Plan
+	slowBuf  []complex64
+	slowF    []float64
 }
 
 // Name implements Detector.
@@ -76,6 +80,9 @@ func (d *Swept) Detect(in *BlockInput, out []Finding) []Finding {
 	if !ok {
 		period, found := d.periodicity(in)
 		if !found {
+			period, found = d.slowPeriodicity(in)
+		}
+		if !found {
 			d.last = SweepParams{}
 			return out
 		}
@@ -96,16 +103,29 @@ func (d *Swept) Detect(in *BlockInput, out []Finding) []Finding {
 			nb++
 		}
 	}
-	if lo < 0 || nb < f.N/20 {
+	wide := sw.HighHz-sw.LowHz >= 0.3*f.Fs && sw.Coherent >= 2*minSweepCoherence
+	if (lo < 0 || nb < f.N/20) && !wide {
 		d.last = SweepParams{}
 		return out // a few tones, not a sweep
 	}
 	d.last = sw
 	// J/N against the thermal floor: what stands above the (possibly
-	// raised) floor plus the part of the rise inside the span.
+	// raised) floor plus the part of the rise inside the span. A sweep
+	// over most of the band hides the floor (a fitted passband or the
+	// level's lower quantile would sit on it): then the fold gives it, J
+	// the sweep's power while present (SweepParams.Power) and N what the
+	// block's power leaves, P − J·duty.
 	thermal := in.NoisePower / in.Rise
-	span := float64(hi-lo+1) / float64(f.N)
-	jn := (in.bandPower(lo, hi) + (in.Rise-1)*thermal*span) / thermal
+	var jn float64
+	if lo >= 0 {
+		span := float64(hi-lo+1) / float64(f.N)
+		jn = (in.bandPower(lo, hi) + (in.Rise-1)*thermal*span) / thermal
+	}
+	if wide && (!in.HasBaseline || sw.HighHz-sw.LowHz >= 0.7*f.Fs || sw.Beyond) {
+		if n := f.Power - sw.Power*sw.Duty; sw.Power > 0 && n > 0 {
+			jn = sw.Power / n
+		}
+	}
 	found := sw // escapes with the finding; sw itself stays on the stack
 	return append(out, Finding{Detector: d.Name(), Class: ClassSwept, LowHz: sw.LowHz, HighHz: sw.HighHz,
 		OffsetHz: (sw.LowHz + sw.HighHz) / 2, JN: jn, Sweep: &found})
@@ -211,6 +231,98 @@ func (d *Swept) periodicity(in *BlockInput) (float64, bool) {
 		delta = 0.5 * (a - c) / den
 	}
 	return (float64(at) + delta) / f.Fs, true
+}
+
+// slowPeriodicity looks for sweeps slower than periodicity's lags reach
+// (periods from about 50 µs to a quarter of the block): the lag product
+// summed over D samples, Z_m = Σ x[n]·x*[n−1], gives the mean
+// instantaneous frequency f_m = fs/2π·arg Z_m over each D-sample stretch
+// (the coherent sum keeps it clean at J/N of a few dB), and the
+// autocorrelation of f_m (mean removed, by FFT over the whole block,
+// normalized by the number of overlapping terms) peaks at the sweep
+// period. The same first-peak-after-a-dip rule as periodicity applies. It
+// runs only under a constant envelope.
+func (d *Swept) slowPeriodicity(in *BlockInput) (float64, bool) {
+	f := in.F
+	x := in.Samples
+	if !constantEnvelope(f, len(x)) {
+		return 0, false
+	}
+	// D: about 2 µs per point, at least 4 samples.
+	dec := max(4, int(math.Round(2e-6*f.Fs)))
+	m := len(x) / dec
+	if m < 64 {
+		return 0, false
+	}
+	size := 1
+	for size < 2*m {
+		size *= 2
+	}
+	if d.slowPlan == nil || d.slowPlan.Len() != size {
+		d.slowPlan = fft.NewPlan(size)
+		d.slowBuf = make([]complex64, size)
+		d.slowF = make([]float64, m)
+	}
+	if cap(d.slowF) < m {
+		d.slowF = make([]float64, m)
+	}
+	fm := d.slowF[:m]
+	var mean float64
+	for i := 0; i < m; i++ {
+		var z complex64
+		for n := max(i*dec, 1); n < (i+1)*dec; n++ {
+			a, b := x[n], x[n-1]
+			z += a * complex(real(b), -imag(b))
+		}
+		fm[i] = float64(fastAtan2(imag(z), real(z)))
+		mean += fm[i]
+	}
+	mean /= float64(m)
+	clear(d.slowBuf)
+	for i, v := range fm {
+		d.slowBuf[i] = complex(float32(v-mean), 0)
+	}
+	d.slowPlan.Forward(d.slowBuf, d.slowBuf)
+	for i, v := range d.slowBuf {
+		d.slowBuf[i] = complex(real(v)*real(v)+imag(v)*imag(v), 0)
+	}
+	d.slowPlan.Inverse(d.slowBuf, d.slowBuf)
+	r0 := float64(real(d.slowBuf[0])) / float64(m)
+	lo := max(4, int(math.Ceil(50e-6*f.Fs/float64(dec))))
+	hi := m / 4
+	if hi <= lo+2 || r0 <= 0 {
+		return 0, false
+	}
+	lag := func(t int) float64 { return float64(real(d.slowBuf[t])) / float64(m-t) }
+	best := 0.0
+	for t := lo; t <= hi; t++ {
+		best = math.Max(best, lag(t))
+	}
+	// A sweep's frequency profile correlates strongly with itself one
+	// period on: at least half of R(0), against the estimate's noise.
+	if best < 0.5*r0 || best < 6*r0/math.Sqrt(float64(m)) {
+		return 0, false
+	}
+	at, dipped := 0, false
+	for t := 1; t < hi; t++ {
+		v := lag(t)
+		if v < -0.2*best {
+			dipped = true
+		}
+		if t >= lo && dipped && v >= 0.85*best && v >= lag(t-1) && v >= lag(t+1) {
+			at = t
+			break
+		}
+	}
+	if at == 0 {
+		return 0, false
+	}
+	a, b, c := lag(at-1), lag(at), lag(at+1)
+	delta := 0.0
+	if den := a - 2*b + c; den < 0 {
+		delta = 0.5 * (a - c) / den
+	}
+	return (float64(at) + delta) * float64(dec) / f.Fs, true
 }
 
 // hannLagWeights returns c(τ) = Σ_m w[m]·w[m−τ] / Σ_m w[m]², m from τ to
@@ -323,14 +435,70 @@ func (d *Swept) foldFrom(x []complex64, fs, period float64, span int, step float
 		half = 3 // the previous level left the period within a step or two
 	}
 	coh := coherence(z, lp, mag[len(x)], fs, period)
-	prof := d.prof[:bins]
-	for b, v := range z {
-		prof[b] = fs / (2 * math.Pi) * cmplx.Phase(v)
+	// The profile, at most maxProfile points (a long period's bins are
+	// summed in groups first), each weighted by its |Z_b|: where the sweep
+	// is absent for part of the period (it leaves the band), the bins hold
+	// only noise, which must not vote on the shape.
+	groups := (bins + maxProfile - 1) / maxProfile
+	np := bins / groups
+	if cap(d.prof) < 2*np {
+		d.prof = make([]float64, 2*np)
 	}
-	sw, ok = sweepFromProfile(prof, period)
+	prof, wts := d.prof[:np], d.prof[np:2*np]
+	for b := 0; b < np; b++ {
+		var v complex128
+		for _, zz := range z[b*groups : (b+1)*groups] {
+			v += zz
+		}
+		prof[b] = fs / (2 * math.Pi) * cmplx.Phase(v)
+		wts[b] = cmplx.Abs(v)
+	}
+	sw, ok = sweepFromProfile(prof, wts, period)
 	sw.Coherent = coh
+	sw.SpanHz = sw.HighHz - sw.LowHz
+	// The sweep's power while present: a folded bin's lag products add
+	// coherently to J·count (the noise terms average out), so J is the
+	// mean |Z_b|/count over the bins where the sweep is (weight above a
+	// quarter of the most), and duty is their share of the period.
+	{
+		top := 0.0
+		for _, v := range z {
+			top = math.Max(top, cmplx.Abs(v))
+		}
+		var sum float64
+		var on int
+		for _, v := range z {
+			if a := cmplx.Abs(v); a >= top/4 {
+				sum += a
+				on++
+			}
+		}
+		if on > 0 {
+			sw.Power = sum / float64(on) / (float64(len(x)) / float64(bins))
+			sw.Duty = float64(on) / float64(bins)
+		}
+	}
+	if ok && sw.SpanHz > 0.95*fs {
+		// Wider than the band: say which part of it was seen, where the
+		// fold found the sweep (weight above a quarter of the most).
+		top := 0.0
+		for _, w := range wts {
+			top = math.Max(top, w)
+		}
+		lo, hi := math.Inf(1), math.Inf(-1)
+		for b, w := range wts {
+			if w >= top/4 {
+				lo, hi = math.Min(lo, prof[b]), math.Max(hi, prof[b])
+			}
+		}
+		sw.Beyond = true
+		sw.LowHz, sw.HighHz = math.Max(lo, -fs/2), math.Min(hi, fs/2)
+	}
 	return sw, ok, edge
 }
+
+// maxProfile bounds the points of the sweep profile analysed for shape.
+const maxProfile = 256
 
 // strongestSpan returns the start of the span-sample window with the
 // largest Σ|z|, from the running sums mag (mag[i] = Σ_{n<i} |z[n]|),
@@ -381,56 +549,61 @@ func coherence(z []complex128, lp []complex64, tot, fs, t float64) float64 {
 }
 
 // sweepFromProfile reads shape, rate and edges from one period's
-// instantaneous-frequency profile. The shape is the template (sawtooth ramp
-// or triangle) with the highest correlation coefficient over all circular
-// alignments, which stays reliable where the profile is too noisy for slope
-// signs; the sign of the ramp's correlation tells up from down. Rate and
-// edges come from a least-squares line through the aligned ramp (through
-// the rising half, for a triangle).
-func sweepFromProfile(prof []float64, period float64) (SweepParams, bool) {
+// instantaneous-frequency profile, each point weighted (w: the fold's
+// |Z_b|; a point where the sweep is absent carries little). The shape is
+// the template (sawtooth ramp or triangle) with the highest weighted
+// correlation coefficient over all circular alignments, which stays
+// reliable where the profile is too noisy for slope signs; the sign of the
+// ramp's correlation tells up from down. Rate and edges come from a
+// weighted least-squares line through the aligned ramp (through the
+// falling half, for a triangle). A sweep that leaves the band for part of
+// its period shows a ramp with a gap, still a ramp.
+func sweepFromProfile(prof, w []float64, period float64) (SweepParams, bool) {
 	n := len(prof)
-	var mean float64
-	for _, v := range prof {
-		mean += v
-	}
-	mean /= float64(n)
-	var ss float64
-	for _, v := range prof {
-		ss += (v - mean) * (v - mean)
-	}
-	if ss == 0 {
-		return SweepParams{}, false
-	}
-	// Templates, zero-mean: ramp r_i = i − (n−1)/2; triangle
-	// t_i = |i − (n−1)/2| − mean. Their norms do not depend on the
-	// alignment.
 	c := float64(n-1) / 2
-	var rr, tm, tt float64
-	for i := 0; i < n; i++ {
-		rr += (float64(i) - c) * (float64(i) - c)
-		tm += math.Abs(float64(i) - c)
-	}
-	tm /= float64(n)
-	for i := 0; i < n; i++ {
-		d := math.Abs(float64(i)-c) - tm
-		tt += d * d
-	}
 	bestRamp, rampAt, bestTri, triAt := 0.0, 0, 0.0, 0
 	for r := 0; r < n; r++ {
-		var sr, st float64
+		// Weighted Pearson correlation of the profile rotated by r with the
+		// ramp i − c and the V |i − c|.
+		var sw, sv, svv, sr, srr, srv, st, stt, stv float64
 		for i := 0; i < n; i++ {
-			v := prof[(r+i)%n] - mean
-			sr += v * (float64(i) - c)
-			st += v * (math.Abs(float64(i)-c) - tm)
+			j := r + i
+			if j >= n {
+				j -= n
+			}
+			wi, v := w[j], prof[j]
+			ri := float64(i) - c
+			ti := math.Abs(ri)
+			sw += wi
+			sv += wi * v
+			svv += wi * v * v
+			sr += wi * ri
+			srr += wi * ri * ri
+			srv += wi * ri * v
+			st += wi * ti
+			stt += wi * ti * ti
+			stv += wi * ti * v
 		}
-		if cr := sr / math.Sqrt(rr*ss); math.Abs(cr) > math.Abs(bestRamp) {
+		if sw <= 0 {
+			return SweepParams{}, false
+		}
+		vv := svv - sv*sv/sw
+		rr := srr - sr*sr/sw
+		tt := stt - st*st/sw
+		if vv <= 0 || rr <= 0 || tt <= 0 {
+			continue
+		}
+		if cr := (srv - sr*sv/sw) / math.Sqrt(rr*vv); math.Abs(cr) > math.Abs(bestRamp) {
 			bestRamp, rampAt = cr, r
 		}
-		if ct := st / math.Sqrt(tt*ss); ct > bestTri {
-			// A triangle template peaks at its ends: it is V-shaped, so its
-			// best alignment starts at the profile's maximum.
+		if ct := (stv - st*sv/sw) / math.Sqrt(tt*vv); ct > bestTri {
+			// A V template peaks at its ends: its best alignment starts
+			// at the profile's maximum.
 			bestTri, triAt = ct, r
 		}
+	}
+	if bestRamp == 0 && bestTri == 0 {
+		return SweepParams{}, false
 	}
 	dt := period / float64(n)
 	sw := SweepParams{PeriodS: period}
@@ -441,7 +614,7 @@ func sweepFromProfile(prof []float64, period float64) (SweepParams, bool) {
 		}
 		// Over one period the ramp covers the span once: span = |slope|·n,
 		// centred on the line's mid value.
-		slope, icpt := fitRamp(prof, rampAt, n, 0.1)
+		slope, icpt := fitRamp(prof, w, rampAt, n, 0.1)
 		sw.RateHzS = slope / dt
 		mid, span := icpt+slope*float64(n-1)/2, math.Abs(slope)*float64(n)
 		sw.LowHz, sw.HighHz = mid-span/2, mid+span/2
@@ -450,7 +623,7 @@ func sweepFromProfile(prof []float64, period float64) (SweepParams, bool) {
 		// The V template aligned at triAt falls over its first half: fit
 		// the falling half, the sweep's down leg.
 		half := n / 2
-		slope, icpt := fitRamp(prof, triAt, half, 0.1)
+		slope, icpt := fitRamp(prof, w, triAt, half, 0.1)
 		sw.RateHzS = math.Abs(slope) / dt
 		mid, span := icpt+slope*float64(half-1)/2, math.Abs(slope)*float64(n)/2
 		sw.LowHz, sw.HighHz = mid-span/2, mid+span/2
@@ -458,21 +631,22 @@ func sweepFromProfile(prof []float64, period float64) (SweepParams, bool) {
 	return sw, sw.HighHz > sw.LowHz
 }
 
-// fitRamp fits a least-squares line to length samples of prof starting at
-// start (circularly), ignoring trim of each end, and returns the slope per
-// bin and the line's value at the ramp's start.
-func fitRamp(prof []float64, start, length int, trim float64) (slope, icpt float64) {
+// fitRamp fits a weighted least-squares line to length samples of prof
+// starting at start (circularly), ignoring trim of each end, and returns
+// the slope per bin and the line's value at the ramp's start.
+func fitRamp(prof, w []float64, start, length int, trim float64) (slope, icpt float64) {
 	n := len(prof)
 	a, b := int(trim*float64(length)), int((1-trim)*float64(length))
 	var sx, sy, sxx, sxy, m float64
 	for i := a; i < b; i++ {
 		x := float64(i)
-		y := prof[(start+i)%n]
-		sx += x
-		sy += y
-		sxx += x * x
-		sxy += x * y
-		m++
+		j := (start + i) % n
+		y, wi := prof[j], w[j]
+		sx += wi * x
+		sy += wi * y
+		sxx += wi * x * x
+		sxy += wi * x * y
+		m += wi
 	}
 	den := m*sxx - sx*sx
 	if den == 0 {
