@@ -29,8 +29,8 @@ const (
 //   - Doppler f_D = −ρ̇·L1/c, ρ̇ the range rate (REFERENCES §4: at most
 //     929 m/s, ±4.9 kHz), redrawn until |f_D| ≤ 4.5 kHz;
 //   - Doppler rate −ρ̈·L1/c with ρ̈ = (|v|² + a·(r_s − r_u) − ρ̇²)/ρ and
-//     a = −GM·r_s/|r_s|³: between about −0.95 Hz/s (overhead) and +0.05 Hz/s,
-//     since range accelerates away through a pass;
+//     a = −GM·r_s/|r_s|³: from −0.937 Hz/s (overhead) to about 0 (at the
+//     horizon), since the range accelerates away all through a pass;
 //   - C/N0 = 35 + 18·sin(elevation) ± 1 dB (uniform), at most 53 dB-Hz
 //     (open sky 35–50 dB-Hz is typical, REFERENCES §8 [M]; the slope with
 //     elevation is common practice);

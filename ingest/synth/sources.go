@@ -295,6 +295,9 @@ func (k *keyed) add(dst []complex64, n0 int64) {
 	k.src.add(s, n0)
 	for _, sp := range k.on {
 		d, lo := sp.clip(dst, n0)
+		if d == nil {
+			continue
+		}
 		src := s[lo-n0:]
 		for i := range d {
 			d[i] += src[i]

@@ -8,18 +8,38 @@ import (
 )
 
 // response is what the passband does to power at offset f (Hz): |H(f)|²,
-// and to white noise: Σ|h|² (both 1 without a passband).
+// and to white noise: Σ|h|² (both 1 without a passband). |H|² is
+// tabulated on 4097 points across the band and interpolated linearly
+// (the response varies on a scale of taps/16 points at most).
 type response struct {
-	pb *passbandFIR
-	fs float64
+	pb    *passbandFIR
+	fs    float64
+	table []float64
+}
+
+const responsePoints = 4096
+
+func newResponse(pb *passbandFIR, fs float64) response {
+	r := response{pb: pb, fs: fs}
+	if pb != nil {
+		r.table = make([]float64, responsePoints+1)
+		for k := range r.table {
+			a := pb.amplitude(float64(k)/responsePoints - 0.5)
+			r.table[k] = a * a
+		}
+	}
+	return r
 }
 
 func (r response) power(f float64) float64 {
 	if r.pb == nil {
 		return 1
 	}
-	a := r.pb.amplitude(f / r.fs)
-	return a * a
+	x := (f/r.fs + 0.5) * responsePoints
+	x = max(0, min(responsePoints, x))
+	k := min(int(x), responsePoints-1)
+	w := x - float64(k)
+	return r.table[k]*(1-w) + r.table[k+1]*w
 }
 
 func (r response) noise() float64 {
@@ -56,7 +76,7 @@ func (r response) weighted(f0 float64, shape func(f float64) float64) float64 {
 // J/N after the passband is the emitter's power through |H|² over the
 // thermal noise's, σ²·Σ|h|² (DESIGN: both in the capture bandwidth).
 func apparentEmitter(te *TruthEmitter, fs float64, ck clock, inv float64, pb *passbandFIR) {
-	r := response{pb: pb, fs: fs}
+	r := newResponse(pb, fs)
 	g := r.noise()
 	j := math.Pow(10, te.JNDB/10)
 	ptr := func(v float64) *float64 { return &v }
@@ -72,20 +92,25 @@ func apparentEmitter(te *TruthEmitter, fs float64, ck clock, inv float64, pb *pa
 		}
 	case KindSwept:
 		lo, hi := ck.offset(te.LowHz), ck.offset(te.HighHz)
+		// The mean over the sweep's own samples (up to 2²⁰ of them): a
+		// sweep that crosses the band in a few samples on a grid that
+		// repeats every period is not its integral.
 		c := chirp{low: lo, high: hi, period: te.PeriodS, shape: te.Shape}
 		shaped := sweepLeavesBand(lo, hi, fs)
-		const k = 8192
+		k := max(1, min(te.EndSample-te.StartSample, 1<<20))
 		var sum float64
-		for i := 0; i < k; i++ {
-			f := c.freq((float64(i) + 0.5) / k * te.PeriodS)
-			w := r.power(f)
+		for i := int64(0); i < k; i++ {
+			f := c.freq(float64(i) / fs)
+			w := 1.0
 			if shaped {
 				a := antiAliasGain(f, fs)
-				w *= a * a
+				w = a * a
 			}
-			sum += w
+			if w != 0 {
+				sum += w * r.power(f)
+			}
 		}
-		jn = j * sum / k / g
+		jn = j * sum / float64(k) / g
 		shape := te.Shape
 		if inv < 0 {
 			lo, hi = -hi, -lo
