@@ -21,8 +21,15 @@ type Found struct {
 // captures in it, sorted by path. A SigMF pair is reported once, by its
 // metadata file; a data file whose metadata is missing is reported with a
 // problem. Symbolic links are not followed out of the folder given.
-// Truth sidecars and other files are ignored.
-func Find(paths ...string) ([]Found, error) {
+// Truth sidecars and other files are ignored. Raw files are those
+// IsCaptureFile names; FindRaw takes raw settings into account.
+func Find(paths ...string) ([]Found, error) { return FindRaw(RawSettings{}, paths...) }
+
+// FindRaw is Find with the raw-file settings of the input: in folders, the
+// files raw.IsCapture takes (raw.Pattern adds names); a file named on its
+// own is a raw capture whatever its name when raw.Format is given (a
+// sidecar never is).
+func FindRaw(raw RawSettings, paths ...string) ([]Found, error) {
 	var out []Found
 	seen := map[string]bool{}
 	addFile := func(p string) {
@@ -39,7 +46,7 @@ func Find(paths ...string) ([]Found, error) {
 				out = append(out, Found{Path: p, Problem: captureErr(p, "SigMF data file without its metadata %s", filepath.Base(meta))})
 			}
 			return
-		case IsCaptureFile(p):
+		case raw.IsCapture(p):
 		default:
 			return
 		}
@@ -54,8 +61,12 @@ func Find(paths ...string) ([]Found, error) {
 			return nil, err
 		}
 		if !st.IsDir() {
-			if !IsCaptureFile(root) {
-				out = append(out, Found{Path: root, Problem: captureErr(root, "not a capture: extension %q is neither SigMF nor a sample format", filepath.Ext(root))})
+			switch {
+			case IsSidecar(root):
+				out = append(out, Found{Path: root, Problem: captureErr(root, "not a capture: a %s file travels beside captures and holds no samples", filepath.Ext(root))})
+				continue
+			case !raw.IsCapture(root) && raw.Format == FormatUnknown:
+				out = append(out, Found{Path: root, Problem: captureErr(root, "not a capture: the ending %q is neither SigMF nor a sample format; give --format (and --rate) to read it as raw samples", filepath.Ext(root))})
 				continue
 			}
 			if strings.ToLower(filepath.Ext(root)) == DataExt {
@@ -82,7 +93,7 @@ func Find(paths ...string) ([]Found, error) {
 				return nil
 			}
 			if d.Type()&fs.ModeSymlink != 0 {
-				if !IsCaptureFile(p) {
+				if !raw.IsCapture(p) {
 					return nil
 				}
 				if problem := checkLink(root, p); problem != nil {
@@ -90,7 +101,7 @@ func Find(paths ...string) ([]Found, error) {
 					return nil
 				}
 			} else if !d.Type().IsRegular() {
-				if IsCaptureFile(p) {
+				if raw.IsCapture(p) {
 					out = append(out, Found{Path: p, Problem: captureErr(p, "not a regular file (%s)", d.Type())})
 				}
 				return nil

@@ -60,11 +60,17 @@ func FuzzDecode(f *testing.F) {
 	f.Add(uint8(CI16LE), []byte{0x00, 0x40, 0x00, 0xc0})
 	f.Add(uint8(CF32BE), []byte{0x7f, 0xc0, 0, 0, 0x3f, 0x80, 0, 0})
 	f.Add(uint8(CU8), []byte{0, 255, 127, 128})
+	f.Add(uint8(RI8), []byte{0x80, 0x7f, 3, 0xfd})
+	f.Add(uint8(RF64BE), []byte{0x7f, 0xf8, 0, 0, 0, 0, 0, 0})
 	f.Fuzz(func(t *testing.T, fi uint8, data []byte) {
 		fm := pickFormat(fi)
 		sb := fm.SampleBytes()
 		n := len(data) / sb
 		raw := data[:n*sb]
+		if fm.IsReal() {
+			fuzzDecodeReal(t, fm, raw, n)
+			return
+		}
 		dst := make([]complex64, n)
 		clipped, bad := fm.Decode(dst, raw)
 		if clipped < 0 || bad < 0 || clipped+bad > n {
@@ -104,30 +110,96 @@ func FuzzDecode(f *testing.F) {
 	})
 }
 
-// FuzzReader streams arbitrary bytes through NewReader with an unknown or
-// a given total. It must not panic, every error must be a *CaptureError,
-// blocks must be contiguous, and a clean end means all whole samples were
-// delivered and hashed (SHA-256, FIPS 180-4, via crypto/sha256).
+// fuzzDecodeReal checks a real format: DecodeReal must give the complex
+// twin's values for whole pairs (the Reader decodes that way), finite
+// values, integers within full scale, and the integer formats of up to 16
+// bits and rf32 must re-encode to the same bytes.
+func fuzzDecodeReal(t *testing.T, fm Format, raw []byte, n int) {
+	dst := make([]float32, n)
+	clipped, bad := fm.DecodeReal(dst, raw)
+	if clipped < 0 || bad < 0 || clipped+bad > n {
+		t.Fatalf("%s: clipped %d bad %d of %d", fm, clipped, bad, n)
+	}
+	if bad == 0 {
+		pairs := make([]complex64, n/2)
+		fm.complexTwin().Decode(pairs, raw[:n/2*2*fm.SampleBytes()])
+		for i, p := range pairs {
+			if dst[2*i] != real(p) || dst[2*i+1] != imag(p) {
+				t.Fatalf("%s: values %d, %d differ from the twin %s's %v", fm, 2*i, 2*i+1, fm.complexTwin(), p)
+			}
+		}
+	}
+	for i, v := range dst {
+		if v != v || math.IsInf(float64(v), 0) || (!fm.IsFloat() && math.Abs(float64(v)) > 1.0001) {
+			t.Fatalf("%s: value %d = %g", fm, i, v)
+		}
+	}
+	if fm == RI8 || fm == RU8 || fm == RI16LE || fm == RI16BE || fm == RU16LE || fm == RU16BE || ((fm == RF32LE || fm == RF32BE) && bad == 0) {
+		back := make([]byte, len(raw))
+		fm.EncodeReal(back, dst)
+		if !bytes.Equal(back, raw) {
+			t.Fatalf("%s: %x decodes and re-encodes to %x", fm, raw, back)
+		}
+	}
+}
+
+// FuzzReader streams arbitrary bytes through NewReader (complex formats)
+// or NewIFReader (real ones, at an IF of fs/4 or through the NCO, either
+// LO side) with an unknown or a given total. It must not panic, every
+// error must be a *CaptureError, blocks must be contiguous, and a clean
+// end means all whole samples were delivered (half the real ones, rounded
+// down) and every byte hashed (SHA-256, FIPS 180-4, via crypto/sha256).
 func FuzzReader(f *testing.F) {
 	f.Add(uint8(CI16LE), uint16(3), int16(-1), []byte("0123456789abcdef0123"))
 	f.Add(uint8(CF32LE), uint16(1), int16(2), []byte{0, 0, 0x80, 0x7f, 0, 0, 0, 0})
+	f.Add(uint8(RI8), uint16(2), int16(7), []byte("0123456"))
+	f.Add(uint8(RF32BE), uint16(70), int16(-3), []byte("0123456789abcdef0123"))
 	f.Fuzz(func(t *testing.T, fi uint8, block uint16, total int16, data []byte) {
 		fm := pickFormat(fi)
 		sb := fm.SampleBytes()
 		bs := 1 + int(block)%512
-		r := NewReader(bytes.NewReader(data), "fuzz", fm, bs, int64(total))
+		var r *Reader
+		out := int64(total) // complex samples expected at a clean end
+		if fm.IsReal() {
+			conv := IFConversion{1e6, LowSide}
+			if block&512 != 0 {
+				conv = IFConversion{0.93e6, HighSide}
+			}
+			var err error
+			r, err = NewIFReader(bytes.NewReader(data), "fuzz", fm, bs, int64(total), 4e6, conv)
+			if err != nil {
+				t.Fatal(err)
+			}
+			out = int64(total) / 2
+		} else {
+			r = NewReader(bytes.NewReader(data), "fuzz", fm, bs, int64(total))
+		}
+		defer r.Close()
 		var next int64
 		for range len(data) + 2 {
 			b, err := r.Next()
 			if err == io.EOF {
-				if total >= 0 && next != int64(total) {
-					t.Fatalf("clean end after %d samples, total was %d", next, total)
+				if fm.IsReal() && total < 0 && len(data)%sb == 0 {
+					out = int64(len(data)/sb) / 2
 				}
-				if total < 0 && (len(data)%sb != 0 || next != int64(len(data)/sb)) {
+				if total >= 0 && next != out {
+					t.Fatalf("clean end after %d samples, want %d (total %d)", next, out, total)
+				}
+				if total < 0 && !fm.IsReal() && (len(data)%sb != 0 || next != int64(len(data)/sb)) {
 					t.Fatalf("clean end after %d samples of %d bytes (%d per sample)", next, len(data), sb)
+				}
+				if total < 0 && fm.IsReal() && (len(data)%sb != 0 || next != out) {
+					t.Fatalf("clean end after %d samples of %d bytes (%d per real sample)", next, len(data), sb)
 				}
 				if total >= 0 && int64(len(data)) != int64(total)*int64(sb) {
 					t.Fatalf("clean end with %d bytes, want exactly %d", len(data), int(total)*sb)
+				}
+				if fm.IsReal() {
+					sum := sha256.Sum256(data)
+					if r.SHA256() != hex.EncodeToString(sum[:]) {
+						t.Fatalf("SHA256 %s, want %x", r.SHA256(), sum)
+					}
+					return
 				}
 				sum := sha256.Sum256(data[:next*int64(sb)])
 				if r.SHA256() != hex.EncodeToString(sum[:]) {
@@ -151,12 +223,12 @@ func FuzzReader(f *testing.F) {
 	})
 }
 
-// pickFormat maps a fuzz byte to a format: 1..12 are the Format values
-// themselves, anything else wraps round the list.
+// pickFormat maps a fuzz byte to a format: valid Format values are
+// themselves, anything else wraps round the list of complex and real ones.
 func pickFormat(fi uint8) Format {
 	if f := Format(fi); f.Valid() {
 		return f
 	}
-	formats := Formats()
+	formats := append(Formats(), RealFormats()...)
 	return formats[int(fi)%len(formats)]
 }

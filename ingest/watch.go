@@ -36,9 +36,13 @@ const (
 
 // WatchInput is one watched folder and what its raw files cannot say.
 type WatchInput struct {
-	Name string      // the input's name, carried into every Work item
-	Root string      // the folder, watched recursively
-	Raw  RawSettings // format, rate and centre of raw files
+	Name string // the input's name, carried into every Work item
+	Root string // the folder, watched recursively
+	// Raw are the format, rate, centre, IF and LO side of raw files, and
+	// their name pattern: a file matching it (or with a format ending, or
+	// a common raw-data ending) is a capture, and one that cannot be read
+	// is handed out with its problem, never passed over.
+	Raw RawSettings
 	// Settle is how long a file's size and modification time must stay
 	// unchanged before it counts as complete when no close-after-write or
 	// rename event says so. 0: DefaultSettle.
@@ -514,7 +518,7 @@ func (w *Watcher) handle(ev fsEvent) {
 		}
 		return
 	}
-	if !IsCaptureFile(ev.path) {
+	if !in.Raw.IsCapture(ev.path) {
 		return
 	}
 	c := w.candidateFor(in, ev.path)
@@ -711,7 +715,7 @@ func (w *Watcher) addTree(in *watchInput, dir string) {
 // renamed into the watched tree, which puts its files in place as a
 // rename of each would.
 func (w *Watcher) scan(in *watchInput, dir string, prune, placed bool) {
-	found, err := Find(dir)
+	found, err := FindRaw(in.Raw, dir)
 	if err != nil {
 		w.log.Error("watcher: cannot scan folder", "input", in.Name, "dir", dir, "err", err)
 		return

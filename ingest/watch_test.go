@@ -541,3 +541,59 @@ func BenchmarkWatchRescan(b *testing.B) {
 		b.Fatalf("%d ready after rescans, want still 2000", len(w.ready))
 	}
 }
+
+// TestWatchRawFiles checks DESIGN.md "Inputs" for raw files: any name is
+// a raw capture once the input gives a format and a pattern matching it;
+// the common raw endings (.bin ...) are captures even without one, and a
+// capture that cannot be read (no format, no rate) is handed out with its
+// problem, naming the setting, not passed over; sidecars and other files
+// are never taken.
+func TestWatchRawFiles(t *testing.T) {
+	t.Parallel()
+	var wg sync.WaitGroup
+	for _, m := range watchModes {
+		wg.Go(func() {
+			t.Run(m.notify, func(t *testing.T) {
+				rootA, rootB, rootC := t.TempDir(), t.TempDir(), t.TempDir()
+				h := startWatcher(t, WatchConfig{Notify: m.notify, RescanInterval: m.rescan, Inputs: []WatchInput{
+					{Name: "a", Root: rootA, Settle: m.settle, Raw: RawSettings{Format: CI8, SampleRate: 1e6, Pattern: "cap_*"}},
+					{Name: "b", Root: rootB, Settle: m.settle, Raw: RawSettings{Format: CI8}},
+					{Name: "c", Root: rootC, Settle: m.settle, Raw: RawSettings{SampleRate: 1e6}},
+				}})
+				rng := rand.New(rand.NewPCG(51, 52))
+				writeFile(t, filepath.Join(rootA, "cap_0001"), ci8Bytes(rng, 7))
+				writeFile(t, filepath.Join(rootA, "x.bin"), ci8Bytes(rng, 8))
+				writeFile(t, filepath.Join(rootA, "cap_0001.truth.json"), []byte("{}"))
+				writeFile(t, filepath.Join(rootA, "cap_notes.txt"), []byte("notes"))
+				writeFile(t, filepath.Join(rootA, "other"), ci8Bytes(rng, 3))
+				writeFile(t, filepath.Join(rootB, "y.dat"), ci8Bytes(rng, 4))
+				writeFile(t, filepath.Join(rootC, "z.bin"), ci8Bytes(rng, 4))
+				got := map[string]Work{}
+				for _, wk := range h.take(4, 10*time.Second) {
+					got[wk.Input+"/"+wk.Name] = wk
+				}
+				for name, n := range map[string]int64{"a/cap_0001": 7, "a/x.bin": 8} {
+					if wk, ok := got[name]; !ok || wk.Problem != nil || wk.Capture.Samples != n || wk.Capture.Format != CI8 {
+						t.Errorf("%s: %+v", name, wk)
+					}
+				}
+				for name, want := range map[string][]string{"b/y.dat": {"y.dat", "no sample rate", "sample_rate"},
+					"c/z.bin": {"z.bin", "no sample format", "format"}} {
+					wk, ok := got[name]
+					if !ok || wk.Problem == nil {
+						t.Errorf("%s: handed out %v without its problem", name, ok)
+						continue
+					}
+					for _, w := range want {
+						if !strings.Contains(wk.Problem.Error(), w) {
+							t.Errorf("%s: problem %q does not say %q", name, wk.Problem, w)
+						}
+					}
+				}
+				h.w.Rescan()
+				h.none(500 * time.Millisecond)
+			})
+		})
+	}
+	wg.Wait()
+}

@@ -4,6 +4,7 @@ import (
 	"bufio"
 	"crypto/sha512"
 	"encoding/hex"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"hash"
@@ -12,10 +13,11 @@ import (
 	"time"
 )
 
-// Writer streams complex samples into a capture file: a raw file, or the
-// data file of a SigMF pair whose metadata (with core:sha512) is written and
-// renamed into place only on Close, after the data is synced, so a watcher
-// that waits for the metadata never sees a half-written recording.
+// Writer streams samples into a capture file: a raw file, or the data file
+// of a SigMF pair whose metadata (with core:sha512) is written and renamed
+// into place only on Close, after the data is synced, so a watcher that
+// waits for the metadata never sees a half-written recording. Complex
+// formats take Write, real ones WriteReal.
 type Writer struct {
 	f       *os.File
 	bw      *bufio.Writer
@@ -40,6 +42,11 @@ type SigMFHeader struct {
 	Author      string
 	HW          string
 	Annotations []Annotation
+	// IF is required for a real format: written as quietband:if_hz and
+	// quietband:lo_side, with the namespace declared in core:extensions
+	// (see KeyIFHz). SampleRate is then the file's rate and CenterHz the
+	// RF of the IF band's centre.
+	IF IFConversion
 }
 
 // CreateSigMF starts a SigMF recording at base (base.sigmf-data now,
@@ -51,6 +58,16 @@ func CreateSigMF(base string, h SigMFHeader) (*Writer, error) {
 	if !(h.SampleRate > 0 && h.SampleRate <= MaxSampleRate) {
 		return nil, fmt.Errorf("%s%s: sample rate %g out of range", base, MetaExt, h.SampleRate)
 	}
+	var extra map[string]json.RawMessage
+	if h.Format.IsReal() {
+		if err := h.IF.Check(h.SampleRate); err != nil {
+			return nil, fmt.Errorf("%s%s: %s: %w", base, MetaExt, h.Format, err)
+		}
+		extra = map[string]json.RawMessage{}
+		put(extra, KeyIFHz, h.IF.IFHz)
+		put(extra, KeyLOSide, h.IF.Side.String())
+		put(extra, "core:extensions", []map[string]any{{"name": ExtensionName, "version": ExtensionVersion, "optional": true}})
+	}
 	w, err := newWriter(base+DataExt, h.Format)
 	if err != nil {
 		return nil, err
@@ -58,7 +75,7 @@ func CreateSigMF(base string, h SigMFHeader) (*Writer, error) {
 	seg := CaptureSegment{SampleStart: 0, Frequency: h.CenterHz, HasFrequency: h.HasCenter, Datetime: h.Start}
 	w.meta = &Meta{
 		Global: Global{Datatype: h.Format.String(), Version: SigMFVersion, SampleRate: h.SampleRate,
-			Description: h.Description, Author: h.Author, HW: h.HW, Recorder: "quietband"},
+			Description: h.Description, Author: h.Author, HW: h.HW, Recorder: "quietband", Extra: extra},
 		Captures:    []CaptureSegment{seg},
 		Annotations: h.Annotations,
 	}
@@ -82,11 +99,14 @@ func newWriter(path string, f Format) (*Writer, error) {
 	return &Writer{f: file, bw: bufio.NewWriterSize(file, 1<<16), format: f, sha: sha512.New()}, nil
 }
 
-// Write encodes and appends samples. Values beyond full scale are saturated
-// and counted (Clipped), never wrapped.
+// Write encodes and appends complex samples. Values beyond full scale are
+// saturated and counted (Clipped), never wrapped.
 func (w *Writer) Write(samples []complex64) error {
 	if w.closed {
 		return errors.New("ingest: write to closed Writer")
+	}
+	if w.format.IsReal() {
+		return fmt.Errorf("ingest: Write of complex samples to a %s file (use WriteReal)", w.format)
 	}
 	need := len(samples) * w.format.SampleBytes()
 	if cap(w.buf) < need {
@@ -100,7 +120,29 @@ func (w *Writer) Write(samples []complex64) error {
 	return err
 }
 
-// Samples is the number of samples written so far.
+// WriteReal encodes and appends real samples to a file of a real format,
+// as Write does for complex ones.
+func (w *Writer) WriteReal(values []float32) error {
+	if w.closed {
+		return errors.New("ingest: write to closed Writer")
+	}
+	if !w.format.IsReal() {
+		return fmt.Errorf("ingest: WriteReal to a %s file (use Write)", w.format)
+	}
+	need := len(values) * w.format.SampleBytes()
+	if cap(w.buf) < need {
+		w.buf = make([]byte, need)
+	}
+	b := w.buf[:need]
+	w.clipped += int64(w.format.EncodeReal(b, values))
+	w.sha.Write(b)
+	w.samples += int64(len(values))
+	_, err := w.bw.Write(b)
+	return err
+}
+
+// Samples is the number of samples written so far (real values for a real
+// format).
 func (w *Writer) Samples() int64 { return w.samples }
 
 // Clipped is the number of samples saturated so far.
