@@ -5,8 +5,10 @@ import (
 	"sort"
 )
 
-// The built-in scenarios are invented: the site, the vehicles and the
-// emitters are ours, made up to exercise every detector.
+// The built-in scenarios are invented: the sites, the vehicles and the
+// emitters are ours, made up to exercise every detector. Sites: Kestrel
+// Quay (an ideal front end), Wrenfold Mast, Saltmire Beacon, Tarnhollow
+// Ridge, Brackenlow Yard and Fellgate Hut (front ends of their own).
 
 // siteSky is the sky over the invented Kestrel Quay pilot station: eight
 // satellites with fixed Doppler and code phase.
@@ -80,6 +82,85 @@ var builtins = map[string]func() Scenario{
 			Capture{Name: "quay-open"}, Capture{Name: "quay-blocked", AttenuationDB: 8})
 	},
 	"demo": Demo,
+
+	// Sites with a real front end, each exercising the front-end model.
+	"two-bit-spur": func() Scenario {
+		return Scenario{Name: "two-bit-spur", Site: "wrenfold-mast", Format: "ci8", SampleRate: 4.092e6, CenterHz: 1575.42e6,
+			NoiseDBFS: -30, Seed: 31,
+			Description: "a 2-bit front end (levels ±1/±3, threshold at σ, no AGC) with a clock spur and a warming amplifier; a CW jammer in the third capture",
+			Sky:         RandomSky(9, 21),
+			FrontEnd: &FrontEnd{
+				Passband:              &Passband{RolloffDB: 15, RolloffFraction: 0.2},
+				Quantization:          &Quantization{Bits: 2, ThresholdSigma: 1},
+				Spurs:                 []Tone{{OffsetHz: 1.1e6, JNDB: 0}},
+				GainDriftDBPerCapture: ref(0.3),
+				ClockPPM:              ref(1.2),
+			},
+			Captures: []Capture{{Name: "wrenfold-1"}, {Name: "wrenfold-2", OffsetS: 60},
+				{Name: "wrenfold-3", OffsetS: 120, Emitters: []Emitter{{Kind: KindCW, Label: "carrier jammer",
+					StartS: 0.08, OffsetHz: -600e3, JNDB: 15}}},
+				{Name: "wrenfold-4", OffsetS: 180}}}
+	},
+	"beacon-first": func() Scenario {
+		dme := Emitter{Kind: KindPulsed, Label: "DME-like beacon", Pulse: "gaussian_pair", JNDB: 18, PRIS: 370e-6, OffsetHz: 550e3}
+		return Scenario{Name: "beacon-first", Site: "saltmire-beacon", Format: "ci16_le", SampleRate: 8e6, CenterHz: 1176.45e6,
+			NoiseDBFS: -30, Seed: 32,
+			Description: "an L5-band site whose very first capture already has a DME-like beacon (pairs 12 µs apart, 550 kHz up); a hopping data link keys up in bursts; no satellites are synthesized at L5",
+			FrontEnd: &FrontEnd{
+				Passband: &Passband{TiltDB: -2, RolloffDB: 20, RolloffFraction: 0.15},
+				DCOffset: &IQValue{I: 0.002, Q: -0.001},
+				ClockPPM: ref(0.5),
+			},
+			Captures: []Capture{{Name: "saltmire-1", Emitters: []Emitter{dme}},
+				{Name: "saltmire-2", OffsetS: 60, Emitters: []Emitter{dme, {Kind: KindPulsed, Label: "hopping link", Pulse: "rect",
+					WidthS: 6.4e-6, PRIS: 26e-6, JNDB: 12, ChannelsHz: []float64{-3.45e6, -0.45e6, 2.55e6},
+					On: [][]float64{{0.02, 0.05}, {0.11, 0.13}, {0.2, 0.24}}}}},
+				{Name: "saltmire-3", OffsetS: 120, Emitters: []Emitter{dme}}}}
+	},
+	"strong-sky": func() Scenario {
+		return Scenario{Name: "strong-sky", Site: "tarnhollow-ridge", Format: "ci16_le", SampleRate: 4e6, CenterHz: 1575.42e6,
+			NoiseDBFS: -30, Seed: 33,
+			Description: "12 satellites up to 53 dB-Hz whose Dopplers drift from capture to capture, through a tilted, rippled passband and a 0.8 ppm clock; a noise jammer in the last capture",
+			Sky:         RandomSky(12, 7),
+			FrontEnd: &FrontEnd{
+				Passband: &Passband{TiltDB: 4, RippleDB: 0.4, RippleCycles: 3, RolloffDB: 18, RolloffFraction: 0.15},
+				ClockPPM: ref(0.8),
+			},
+			Captures: []Capture{{Name: "tarnhollow-1"}, {Name: "tarnhollow-2", OffsetS: 60}, {Name: "tarnhollow-3", OffsetS: 120},
+				{Name: "tarnhollow-4", OffsetS: 180, Emitters: []Emitter{{Kind: KindWidebandNoise, Label: "noise jammer",
+					StartS: 0.1, FloorRiseDB: 3}}}}}
+	},
+	"wide-sweeper": func() Scenario {
+		sweep := Emitter{Kind: KindSwept, Label: "24 MHz chirp jammer", JNDB: 18, LowHz: -12e6, HighHz: 12e6, PeriodS: 80e-6, Shape: "up"}
+		keyed := sweep
+		keyed.On = [][]float64{{0.03, 0.06}, {0.1, 0.12}, {0.17, 0.22}}
+		return Scenario{Name: "wide-sweeper", Site: "brackenlow-yard", Format: "cu8", SampleRate: 2.048e6, CenterHz: 1575.42e6,
+			NoiseDBFS: -30, Seed: 34,
+			Description: "a cheap 8-bit dongle (I/Q imbalance, DC offset, 25 ppm clock) sees a jammer sweeping 24 MHz, far wider than its band, keyed on and off beside an amplifier tone",
+			Sky:         RandomSky(8, 11),
+			FrontEnd: &FrontEnd{
+				DCOffset:     &IQValue{I: 0.01, Q: -0.008},
+				IQImbalance:  &IQImbalance{GainError: 0.03, PhaseDeg: 2},
+				Quantization: &Quantization{Bits: 8, SigmaLSB: 8},
+				ClockPPM:     ref(25.0),
+			},
+			Captures: []Capture{{Name: "brackenlow-1"},
+				{Name: "brackenlow-2", OffsetS: 60, Emitters: []Emitter{keyed, {Kind: KindCW, Label: "amplifier tone", OffsetHz: 300e3, JNDB: 6}}},
+				{Name: "brackenlow-3", OffsetS: 120, Emitters: []Emitter{sweep}}}}
+	},
+	"recorder-faults": func() Scenario {
+		return Scenario{Name: "recorder-faults", Site: "fellgate-hut", Format: "cf32_le", SampleRate: 4.092e6, CenterHz: 1575.42e6,
+			NoiseDBFS: -30, Seed: 35,
+			Description: "a recorder that loses a USB buffer, zero-fills a gap, then writes a dead, a stuck and an unnormalised capture",
+			Sky:         RandomSky(8, 3),
+			FrontEnd:    &FrontEnd{},
+			Captures: []Capture{{Name: "fellgate-1"},
+				{Name: "fellgate-2", OffsetS: 60, FrontEnd: &FrontEnd{SampleDrops: []SampleDrop{{AtS: 0.1, Samples: 16384}},
+					Gaps: []Gap{{AtS: 0.18, Samples: 4096}}}},
+				{Name: "fellgate-3", OffsetS: 120, FrontEnd: &FrontEnd{Dead: ref(true)}},
+				{Name: "fellgate-4", OffsetS: 180, FrontEnd: &FrontEnd{Stuck: &IQValue{I: 0.125, Q: -0.0625}}},
+				{Name: "fellgate-5", OffsetS: 240, FrontEnd: &FrontEnd{UnnormalisedScale: ref(2048.0)}}}}
+	},
 }
 
 // Demo is the scenario of `quietband demo`: the clean morning at Kestrel

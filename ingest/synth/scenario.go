@@ -20,6 +20,7 @@ import (
 	"io"
 	"math"
 	"os"
+	"slices"
 	"strings"
 	"time"
 
@@ -480,4 +481,77 @@ func finite(vs ...float64) bool {
 		}
 	}
 	return true
+}
+
+// ScaleDuration sets every capture's duration to d seconds and scales
+// every time within it by the same factor: emitters' start_s, end_s and on
+// intervals, and the front end's gain steps, sample drops and gaps (sample
+// counts are kept). Timed parts of the scenario's front end are copied
+// into each capture's own front end, scaled by its factor. For short test
+// runs and `synth --duration`; Normalize then checks that everything
+// still fits.
+func (s *Scenario) ScaleDuration(d float64) {
+	var shared *FrontEnd
+	if s.FrontEnd != nil {
+		shared = s.FrontEnd
+		fe := *s.FrontEnd
+		fe.GainSteps, fe.SampleDrops, fe.Gaps = nil, nil, nil
+		s.FrontEnd = &fe
+	}
+	for i := range s.Captures {
+		c := &s.Captures[i]
+		old := c.DurationS
+		if old == 0 {
+			old = 0.25
+		}
+		f := d / old
+		c.DurationS = d
+		for j := range c.Emitters {
+			e := &c.Emitters[j]
+			e.StartS *= f
+			e.EndS *= f
+			on := make([][]float64, len(e.On))
+			for k, iv := range e.On {
+				on[k] = make([]float64, len(iv))
+				for m, v := range iv {
+					on[k][m] = v * f
+				}
+			}
+			if e.On != nil {
+				e.On = on
+			}
+		}
+		own := FrontEnd{}
+		if c.FrontEnd != nil {
+			own = *c.FrontEnd
+		}
+		if shared != nil {
+			if own.GainSteps == nil {
+				own.GainSteps = shared.GainSteps
+			}
+			if own.SampleDrops == nil {
+				own.SampleDrops = shared.SampleDrops
+			}
+			if own.Gaps == nil {
+				own.Gaps = shared.Gaps
+			}
+		}
+		if own.GainSteps == nil && own.SampleDrops == nil && own.Gaps == nil {
+			continue
+		}
+		steps := slices.Clone(own.GainSteps)
+		for k := range steps {
+			steps[k].AtS *= f
+		}
+		drops := slices.Clone(own.SampleDrops)
+		for k := range drops {
+			drops[k].AtS *= f
+		}
+		gaps := slices.Clone(own.Gaps)
+		for k := range gaps {
+			gaps[k].AtS *= f
+		}
+		own.GainSteps, own.SampleDrops, own.Gaps = steps, drops, gaps
+		c.FrontEnd = &own
+	}
 }

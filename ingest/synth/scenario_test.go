@@ -309,8 +309,55 @@ func TestParseScenarioErrors(t *testing.T) {
 	}
 }
 
+// builtinFrontEndCheck checks what a built-in capture's front end makes
+// of the samples and reports whether its mean power can be predicted from
+// the truth: not for quantized captures (checked here: only the levels
+// the quantizer has), nor for dead or stuck ones (checked here against
+// their definition).
+func builtinFrontEndCheck(t *testing.T, tr Truth, x []complex64) bool {
+	t.Helper()
+	fe := tr.FrontEnd
+	if fe == nil {
+		return true
+	}
+	for _, f := range tr.Faults {
+		switch f.Kind {
+		case FaultDead:
+			for _, v := range x {
+				if v != 0 {
+					t.Fatalf("%s: dead capture holds %v", tr.Capture, v)
+				}
+			}
+			return false
+		case FaultStuck:
+			for _, v := range x {
+				if v != x[0] || v == 0 {
+					t.Fatalf("%s: stuck capture holds %v and %v", tr.Capture, x[0], v)
+				}
+			}
+			return false
+		}
+	}
+	if q := fe.Quantizer; q != nil {
+		if q.Levels != nil {
+			allowed := map[float64]bool{}
+			for _, l := range q.Levels {
+				allowed[float64(l)] = true
+			}
+			for _, v := range x[:1000] {
+				if c := float64(real(v)) * 128; tr.Format == "ci8" && !allowed[c] {
+					t.Fatalf("%s: code %g outside the levels %v", tr.Capture, c, q.Levels)
+				}
+			}
+		}
+		return false
+	}
+	return true
+}
+
 // TestBuiltins: every built-in scenario normalizes and writes. The
-// captures are cut to 0.02 s (emitter times scaled with them) to stay fast.
+// captures are cut to 0.02 s (ScaleDuration scales the times within them)
+// to stay fast.
 func TestBuiltins(t *testing.T) {
 	t.Parallel()
 	names := BuiltinNames()
@@ -328,21 +375,13 @@ func TestBuiltins(t *testing.T) {
 				t.Fatal(err)
 			}
 			const dur = 0.02
-			for i := range s.Captures {
-				c := &s.Captures[i]
-				f := dur / c.DurationS
-				c.DurationS = dur
-				for j := range c.Emitters {
-					c.Emitters[j].StartS *= f
-					c.Emitters[j].EndS *= f
-				}
-			}
+			s.ScaleDuration(dur)
 			dir, truths := writeScenario(t, s)
 			for i, tr := range truths {
 				if tr.Samples != int64(math.Round(dur*s.SampleRate)) {
 					t.Errorf("%s: %d samples", tr.Capture, tr.Samples)
 				}
-				if tr.Clipped != 0 {
+				if tr.Clipped != 0 && (tr.FrontEnd == nil || tr.FrontEnd.Quantizer == nil || tr.FrontEnd.Quantizer.Bits < 8) {
 					t.Errorf("%s: %d samples clipped", tr.Capture, tr.Clipped)
 				}
 				if len(tr.Satellites) != len(s.Captures[i].Satellites) || len(tr.Emitters) != len(s.Captures[i].Emitters) {
@@ -350,23 +389,53 @@ func TestBuiltins(t *testing.T) {
 						len(tr.Satellites), len(tr.Emitters), len(s.Captures[i].Satellites), len(s.Captures[i].Emitters))
 				}
 				x := readCapture(t, dir, tr)
+				if !builtinFrontEndCheck(t, tr, x) {
+					continue
+				}
 				// The floor plus what the truth says is there: every
 				// satellite adds C = C/N0·σ²/fs, emitters their J (time
 				// averaged). 0.2 dB: 8·10⁴ samples give 0.015 dB for the
 				// floor, the 200 kHz band (B·T = 4000) ~0.05 dB, and a pulse
 				// pair more or less in 0.02 s ~0.03 dB; a silent, doubled
-				// or misplaced source is far outside.
+				// or misplaced source is far outside. With a front end, the
+				// floor is the truth's noise after it and every emitter's
+				// J/N its apparent one (passband, anti-alias), spurs at
+				// their J/N; the gain and I/Q imbalance scale all alike.
 				sigma2 := undb(tr.NoiseDBFS)
-				want := sigma2
+				floor := sigma2
+				if tr.FrontEnd != nil {
+					floor = undb(*tr.FrontEnd.NoiseDBFS)
+				}
+				want := floor
 				for _, sat := range tr.Satellites {
-					want += undb(sat.CN0DBHz) * sigma2 / tr.SampleRate
+					want += undb(sat.CN0DBHz) * sigma2 / tr.SampleRate * floor / sigma2
+				}
+				for _, sp := range tr.FrontEndSpurs {
+					want += undb(sp.JNDB) * floor
+				}
+				if fe := tr.FrontEnd; fe != nil && fe.DCOffset != nil {
+					want += fe.DCOffset.I*fe.DCOffset.I + fe.DCOffset.Q*fe.DCOffset.Q
 				}
 				for _, e := range tr.Emitters {
 					frac := float64(e.EndSample-e.StartSample) / float64(tr.Samples)
+					if len(e.Intervals) > 0 {
+						frac = 0
+						for _, iv := range e.Intervals {
+							frac += float64(iv.EndSample-iv.StartSample) / float64(tr.Samples)
+						}
+					}
+					jn := e.JNDB
+					if e.ApparentJNDB != nil {
+						jn = *e.ApparentJNDB
+					}
 					switch e.Kind {
 					case KindCW:
 						for _, tone := range e.Tones {
-							want += frac * undb(tone.JNDB) * sigma2
+							tj := tone.JNDB
+							if tone.ApparentJNDB != nil {
+								tj = *tone.ApparentJNDB
+							}
+							want += frac * undb(tj) * floor
 						}
 					case KindPulsed:
 						// A Gaussian pair carries 2·√(π/α) seconds of peak
@@ -375,9 +444,17 @@ func TestBuiltins(t *testing.T) {
 						if e.Pulse == "gaussian_pair" {
 							on = 2 * math.Sqrt(math.Pi/DMEAlpha)
 						}
-						want += frac * on / e.PRIS * undb(e.JNDB) * sigma2
+						want += frac * on / e.PRIS * undb(jn) * floor
 					default:
-						want += frac * undb(e.JNDB) * sigma2
+						want += frac * undb(jn) * floor
+					}
+				}
+				for _, f := range tr.Faults {
+					switch f.Kind {
+					case FaultGap:
+						want *= 1 - float64(f.Samples)/float64(tr.Samples)
+					case FaultUnnormalised:
+						want *= *tr.FrontEnd.UnnormalisedScale * *tr.FrontEnd.UnnormalisedScale
 					}
 				}
 				got := meanPower(x)
