@@ -85,10 +85,11 @@ var builtins = map[string]func() Scenario{
 
 	// Sites with a real front end, each exercising the front-end model.
 	"two-bit-spur": func() Scenario {
-		return Scenario{Name: "two-bit-spur", Site: "wrenfold-mast", Format: "ci8", SampleRate: 4.092e6, CenterHz: 1575.42e6,
+		return Scenario{Name: "two-bit-spur", Site: "wrenfold-mast", Format: "ri8", SampleRate: 4.092e6, CenterHz: 1575.42e6,
 			NoiseDBFS: -30, Seed: 31,
-			Description: "a 2-bit front end (levels ±1/±3, threshold at σ, no AGC) with a clock spur and a warming amplifier; a CW jammer in the third capture",
+			Description: "a 2-bit real-IF front end (8.184 MS/s, IF 2.046 MHz, levels ±1/±3, threshold at σ, no AGC) with a clock spur and a warming amplifier; a CW jammer in the third capture",
 			Sky:         RandomSky(9, 21),
+			RealIF:      &RealIF{IFHz: 2.046e6, LOSide: "low"},
 			FrontEnd: &FrontEnd{
 				Passband:              &Passband{RolloffDB: 15, RolloffFraction: 0.2},
 				Quantization:          &Quantization{Bits: 2, ThresholdSigma: 1},

@@ -39,6 +39,9 @@ type chain struct {
 	dead  bool
 	stuck *complex64
 	scale float32
+
+	isReal bool          // real samples at an IF
+	real   *realIFWriter // made by run when isReal
 }
 
 type gainAt struct {
@@ -91,8 +94,17 @@ func newChain(s *Scenario, i int, fe *FrontEnd, n int64, format ingest.Format, s
 		c.dc = complex(v.I, v.Q)
 	}
 	if q := fe.Quantization; q != nil {
-		// σ per component of the thermal noise after the passband at 0 dB.
-		qz, err := newQuantizer(q, format, math.Sqrt(sigma2*noiseGain/2))
+		// σ per component of the thermal noise after the passband at 0 dB;
+		// on a real IF, σ of the real samples.
+		sigma := math.Sqrt(sigma2 * noiseGain / 2)
+		if format.IsReal() {
+			var taps []complex128
+			if c.pb != nil {
+				taps = c.pb.taps
+			}
+			sigma = realIFNoiseSigma(sigma2, taps)
+		}
+		qz, err := newQuantizer(q, format, sigma)
 		if err != nil {
 			return nil, err
 		}
@@ -111,6 +123,9 @@ func newChain(s *Scenario, i int, fe *FrontEnd, n int64, format ingest.Format, s
 	if u := fe.UnnormalisedScale; u != nil {
 		c.scale = float32(*u)
 	}
+	// A real format: one ADC on the real IF, where the offset,
+	// quantization, stuck value and scale act (realIFWriter, made in run).
+	c.isReal = format.IsReal()
 	return c, nil
 }
 
@@ -132,7 +147,18 @@ func (c *chain) captureIndex(t int64) int64 {
 }
 
 // run streams the sources through the chain into w.
-func (c *chain) run(srcs []source, w *ingest.Writer) error {
+func (c *chain) run(srcs []source, w *ingest.Writer, s *Scenario) error {
+	write := w.Write
+	if c.isReal {
+		rw := newRealIFWriter(w, s.RealIF.conversion(), 2*s.SampleRate)
+		rw.dc, rw.quant, rw.scale, rw.dead = real(c.dc), c.quant, c.scale, c.dead
+		if c.stuck != nil {
+			v := real(*c.stuck)
+			rw.stuck = &v
+		}
+		c.real = rw
+		write = rw.write
+	}
 	in := make([]complex64, blockSamples)
 	out := make([]complex64, 0, blockSamples)
 	var m int64                // capture samples emitted
@@ -144,7 +170,7 @@ func (c *chain) run(srcs []source, w *ingest.Writer) error {
 	drop, inDrop := 0, int64(0)
 	flush := func() error {
 		c.finish(out, m-int64(len(out)))
-		err := w.Write(out)
+		err := write(out)
 		out = out[:0]
 		return err
 	}
@@ -204,7 +230,15 @@ func (c *chain) run(srcs []source, w *ingest.Writer) error {
 		}
 	}
 	if len(out) > 0 {
-		return flush()
+		if err := flush(); err != nil {
+			return err
+		}
+	}
+	if c.real != nil {
+		if err := c.real.close(); err != nil {
+			return err
+		}
+		return c.real.flush()
 	}
 	return nil
 }
@@ -212,7 +246,11 @@ func (c *chain) run(srcs []source, w *ingest.Writer) error {
 // sample applies the per-sample stages in place: I/Q imbalance, DC
 // offset, quantization, spectrum inversion.
 func (c *chain) sample(x []complex64) {
-	if !c.iq && c.dc == 0 && c.quant == nil && !c.inverted {
+	dc, quant := c.dc, c.quant
+	if c.isReal {
+		dc, quant = 0, nil // on the real samples
+	}
+	if !c.iq && dc == 0 && quant == nil && !c.inverted {
 		return
 	}
 	for j, v := range x {
@@ -220,10 +258,10 @@ func (c *chain) sample(x []complex64) {
 		if c.iq {
 			im = c.iqG * (im*c.iqCos - re*c.iqSn)
 		}
-		re, im = re+real(c.dc), im+imag(c.dc)
+		re, im = re+real(dc), im+imag(dc)
 		var r, q float32
-		if c.quant != nil {
-			r, q = c.quant.value(c.quant.level(re)), c.quant.value(c.quant.level(im))
+		if quant != nil {
+			r, q = quant.value(quant.level(re)), quant.value(quant.level(im))
 		} else {
 			r, q = float32(re), float32(im)
 		}
@@ -244,6 +282,8 @@ func (c *chain) finish(out []complex64, m0 int64) {
 	switch {
 	case c.dead:
 		clear(out)
+	case c.isReal: // stuck and scale act on the real samples
+		return
 	case c.stuck != nil:
 		for j := range out {
 			out[j] = *c.stuck

@@ -311,6 +311,18 @@ func (fe *FrontEnd) check(s *Scenario, i int, dur float64) error {
 			return fmt.Errorf("gaps[%d]: %d samples from %g s run past the capture's end (%d samples)", k, g.Samples, g.AtS, n)
 		}
 	}
+	if format.IsReal() {
+		// One ADC on a real IF: no quadrature arms, one value per sample.
+		if fe.IQImbalance != nil {
+			return fmt.Errorf("iq_imbalance: %s is real-valued (one ADC at an IF, no quadrature mixer): there is no I/Q imbalance", format)
+		}
+		if v := fe.DCOffset; v != nil && v.Q != 0 {
+			return fmt.Errorf("dc_offset.q %g: %s is real-valued; its ADC offset is dc_offset.i alone", v.Q, format)
+		}
+		if v := fe.Stuck; v != nil && v.Q != 0 {
+			return fmt.Errorf("stuck.q %g: %s is real-valued; a stuck ADC holds stuck.i alone", v.Q, format)
+		}
+	}
 	if fe.Dead != nil && *fe.Dead && fe.Stuck != nil {
 		return errors.New("dead and stuck both given: a capture is one or the other")
 	}
@@ -322,7 +334,7 @@ func (fe *FrontEnd) check(s *Scenario, i int, dur float64) error {
 			return fmt.Errorf("unnormalised_scale %g must lie in (1, 1e9]", *u)
 		}
 		if !isFloat(format) {
-			return fmt.Errorf("unnormalised_scale needs a float format (cf32_le, cf64_le, ...), not %s", format)
+			return fmt.Errorf("unnormalised_scale needs a float format (cf32_le, cf64_le, rf32_le, ...), not %s", format)
 		}
 		if fe.Quantization != nil {
 			return errors.New("unnormalised_scale and quantization both given: quantization needs an integer format, unnormalised floats a float one")
@@ -349,7 +361,37 @@ func (fe *FrontEnd) inverted() bool {
 }
 
 func isFloat(f ingest.Format) bool {
-	return f == ingest.CF32LE || f == ingest.CF32BE || f == ingest.CF64LE || f == ingest.CF64BE
+	_, _, _, ok := intContainer(f)
+	return !ok
+}
+
+// intContainer gives an integer format's component width in bits, its
+// full-scale divisor and whether it is offset binary (real formats as
+// their complex twins); ok is false for float formats.
+func intContainer(f ingest.Format) (width int, scale float64, offset, ok bool) {
+	name := f.String()
+	if f.IsReal() {
+		twin, err := ingest.ParseFormat("c" + name[1:])
+		if err != nil {
+			return 0, 0, false, false
+		}
+		f = twin
+	}
+	switch f {
+	case ingest.CI8:
+		return 8, 128, false, true
+	case ingest.CU8:
+		return 8, 127.5, true, true
+	case ingest.CI16LE, ingest.CI16BE:
+		return 16, 32768, false, true
+	case ingest.CU16LE, ingest.CU16BE:
+		return 16, 32767.5, true, true
+	case ingest.CI32LE, ingest.CI32BE:
+		return 32, 2147483648, false, true
+	case ingest.CU32LE, ingest.CU32BE:
+		return 32, 2147483647.5, true, true
+	}
+	return 0, 0, false, false
 }
 
 // clock maps RF frequencies to where a receiver whose reference is ppm
@@ -409,22 +451,9 @@ var defaultThreshold = map[int]float64{2: 1.0, 3: 0.586, 4: 0.335}
 // newQuantizer checks q against format and sets it for noise of σ per
 // component. Errors name the key (after "quantization.").
 func newQuantizer(q *Quantization, format ingest.Format, sigma float64) (*quantizer, error) {
-	var width int
-	var scale float64
-	offset := false
-	switch format {
-	case ingest.CI8:
-		width, scale = 8, 128
-	case ingest.CU8:
-		width, scale, offset = 8, 127.5, true
-	case ingest.CI16LE, ingest.CI16BE:
-		width, scale = 16, 32768
-	case ingest.CU16LE, ingest.CU16BE:
-		width, scale, offset = 16, 32767.5, true
-	case ingest.CI32LE, ingest.CI32BE:
-		width, scale = 32, 2147483648
-	default:
-		return nil, fmt.Errorf("bits: quantization needs an integer format (ci8, cu8, ci16_le, ...); %s holds floats", format)
+	width, scale, offset, ok := intContainer(format)
+	if !ok {
+		return nil, fmt.Errorf("bits: quantization needs an integer format (ci8, cu8, ci16_le, ri8, ...); %s holds floats", format)
 	}
 	if q.Bits < 1 || q.Bits > width {
 		return nil, fmt.Errorf("bits %d not in 1..%d (the width of %s)", q.Bits, width, format)
@@ -498,6 +527,35 @@ func (q *quantizer) levels() []int {
 		out = append(out, l)
 	}
 	return out
+}
+
+// RealIF makes the recorder write real samples at an intermediate
+// frequency, as an IF-sampling front end does (REFERENCES §12.1), in a
+// real format (ri8, ri16_le, rf32_le, ...): the file's rate is twice the
+// scenario's sample_rate (the complex rate the detectors analyse) and the
+// band's centre lies at IFHz in the real signal, upright with a low-side
+// LO (RF = LO + IF), inverted with a high-side one (RF = LO − IF,
+// REFERENCES §12.2). The SigMF metadata states both (quietband:if_hz,
+// quietband:lo_side), as package ingest reads them.
+//
+// The complex stream (with every front-end stage that acts on it) is
+// interpolated to the file's rate by the half-band filter that package
+// ingest decimates with (ingest.HalfBandTaps: zero insertion, gain 2,
+// zero phase, so that complex sample n lands on file sample 2n) and
+// mixed up: x[m] = Re{y[m]·e^{j2π·IF·m/fs_file}} (y conjugated for a
+// high-side LO). A DC offset (dc_offset.i), the quantization, a stuck
+// value and an unnormalised scale then act on the real samples, as on one
+// ADC. Defaults: IFHz = fs_file/4 (the conversion without multiplications),
+// LOSide "low".
+type RealIF struct {
+	IFHz   float64 `yaml:"if_hz,omitempty" json:"if_hz"`
+	LOSide string  `yaml:"lo_side,omitempty" json:"lo_side"`
+}
+
+// conversion is r as package ingest describes it.
+func (r *RealIF) conversion() ingest.IFConversion {
+	side, _ := ingest.ParseLOSide(r.LOSide)
+	return ingest.IFConversion{IFHz: r.IFHz, Side: side}
 }
 
 // ref returns a pointer to a copy of v, for the optional FrontEnd fields:

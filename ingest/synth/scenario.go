@@ -56,6 +56,9 @@ type Scenario struct {
 	Sky []Satellite `yaml:"sky,omitempty" json:"sky,omitempty"`
 	// RandomSky fills Sky with RandomSky(satellites, seed) when Sky is empty.
 	RandomSky *RandomSkySpec `yaml:"random_sky,omitempty" json:"random_sky,omitempty"`
+	// RealIF writes real samples at an IF (for real formats: ri8, ri16_le,
+	// rf32_le, ...; filled with its defaults when a real format has none).
+	RealIF *RealIF `yaml:"real_if,omitempty" json:"real_if,omitempty"`
 }
 
 // RandomSkySpec asks for a sky drawn by RandomSky.
@@ -194,7 +197,8 @@ func (s *Scenario) Normalize() error {
 	if s.Format == "" {
 		s.Format = "ci16_le"
 	}
-	if _, err := ingest.ParseFormat(s.Format); err != nil {
+	format, err := ingest.ParseFormat(s.Format)
+	if err != nil {
 		return fmt.Errorf("format: %w", err)
 	}
 	if s.SampleRate == 0 {
@@ -208,6 +212,26 @@ func (s *Scenario) Normalize() error {
 	}
 	if s.NoiseDBFS == 0 {
 		s.NoiseDBFS = -30
+	}
+	switch {
+	case format.IsReal():
+		if s.RealIF == nil {
+			s.RealIF = &RealIF{}
+		}
+		if s.RealIF.IFHz == 0 {
+			s.RealIF.IFHz = s.SampleRate / 2 // a quarter of the file's rate
+		}
+		if s.RealIF.LOSide == "" {
+			s.RealIF.LOSide = "low"
+		}
+		if _, err := ingest.ParseLOSide(s.RealIF.LOSide); err != nil {
+			return fmt.Errorf("real_if.lo_side: %w", err)
+		}
+		if err := s.RealIF.conversion().Check(2 * s.SampleRate); err != nil {
+			return fmt.Errorf("real_if.if_hz: file rate %g (twice sample_rate): %w", 2*s.SampleRate, err)
+		}
+	case s.RealIF != nil:
+		return fmt.Errorf("real_if needs a real-valued format (ri8, ri16_le, rf32_le, ...), not %s", format)
 	}
 	if !finite(s.CenterHz) {
 		return fmt.Errorf("center_hz %g is not a finite number", s.CenterHz)

@@ -39,6 +39,12 @@ type Truth struct {
 	FrontEndSpurs []Tone `json:"front_end_spurs,omitempty"`
 	// Faults are the recorder's faults in this capture, in capture samples.
 	Faults []TruthFault `json:"faults,omitempty"`
+	// For real samples at an IF (RealIF): the file's rate (twice
+	// sample_rate_hz, the complex rate analysed; Samples counts complex
+	// samples, the file holds twice as many), the IF and the LO side.
+	FileSampleRate float64 `json:"file_sample_rate_hz,omitempty"`
+	IFHz           float64 `json:"if_hz,omitempty"`
+	LOSide         string  `json:"lo_side,omitempty"`
 }
 
 // The apparent_* fields of the truth say what the recording holds, after
@@ -208,6 +214,9 @@ func WriteCapture(s *Scenario, i int, dir string) (Truth, error) {
 		N0DBFSPerHz: s.NoiseDBFS - 10*math.Log10(fs)}
 
 	fe := mergeFrontEnd(s.FrontEnd, c.FrontEnd)
+	if s.RealIF != nil && fe == nil {
+		fe = &FrontEnd{} // real samples are made by the chain
+	}
 	var ch *chain
 	if fe != nil {
 		var err error
@@ -227,15 +236,22 @@ func WriteCapture(s *Scenario, i int, dir string) (Truth, error) {
 		w, err = ingest.CreateRaw(base+rawExt(format), format)
 	} else {
 		truth.Capture = c.Name + ingest.MetaExt
-		w, err = ingest.CreateSigMF(base, ingest.SigMFHeader{Format: format, SampleRate: fs,
+		h := ingest.SigMFHeader{Format: format, SampleRate: fs,
 			CenterHz: s.CenterHz, HasCenter: true, Start: start,
-			Description: fmt.Sprintf("synthesized: scenario %s, site %s (quietband synth)", s.Name, s.Site)})
+			Description: fmt.Sprintf("synthesized: scenario %s, site %s (quietband synth)", s.Name, s.Site)}
+		if s.RealIF != nil {
+			h.SampleRate, h.IF = 2*fs, s.RealIF.conversion()
+		}
+		w, err = ingest.CreateSigMF(base, h)
 	}
 	if err != nil {
 		return truth, err
 	}
+	if s.RealIF != nil {
+		truth.FileSampleRate, truth.IFHz, truth.LOSide = 2*fs, s.RealIF.IFHz, s.RealIF.LOSide
+	}
 	if ch != nil {
-		err = ch.run(sources, w)
+		err = ch.run(sources, w, s)
 	} else {
 		buf := make([]complex64, blockSamples)
 		for n0 := int64(0); n0 < n && err == nil; n0 += blockSamples {
