@@ -60,6 +60,7 @@ type trackedEvent struct {
 	pairSum    float64
 	pairHits   int
 	groups     []float64 // pulse (pair) arrival times, capture samples
+	channels   []float64 // a hopper's channels
 	riseSum    float64
 	bandBins   [][2]int
 	frameLevel float64 // mean per-frame excess while present
@@ -483,6 +484,19 @@ func (e *trackedEvent) absorb(t *tracker, in *BlockInput, x Finding, all []Findi
 			e.pairSum += p.PairSpacingS
 			e.pairHits++
 		}
+		for _, ch := range p.Channels {
+			found := false
+			for i, c := range e.channels {
+				if math.Abs(c-ch) <= 1/math.Max(p.WidthS, 1e-9) {
+					e.channels[i] = (c + ch) / 2
+					found = true
+					break
+				}
+			}
+			if !found {
+				e.channels = append(e.channels, ch)
+			}
+		}
 	}
 	if x.Class == ClassWidebandNoise {
 		e.riseSum += x.FloorRiseDB
@@ -564,6 +578,10 @@ func (e *trackedEvent) toEvent(c *ingest.Capture, name string, cfg Config, fs, c
 		ev.Params.DutyCycle = ptr(duty)
 		if e.pairHits > 0 {
 			ev.Params.PairSpacingS = ptr(e.pairSum / float64(e.pairHits))
+		}
+		if len(e.channels) > 1 {
+			ev.Params.ChannelsHz = append([]float64(nil), e.channels...)
+			sort.Float64s(ev.Params.ChannelsHz)
 		}
 		jn = e.jnPeak
 		meanPower = jn * noise * duty

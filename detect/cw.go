@@ -120,7 +120,8 @@ const transientEdges = 2
 // cut spectrum falls as 1/(πk) in amplitude, both sides; common practice),
 // so over M frames with e edges a band k bins away holds at most
 // 2e/(π²kM) of the tone's power (4× margin for the scatter of one block).
-func cwFootprint(c *Finding, class string, lo, hi, jn float64, g *grid) bool {
+func cwFootprint(c, x *Finding, g *grid) bool {
+	class, lo, hi, jn := x.Class, x.LowHz, x.HighHz, x.JN
 	bin := g.bin
 	if class == ClassWidebandNoise {
 		return false

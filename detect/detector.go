@@ -126,6 +126,9 @@ type PulseParams struct {
 	// the first pulse of each pair, so that the event's PRI can be fitted
 	// over all its blocks.
 	Groups []int64
+	// Channels are the carrier offsets of an emitter hopping from pulse to
+	// pulse (empty for one carrier).
+	Channels []float64
 }
 
 // exclude marks the bins no detector looks at: the DC bin of

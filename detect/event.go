@@ -66,12 +66,15 @@ type Params struct {
 	DutyCycle       *float64 `json:"duty_cycle,omitempty"`
 	Pulses          *int     `json:"pulses,omitempty"`
 	PairSpacingS    *float64 `json:"pair_spacing_s,omitempty"`
-	FloorRiseDB     *float64 `json:"floor_rise_db,omitempty"`
-	DropDB          *float64 `json:"drop_db,omitempty"`
-	BaselineDBHz    *float64 `json:"baseline_dbhz,omitempty"`
-	CN0DBHz         *float64 `json:"cn0_dbhz,omitempty"`
-	PRNs            []int    `json:"prns,omitempty"`
-	SatellitesLost  []int    `json:"satellites_lost,omitempty"`
+	// ChannelsHz are the carrier offsets of a pulsed emitter that hops
+	// from pulse to pulse over several channels.
+	ChannelsHz     []float64 `json:"channels_hz,omitempty"`
+	FloorRiseDB    *float64  `json:"floor_rise_db,omitempty"`
+	DropDB         *float64  `json:"drop_db,omitempty"`
+	BaselineDBHz   *float64  `json:"baseline_dbhz,omitempty"`
+	CN0DBHz        *float64  `json:"cn0_dbhz,omitempty"`
+	PRNs           []int     `json:"prns,omitempty"`
+	SatellitesLost []int     `json:"satellites_lost,omitempty"`
 }
 
 // ToneParam is one tone of a cw event.

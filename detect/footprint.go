@@ -19,9 +19,9 @@ import (
 // weaker findings) and over the whole capture (events explain weaker
 // events that overlap them in time).
 
-// footprintFunc reports whether emitter c accounts for a finding of class
-// class in the band lo..hi (offsets, Hz) with J/N jn (linear).
-type footprintFunc func(c *Finding, class string, lo, hi, jn float64, g *grid) bool
+// footprintFunc reports whether emitter c accounts for finding x (its
+// class, band LowHz..HighHz, J/N and class parameters).
+type footprintFunc func(c, x *Finding, g *grid) bool
 
 // grid is the spectral analysis the footprints are judged on.
 type grid struct {
@@ -42,7 +42,7 @@ var footprints = map[string]footprintFunc{
 // explainable are the classes a footprint may absorb: what a stronger
 // emitter's spectrum can look like.
 func explainable(class string) bool {
-	return class == ClassCW || class == ClassNarrowbandNoise || class == ClassWidebandNoise
+	return class == ClassCW || class == ClassNarrowbandNoise || class == ClassWidebandNoise || class == ClassPulsed
 }
 
 // defaultImageRejectionDB is the image rejection ratio a receiver's I/Q
@@ -53,13 +53,14 @@ const defaultImageRejectionDB = 20
 // explains reports whether emitter c accounts for the finding: through its
 // class's footprint, or as its I/Q image (the band mirrored about the
 // centre, at least the configured image rejection below c).
-func explains(c *Finding, class string, lo, hi, jn float64, g *grid) bool {
+func explains(c, x *Finding, g *grid) bool {
 	if c.Class == "" {
 		return false
 	}
-	if fp := footprints[c.Class]; fp != nil && fp(c, class, lo, hi, jn, g) {
+	if fp := footprints[c.Class]; fp != nil && fp(c, x, g) {
 		return true
 	}
+	class, lo, hi, jn := x.Class, x.LowHz, x.HighHz, x.JN
 	// The image of a complex front end's I/Q imbalance: −f for +f.
 	if class != ClassWidebandNoise && overlaps(-hi, -lo, c.LowHz-g.bin, c.HighHz+g.bin) && !overlaps(lo, hi, c.LowHz, c.HighHz) {
 		return jn <= c.JN*math.Pow(10, -g.irr/10)
@@ -74,7 +75,8 @@ func explainTones(x *Finding, c *Finding, g *grid) bool {
 	kept := x.Tones[:0]
 	for _, t := range x.Tones {
 		jn := math.Pow(10, t.JNDB/10)
-		if explains(c, ClassCW, t.OffsetHz-g.bin, t.OffsetHz+g.bin, jn, g) {
+		one := Finding{Class: ClassCW, LowHz: t.OffsetHz - g.bin, HighHz: t.OffsetHz + g.bin, OffsetHz: t.OffsetHz, JN: jn}
+		if explains(c, &one, g) {
 			continue
 		}
 		kept = append(kept, t)
@@ -157,7 +159,7 @@ func (t *tracker) explainBlock(fs []Finding, g *grid) {
 				}
 				return
 			}
-			if explains(c, x.Class, x.LowHz, x.HighHz, x.JN, g) {
+			if explains(c, x, g) {
 				gone = true
 			}
 		}
@@ -209,7 +211,7 @@ func (t *tracker) explainEvents() {
 				}
 				continue
 			}
-			if explains(&c, x.Class, x.LowHz, x.HighHz, x.JN, g) {
+			if explains(&c, &x, g) {
 				x.Class = ""
 				break
 			}

@@ -97,8 +97,20 @@ func edge(in *BlockInput, k, dir int, level float64) float64 {
 
 // bandFootprint is what a noise band accounts for besides itself:
 // fragments of itself (another, weaker noise band inside its edges ± 2
-// bins, split off where the band's own fluctuations dip). A tone inside a
-// band is another emitter and stays.
-func bandFootprint(c *Finding, class string, lo, hi, jn float64, g *grid) bool {
-	return class == ClassNarrowbandNoise && jn <= c.JN && lo >= c.LowHz-2*g.bin && hi <= c.HighHz+2*g.bin
+// bins, split off where the band's own fluctuations dip), and "pulses"
+// inside it no higher than its own envelope's peaks: the power of
+// Gaussian noise exceeds 20 times its mean with probability e^−20 ≈ 2·10⁻⁹
+// (its power is exponential), so a pulse whose peak J/N stands at most 25×
+// the band's J/N is the band's own fluctuation. A tone inside a band is
+// another emitter and stays.
+func bandFootprint(c, x *Finding, g *grid) bool {
+	class, lo, hi, jn := x.Class, x.LowHz, x.HighHz, x.JN
+	inside := lo >= c.LowHz-2*g.bin && hi <= c.HighHz+2*g.bin
+	switch class {
+	case ClassNarrowbandNoise:
+		return inside && jn <= c.JN
+	case ClassPulsed:
+		return overlaps(lo, hi, c.LowHz-2*g.bin, c.HighHz+2*g.bin) && jn <= 25*c.JN
+	}
+	return false
 }

@@ -34,7 +34,7 @@ import (
 type Pulse struct {
 	env      []float64
 	cache    map[int]float64
-	quartile map[int]float64
+	quartile map[int][2]float64
 	centers  []float64
 	starts   []int
 	ends     []int
@@ -49,8 +49,21 @@ type Pulse struct {
 	plan    *fft.Plan
 	spec    []complex64
 	lobes   []float32
+	// The sub-band search's scratch: the trains found, their spectra,
+	// the mixed and the filtered samples, the filter.
+	trains            []Finding
+	lobeBufs          [][]float32
+	mixed             []complex64
+	filtered          []complex64
+	taps              []float32
+	tapsFor           [2]float64
+	lens, lensScratch []float64
+	carriers          []float64 // each pulse's carrier offset
+	mixture           []float64 // the carriers of a wideband train of several emitters
 	// burstChirp's scratch.
 	slopes    []float64
+	regionBuf [][2]float64
+	regionPow []float64
 	chirpAt   []float64
 	upCenters []float64
 }
@@ -69,6 +82,22 @@ const maxPulseWidth = 200e-6
 const maxPulses = 4096
 
 // Detect implements Detector.
+//
+// Pulses are looked for where they are. The whole band's envelope finds a
+// train that stands above everything else (and long pulses, and trains
+// too fast for SK to see). But a strong steady emitter elsewhere in the
+// band (a CW, a noise band) masks a weaker train in the wideband envelope,
+// and two trains on different channels mix there. So the bins SK flags as
+// intermittent (above its upper threshold: energy present in some frames
+// only, REFERENCES §2.5) are grouped into sub-bands, and each sub-band
+// that the wideband train does not account for is filtered out of the
+// block (mixed to baseband, low-pass filtered and decimated: subband) and
+// searched on its own. With two or more such sub-bands, every train is
+// taken from its sub-band and the wideband one, a mixture, is dropped.
+// Trains on several sub-bands with the same pulse width whose pulses
+// together keep one regular PRI, while each channel's alone does not, are
+// one emitter hopping over channels (as L5-band data links do): one
+// finding over their channels.
 func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 	x := in.Samples
 	fs := in.F.Fs
@@ -77,13 +106,110 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 	if len(x) == 0 || in.NoisePower <= 0 {
 		return out
 	}
-	// Cheap gate from the engine's pass: pulses make the envelope
-	// impulsive, raising the kurtosis ratio E|x|⁴/(E|x|²)² above the
-	// Gaussian 2 (by far more than six standard deviations, 2/√K each, for
-	// any train this detector can measure). Band-limited noise keeps it at
-	// 2 while its slow envelope would cross a per-sample threshold.
-	if f := in.F; f.Power <= 0 || f.Moment4/(f.Power*f.Power) < 2+12/math.Sqrt(float64(len(x))) {
+	d.trains = d.trains[:0]
+	d.mixture = d.mixture[:0]
+	wide, okWide := d.train(x, fs, in.NoisePower, in.F.Start, 1, continued, in.Cfg, true)
+	regions := d.regions(in)
+	if okWide && len(d.mixture) > 0 {
+		// Several emitters in the wideband train: each carrier becomes a
+		// sub-band to search, and the mixture is dropped.
+		margin := d.margin(in)
+		for _, c := range d.mixture {
+			regions = addRegion(regions, [2]float64{c - margin, c + margin})
+		}
+		okWide = false
+	}
+	unexplained := 0
+	for _, r := range regions {
+		if !okWide || !wide.covers(r) {
+			unexplained++
+		}
+	}
+	if unexplained == 0 || len(regions) == 0 {
+		if okWide {
+			out = append(out, wide)
+		}
 		return out
+	}
+	// Sub-band search over every region. When the wideband search found
+	// a train, it is searched again in its own sub-band, clean of the
+	// others' pulses (a mixture's PRI, pairs and peak are wrong), and
+	// kept only if that fails.
+	wideAt := -1
+	if okWide && len(wide.Pulse.Channels) == 0 {
+		margin := d.margin(in)
+		regions = addRegion(regions, [2]float64{wide.OffsetHz - margin, wide.OffsetHz + margin})
+		for i, q := range regions {
+			if q[0] <= wide.OffsetHz && wide.OffsetHz <= q[1] {
+				wideAt = i
+			}
+		}
+	} else if okWide {
+		// A hopper: its channels are its own; search only the others.
+		kept := regions[:0]
+		for _, r := range regions {
+			if !wide.covers(r) {
+				kept = append(kept, r)
+			}
+		}
+		regions = kept
+	}
+	noise := in.NoisePower / in.Rise
+	found, wideAgain := 0, false
+	for i, r := range regions {
+		y, fsd, dec, center, nsub := d.subband(in, r)
+		if len(y) == 0 {
+			continue
+		}
+		tr, ok := d.train(y, fsd, nsub, in.F.Start, dec, false, in.Cfg, false)
+		if !ok {
+			continue
+		}
+		// J/N over the capture band's noise; offsets from the capture's
+		// centre.
+		tr.JN *= nsub / noise
+		tr.OffsetHz += center
+		tr.LowHz += center
+		tr.HighHz += center
+		d.trains = append(d.trains, tr)
+		found++
+		if i == wideAt {
+			wideAgain = true
+		}
+	}
+	if okWide && !wideAgain {
+		out = append(out, wide)
+	}
+	if found == 0 {
+		return out
+	}
+	return d.hopping(out, d.trains, fs)
+}
+
+// train runs the envelope detector over x (rate fs; noise the noise power
+// per sample expected), whose sample
+// 0 is capture sample start and whose samples stand for dec capture
+// samples each. wideband says x is the whole block (its pulses may run
+// over block boundaries; see openEnd).
+func (d *Pulse) train(x []complex64, fs, noise float64, start int64, dec int, continued bool, cfg *Config, wideband bool) (Finding, bool) {
+	// Cheap gate: pulses make the envelope impulsive, raising the
+	// kurtosis ratio E|x|⁴/(E|x|²)² above the Gaussian 2 (by far more than
+	// six standard deviations, 2/√K each, for any train this detector can
+	// measure). Band-limited noise keeps it at 2 while its slow envelope
+	// would cross a per-sample threshold.
+	var p2, p4 float64
+	for _, v := range x {
+		pw := float64(real(v))*float64(real(v)) + float64(imag(v))*float64(imag(v))
+		p2 += pw
+		p4 += pw * pw
+	}
+	if len(x) == 0 || p2 <= 0 {
+		return Finding{}, false
+	}
+	p2 /= float64(len(x))
+	p4 /= float64(len(x))
+	if p4/(p2*p2) < 2+12/math.Sqrt(float64(len(x))) {
+		return Finding{}, false
 	}
 	l := max(2, int(math.Round(1e-6*fs)))
 	if cap(d.env) < len(x) {
@@ -96,7 +222,7 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 	// The L-sample running sums, once for the reference and the runs:
 	// sums[j] = Σ env[j … j+L−1].
 	if len(env) < l {
-		return out
+		return Finding{}, false
 	}
 	if cap(d.sums) < len(env) {
 		d.sums = make([]float64, len(env))
@@ -112,8 +238,8 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 			sums[i-l+1] = run
 		}
 	}
-	ns := d.reference(sums, l, in.NoisePower)
-	gamma := d.threshold(l, in.Cfg.PulsePfa)
+	ns, leff := d.reference(sums, l, noise)
+	gamma := d.threshold(leff, cfg.PulsePfa)
 	thr := gamma * ns * float64(l) // on the running sum
 	thrLow := (1 + gamma) / 2 * ns * float64(l)
 	// Runs of the L-sample running sum above the threshold.
@@ -137,7 +263,9 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 	}
 	if inRun {
 		d.ends = append(d.ends, len(env))
-		d.openEnd = in.F.Start + int64(len(x))
+		if wideband {
+			d.openEnd = start + int64(len(x))
+		}
 	}
 	if continued && len(d.starts) > 0 && d.starts[0] == 0 {
 		// The rest of the pulse the previous block ended in.
@@ -146,23 +274,27 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 		d.starts, d.ends = d.starts[:len(d.starts)-1], d.ends[:len(d.ends)-1]
 	}
 	n := min(len(d.starts), len(d.ends))
-	if n < in.Cfg.MinPulses || n > maxPulses {
-		return out
+	if n < cfg.MinPulses || n > maxPulses {
+		return Finding{}, false
 	}
-	// Centroids and a coarse width bound.
+	// Centroids, each pulse's carrier and a coarse width bound.
 	d.centers = d.centers[:0]
+	d.carriers = d.carriers[:0]
 	maxLen := 0
 	var lag complex128
 	for p := 0; p < n; p++ {
 		var s, sw float64
+		var pl complex128
 		for i := d.starts[p]; i < d.ends[p]; i++ {
 			e := env[i] - ns
 			s += e
 			sw += e * float64(i)
 			if i > 0 {
-				lag += complex128(x[i]) * cmplx.Conj(complex128(x[i-1]))
+				pl += complex128(x[i]) * cmplx.Conj(complex128(x[i-1]))
 			}
 		}
+		lag += pl
+		d.carriers = append(d.carriers, fs/(2*math.Pi)*cmplx.Phase(pl))
 		if s <= 0 {
 			s = 1
 			sw = float64(d.starts[p]+d.ends[p]) / 2
@@ -173,7 +305,7 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 	// A steady emitter switching on mid-block is one long run, not a
 	// pulse train: GNSS-band pulses (DME, radar) last microseconds.
 	if float64(maxLen) > maxPulseWidth*fs {
-		return out
+		return Finding{}, false
 	}
 	// Between pulses the envelope returns to the reference. Noise that
 	// switches on for part of the block (band-limited or wideband) crosses
@@ -188,9 +320,30 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 		gapN += d.starts[p+1] - d.ends[p]
 	}
 	if gapN > 0 && gapSum/float64(gapN) > maxGapLevel*ns {
-		return out
+		return Finding{}, false
 	}
-	half := maxLen + 2*l
+	// The mean pulse is formed over a window of three median pulse lengths
+	// (not the longest run: where two emitters' pulses coincide, a run is
+	// longer than either, and a window that wide takes in neighbours), and
+	// no wider than 0.9 of the shortest common spacing (a pair's partner
+	// stays out).
+	lens := d.lens[:0]
+	for p := 0; p < n; p++ {
+		lens = append(lens, float64(d.ends[p]-d.starts[p]))
+	}
+	d.lens = lens
+	half := min(maxLen, int(math.Ceil(1.5*medianScratch(&d.lensScratch, lens)))) + 2*l
+	if n >= 3 {
+		gaps := d.lens[:0]
+		for p := 0; p+1 < n; p++ {
+			gaps = append(gaps, d.centers[p+1]-d.centers[p])
+		}
+		d.lens = gaps
+		sort.Float64s(gaps)
+		if g := int(0.45 * gaps[len(gaps)/10]); g > l && g < half {
+			half = g
+		}
+	}
 	width := 2*half + 1
 	if cap(d.prof) < width {
 		d.prof = make([]float64, width)
@@ -209,7 +362,7 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 		used++
 	}
 	if used == 0 {
-		return out
+		return Finding{}, false
 	}
 	for j := range prof {
 		prof[j] = prof[j]/float64(used) - ns
@@ -217,16 +370,23 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 	peak, w := measureProfile(prof, max(1, int(math.Round(0.25e-6*fs))), &d.sm)
 	w /= fs
 	if w <= 0 || peak <= 0 {
-		return out
+		return Finding{}, false
 	}
-	if sw, ok := d.burstChirp(x, n, fs); ok {
-		// Each "pulse" is a sweep crossing the band: a sweep wider than
-		// the recorder's band, seen as bursts at its period.
-		return append(out, Finding{Detector: d.Name(), Class: ClassSwept, LowHz: sw.LowHz, HighHz: sw.HighHz,
-			OffsetHz: (sw.LowHz + sw.HighHz) / 2, JN: peak / ns, Sweep: &sw,
-			Start: in.F.Start + int64(d.starts[0]), End: in.F.Start + int64(d.ends[n-1])})
+	at := func(i int) int64 { return start + int64(i*dec) }
+	if wideband {
+		if sw, ok := d.burstChirp(x, n, fs); ok {
+			// Each "pulse" is a sweep crossing the band: a sweep wider
+			// than the recorder's band, seen as bursts at its period.
+			return Finding{Detector: d.Name(), Class: ClassSwept, LowHz: sw.LowHz, HighHz: sw.HighHz,
+				OffsetHz: (sw.LowHz + sw.HighHz) / 2, JN: peak / ns, Sweep: &sw,
+				Start: at(d.starts[0]), End: at(d.ends[n-1])}, true
+		}
 	}
 	pp := &PulseParams{WidthS: w, Pulses: n}
+	mixture := false
+	if wideband {
+		pp.Channels, mixture = d.channels(n, w, fs)
+	}
 	groups := d.centers
 	if sp, ok := pairSpacing(d.centers); ok {
 		pp.PairSpacingS = sp / fs
@@ -235,18 +395,37 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 	pp.PRIS = pri(groups) / fs
 	pp.Groups = make([]int64, len(groups))
 	for i, g := range groups {
-		pp.Groups[i] = in.F.Start + int64(math.Round(g))
+		pp.Groups[i] = start + int64(math.Round(g*float64(dec)))
 	}
 	dur := float64(len(x)) / fs
 	pp.DutyCycle = float64(n) * w / dur
 	off := fs / (2 * math.Pi) * cmplx.Phase(lag)
 	bw := 1 / w
+	lo, hi := off-bw, off+bw
+	if len(pp.Channels) > 1 {
+		lo, hi = pp.Channels[0]-bw, pp.Channels[len(pp.Channels)-1]+bw
+		off = (lo + hi) / 2
+	}
 	rate := float64(n) / dur
 	lobes, step := d.spectralDensity(prof, used, ns, rate, fs)
-	return append(out, Finding{Detector: d.Name(), Class: ClassPulsed, LowHz: off - bw, HighHz: off + bw,
+	// Each train of the block keeps its spectrum in a buffer of its own.
+	for len(d.lobeBufs) <= len(d.trains)+1 {
+		d.lobeBufs = append(d.lobeBufs, nil)
+	}
+	i := len(d.trains) + 1
+	if wideband {
+		i = 0
+	}
+	d.lobeBufs[i] = append(d.lobeBufs[i][:0], lobes...)
+	lobes = d.lobeBufs[i]
+	if mixture {
+		d.mixture = append(d.mixture[:0], pp.Channels...)
+		pp.Channels = nil
+	}
+	return Finding{Detector: d.Name(), Class: ClassPulsed, LowHz: lo, HighHz: hi,
 		OffsetHz: off, JN: peak / ns, Pulse: pp,
-		Start: in.F.Start + int64(d.starts[0]), End: in.F.Start + int64(d.ends[n-1]),
-		sidelobes: lobes, sidelobeStep: step, pulseRate: rate})
+		Start: at(d.starts[0]), End: at(d.ends[n-1]),
+		sidelobes: lobes, sidelobeStep: step, pulseRate: rate}, true
 }
 
 // spectralDensity returns the pulse train's average power spectral
@@ -296,13 +475,21 @@ func (d *Pulse) spectralDensity(prof []float64, used int, ns, rate, fs float64) 
 	return d.lobes, fs / float64(m)
 }
 
-// reference is the power per sample the pulses must stand above: the
-// thermal noise, or more when a steady emitter (a CW, a chirp) lifts the
-// envelope. It is read from the lower quartile q of the L-sample running
-// mean (sums holds the running sums): under noise alone that mean is Gamma(L, 1/L)·N, so N = q/q_L with
-// q_L that distribution's lower quartile. A steady emitter raises q; pulses
-// at duty cycles below 75 % do not.
-func (d *Pulse) reference(sums []float64, l int, noise float64) float64 {
+// reference returns the power per sample the pulses must stand above,
+// and the number k of independent powers the L-sample mean of the
+// envelope holds between the pulses. Under white noise that mean is
+// Gamma(L, 1/L)·N; under noise whose spectrum is not flat (band-limited
+// noise beside the pulses) or with a steady emitter, it holds fewer or
+// more independent powers than L (Satterthwaite's effective degrees of
+// freedom of a quadratic form, common practice), so a threshold set for
+// white noise would let band-limited noise through. Both are read from
+// the lower decile q₁ and the lower quartile q₂ of the running mean
+// (pulses at duty cycles up to three quarters do not move them, nor do
+// chirp bursts filling half of the time): k is the shape whose
+// Gamma(k, 1/k) has the same ratio q₂/q₁ (from 1 to 4L), and the power is
+// q₂ over that distribution's lower quartile, at least the noise power
+// expected from the floor.
+func (d *Pulse) reference(sums []float64, l int, noise float64) (float64, int) {
 	const bins = 1024
 	var hist [bins]int
 	top := 16 * noise // the histogram spans 0..16 N
@@ -312,24 +499,51 @@ func (d *Pulse) reference(sums []float64, l int, noise float64) float64 {
 		hist[min(max(b, 0), bins-1)]++
 		count++
 	}
-	want, acc := count/4, 0
-	q := 0.0
-	for b, c := range hist {
-		acc += c
-		if acc >= want {
-			q = (float64(b) + 0.5) / bins * top
-			break
+	quantile := func(q float64) float64 {
+		want, acc := int(q*float64(count)), 0
+		for b, c := range hist {
+			acc += c
+			if acc >= want {
+				return (float64(b) + 0.5) / bins * top
+			}
+		}
+		return top
+	}
+	q1, q2 := quantile(0.1), quantile(0.25)
+	k := l
+	if q1 > 0 {
+		k = d.shapeFor(q2/q1, 4*l)
+	}
+	_, ql := d.gammaQuartiles(k)
+	return math.Max(noise, q2/ql), k
+}
+
+// gammaQuartiles returns the lower decile and the lower quartile of
+// Gamma(k, 1/k), cached.
+func (d *Pulse) gammaQuartiles(k int) (float64, float64) {
+	if d.quartile == nil {
+		d.quartile = map[int][2]float64{}
+	}
+	if v, ok := d.quartile[k]; ok {
+		return v[0], v[1]
+	}
+	g := distuv.Gamma{Alpha: float64(k), Beta: float64(k)}
+	v := [2]float64{g.Quantile(0.1), g.Quantile(0.25)}
+	d.quartile[k] = v
+	return v[0], v[1]
+}
+
+// shapeFor returns the k in 1..kmax whose Gamma(k) lower quartile over
+// lower decile is nearest r (the ratio falls with k: 2.73 at k = 1).
+func (d *Pulse) shapeFor(r float64, kmax int) int {
+	best, at := math.Inf(1), 1
+	for k := 1; k <= kmax; k++ {
+		q1, q2 := d.gammaQuartiles(k)
+		if e := math.Abs(q2/q1 - r); e < best {
+			best, at = e, k
 		}
 	}
-	if d.quartile == nil {
-		d.quartile = map[int]float64{}
-	}
-	ql, ok := d.quartile[l]
-	if !ok {
-		ql = distuv.Gamma{Alpha: float64(l), Beta: float64(l)}.Quantile(0.25)
-		d.quartile[l] = ql
-	}
-	return math.Max(noise, q/ql)
+	return at
 }
 
 func (d *Pulse) threshold(l int, pfa float64) float64 {
@@ -509,9 +723,25 @@ func pri(t []float64) float64 {
 // 4× that with the largest R over its band ± one bin (the 4 covers a pair's
 // interference, up to 2× the average, and the scatter of one block's
 // estimate). A tone is judged over its ±maxToneHalfWidth bins.
-func pulseFootprint(c *Finding, class string, lo, hi, jn float64, g *grid) bool {
+func pulseFootprint(c, x *Finding, g *grid) bool {
+	class, lo, hi, jn := x.Class, x.LowHz, x.HighHz, x.JN
 	if class == ClassWidebandNoise {
 		return jn <= c.JN
+	}
+	if c.Pulse != nil && len(c.Pulse.Channels) > 0 {
+		// A hopper: each channel's main lobe and spectrum.
+		bw := 1 / math.Max(c.Pulse.WidthS, 1e-9)
+		for _, ch := range c.Pulse.Channels {
+			if overlaps(lo, hi, ch-bw-2*g.bin, ch+bw+2*g.bin) {
+				return true
+			}
+			one := *c
+			one.OffsetHz = ch
+			if one.sidelobeJN(lo, hi, math.Max(hi-lo, 1.5*g.bin), g.bin, g.fs) >= jn {
+				return true
+			}
+		}
+		return false
 	}
 	if overlaps(lo, hi, c.LowHz-2*g.bin, c.HighHz+2*g.bin) {
 		return true
@@ -659,4 +889,307 @@ func (d *Pulse) burstChirp(x []complex64, n int, fs float64) (SweepParams, bool)
 	sw.LowHz, sw.HighHz = math.Max(lo, -fs/2), math.Min(hi, fs/2)
 	sw.Beyond = sw.SpanHz > 1.1*(sw.HighHz-sw.LowHz)
 	return sw, true
+}
+
+// margin is how far a sub-band reaches beyond the bins SK flagged: a
+// pulse's spectrum spreads beyond its strongest bins (a 3.5 µs DME pulse's
+// to about ±300 kHz at −17 dB), and a sub-band filter much narrower than
+// twice that would smear a pulse pair into one.
+func (d *Pulse) margin(in *BlockInput) float64 {
+	return math.Max(500e3, 4*in.F.Fs/float64(in.F.N))
+}
+
+// maxRegions bounds the sub-bands searched per block.
+const maxRegions = 6
+
+// regions groups the bins SK flags above its upper threshold into
+// sub-bands (runs of at least two bins, joined across gaps of up to four),
+// widened by a margin, the strongest first, at most maxRegions.
+func (d *Pulse) regions(in *BlockInput) [][2]float64 {
+	f := in.F
+	margin := d.margin(in)
+	out := d.regionBuf[:0]
+	pow := d.regionPow[:0]
+	for k := 0; k < f.N; {
+		if in.SKFlag[k] <= 0 {
+			k++
+			continue
+		}
+		j, last, gap := k, k, 0
+		for j < f.N && gap <= 4 {
+			if in.SKFlag[j] > 0 {
+				last, gap = j, 0
+			} else {
+				gap++
+			}
+			j++
+		}
+		if last > k {
+			lo, hi := f.Offset(k)-margin, f.Offset(last)+margin
+			if n := len(out); n > 0 && lo <= out[n-1][1] {
+				out[n-1][1] = hi
+				pow[n-1] += in.bandPower(k, last)
+			} else {
+				out = append(out, [2]float64{lo, hi})
+				pow = append(pow, in.bandPower(k, last))
+			}
+		}
+		k = last + 1
+	}
+	// The strongest maxRegions.
+	for len(out) > maxRegions {
+		w := 0
+		for i := range pow {
+			if pow[i] < pow[w] {
+				w = i
+			}
+		}
+		out = append(out[:w], out[w+1:]...)
+		pow = append(pow[:w], pow[w+1:]...)
+	}
+	d.regionBuf, d.regionPow = out, pow
+	return out
+}
+
+// subband filters sub-band r (offsets, Hz) out of the block: the samples
+// mixed by −fc (fc its centre), low-pass filtered to its half-width by a
+// windowed-sinc FIR (Blackman window, 6 taps per decimated sample; about
+// 74 dB stopband, common practice for a Blackman-windowed sinc) and
+// decimated by D so that the output rate is about 2.5 times the sub-band's
+// width and no less than 2 MS/s (1 µs must hold two samples). It returns
+// the output, its rate, D, fc and the noise power per output sample
+// expected from the noise reference over the sub-band's bins.
+func (d *Pulse) subband(in *BlockInput, r [2]float64) ([]complex64, float64, int, float64, float64) {
+	f := in.F
+	fs := f.Fs
+	fc := (r[0] + r[1]) / 2
+	half := math.Min((r[1]-r[0])/2, fs/2)
+	dec := max(1, int(fs/math.Max(2.5*2*half, 2e6)))
+	fsd := fs / float64(dec)
+	cut := half / fs // cycles per input sample
+	ntaps := 6*dec*2 + 1
+	if len(d.taps) != ntaps || d.tapsFor != [2]float64{cut, float64(dec)} {
+		d.taps = make([]float32, ntaps)
+		var sum float64
+		c := float64(ntaps-1) / 2
+		for i := range d.taps {
+			t := float64(i) - c
+			v := 2 * cut
+			if t != 0 {
+				v = math.Sin(2*math.Pi*cut*t) / (math.Pi * t)
+			}
+			w := 0.42 - 0.5*math.Cos(2*math.Pi*float64(i)/float64(ntaps-1)) + 0.08*math.Cos(4*math.Pi*float64(i)/float64(ntaps-1))
+			d.taps[i] = float32(v * w)
+			sum += v * w
+		}
+		for i := range d.taps {
+			d.taps[i] /= float32(sum)
+		}
+		d.tapsFor = [2]float64{cut, float64(dec)}
+	}
+	x := in.Samples
+	if cap(d.mixed) < len(x) {
+		d.mixed = make([]complex64, len(x))
+	}
+	mx := d.mixed[:len(x)]
+	step := complex128(cmplx.Rect(1, -2*math.Pi*fc/fs))
+	rot := complex128(cmplx.Rect(1, -2*math.Pi*fc/fs*float64(f.Start%int64(math.MaxInt32))))
+	for i, v := range x {
+		mx[i] = v * complex64(rot)
+		rot *= step
+		if i&1023 == 1023 {
+			rot /= complex(cmplx.Abs(rot), 0)
+		}
+	}
+	m := len(x) / dec
+	if cap(d.filtered) < m {
+		d.filtered = make([]complex64, m)
+	}
+	y := d.filtered[:m]
+	for o := range y {
+		end := o*dec + 1
+		var acc complex64
+		for k, h := range d.taps {
+			i := end - 1 - k
+			if i < 0 {
+				break
+			}
+			acc += mx[i] * complex(h, 0)
+		}
+		y[o] = acc
+	}
+	// The filter's delay: shift by (taps−1)/2 input samples.
+	delay := (ntaps - 1) / 2 / dec
+	if delay < len(y) {
+		y = y[delay:]
+	}
+	var noise float64
+	for k := f.Bin(r[0]); k <= f.Bin(r[1]); k++ {
+		noise += in.Floor[k]
+	}
+	return y, fsd, dec, fc, noise
+}
+
+// hopping appends the sub-band trains to out, one finding for those that
+// are one emitter hopping over channels: at least two trains whose pulse
+// widths agree within 15 % and whose pulses, merged in time, keep a
+// regular spacing (the PRI fitted over all of them explains their times
+// to within a tenth of it) that no channel keeps alone.
+func (d *Pulse) hopping(out []Finding, trains []Finding, fs float64) []Finding {
+	if len(trains) < 2 {
+		return append(out, trains...)
+	}
+	used := make([]bool, len(trains))
+	for i := range trains {
+		if used[i] {
+			continue
+		}
+		group := []int{i}
+		for j := i + 1; j < len(trains); j++ {
+			if !used[j] && math.Abs(trains[j].Pulse.WidthS-trains[i].Pulse.WidthS) <= 0.15*trains[i].Pulse.WidthS {
+				group = append(group, j)
+			}
+		}
+		if len(group) >= 2 {
+			var times []float64
+			for _, g := range group {
+				for _, t := range trains[g].Pulse.Groups {
+					times = append(times, float64(t))
+				}
+			}
+			sort.Float64s(times)
+			if p := pri(times); p > 0 && regular(times, p) && !regular(float64s(trains[i].Pulse.Groups), p) {
+				h := trains[i]
+				pp := *h.Pulse
+				pp.Groups = make([]int64, len(times))
+				for k, t := range times {
+					pp.Groups[k] = int64(t)
+				}
+				pp.PRIS = p / fs
+				pp.Pulses = 0
+				lo, hi := math.Inf(1), math.Inf(-1)
+				h.JN = 0
+				for _, g := range group {
+					t := trains[g]
+					used[g] = true
+					pp.Pulses += t.Pulse.Pulses
+					pp.Channels = append(pp.Channels, t.OffsetHz)
+					lo, hi = math.Min(lo, t.LowHz), math.Max(hi, t.HighHz)
+					h.JN = math.Max(h.JN, t.JN)
+					h.Start, h.End = min(h.Start, t.Start), max(h.End, t.End)
+				}
+				sort.Float64s(pp.Channels)
+				pp.DutyCycle = 0
+				for _, g := range group {
+					pp.DutyCycle += trains[g].Pulse.DutyCycle
+				}
+				h.Pulse = &pp
+				h.LowHz, h.HighHz, h.OffsetHz = lo, hi, (lo+hi)/2
+				h.sidelobes = nil // a hopper's spectrum is its channels'
+				out = append(out, h)
+				continue
+			}
+		}
+		used[i] = true
+		out = append(out, trains[i])
+	}
+	return out
+}
+
+// addRegion adds r to regions, merged with one it overlaps.
+func addRegion(regions [][2]float64, r [2]float64) [][2]float64 {
+	for i, q := range regions {
+		if overlaps(q[0], q[1], r[0], r[1]) {
+			regions[i] = [2]float64{math.Min(q[0], r[0]), math.Max(q[1], r[1])}
+			return regions
+		}
+	}
+	return append(regions, r)
+}
+
+// covers reports whether pulse train c accounts for sub-band r: r holds
+// its carrier, or one of a hopper's channels.
+func (c *Finding) covers(r [2]float64) bool {
+	if c.Pulse != nil && len(c.Pulse.Channels) > 0 {
+		for _, ch := range c.Pulse.Channels {
+			if r[0] <= ch && ch <= r[1] {
+				return true
+			}
+		}
+		return false
+	}
+	return overlaps(r[0], r[1], c.LowHz, c.HighHz)
+}
+
+// regular reports whether times (sorted) sit on a grid of spacing p to
+// within a tenth of p.
+func regular(times []float64, p float64) bool {
+	if len(times) < 3 || p <= 0 {
+		return false
+	}
+	bad := 0
+	for _, t := range times {
+		k := math.Round((t - times[0]) / p)
+		if math.Abs(t-times[0]-k*p) > 0.1*p {
+			bad++
+		}
+	}
+	// … and fill it: a channel alone skips grid points.
+	span := math.Round((times[len(times)-1]-times[0])/p) + 1
+	return bad*10 <= len(times) && float64(len(times)) >= 0.8*span
+}
+
+func float64s(v []int64) []float64 {
+	out := make([]float64, len(v))
+	for i, x := range v {
+		out[i] = float64(x)
+	}
+	return out
+}
+
+// channels groups the carriers of a wideband train's pulses (sorted,
+// split where neighbours lie more than max(2/width, 200 kHz) apart; a
+// group needs a tenth of the pulses). One group: one carrier (nil). Several
+// groups whose pulses together sit on one regular grid (regular, with the
+// PRI fitted over all of them) while each group alone does not: one
+// emitter hopping over them, returned as its channels. Several groups
+// otherwise: a mixture of emitters, their carriers returned with mixture
+// set, for the sub-band search to take apart.
+func (d *Pulse) channels(n int, width, fs float64) (ch []float64, mixture bool) {
+	sorted := append(d.lens[:0], d.carriers[:n]...)
+	d.lens = sorted
+	sort.Float64s(sorted)
+	sep := math.Max(2/width, 200e3)
+	var groups [][2]int // index ranges into sorted
+	a := 0
+	for i := 1; i <= len(sorted); i++ {
+		if i == len(sorted) || sorted[i]-sorted[i-1] > sep {
+			if i-a >= max(2, n/10) {
+				groups = append(groups, [2]int{a, i})
+			}
+			a = i
+		}
+	}
+	if len(groups) < 2 {
+		return nil, false
+	}
+	for _, g := range groups {
+		ch = append(ch, medianOf(sorted[g[0]:g[1]]))
+	}
+	p := pri(d.centers[:n])
+	if !regular(d.centers[:n], p) {
+		return ch, true
+	}
+	for _, c := range ch {
+		var own []float64
+		for i, f := range d.carriers[:n] {
+			if math.Abs(f-c) <= sep {
+				own = append(own, d.centers[i])
+			}
+		}
+		if regular(own, p) {
+			return ch, true
+		}
+	}
+	return ch, false
 }

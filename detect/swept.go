@@ -693,8 +693,9 @@ func fastAtan2(y, x float32) float32 {
 
 // sweptFootprint is what a sweep accounts for besides itself: everything
 // inside its span (±2 bins: its comb of lines, partial bursts at its
-// start and end), the level it lifts when it covers most of the band, and
-// its skirts. A chirp cut at each period's end (flyback, turnaround)
+// start and end, its passes through a sub-band, which look like pulses
+// there, no stronger than itself), the level it lifts when it covers most
+// of the band, and its skirts. A chirp cut at each period's end (flyback, turnaround)
 // leaks beyond its edges: by stationary phase the sweep's in-band density
 // is J/S for span S, and the endpoint term of a chirp cut at an edge
 // frequency falls as 1/(2πΔf) in amplitude, so Δf beyond the edge the
@@ -703,7 +704,8 @@ func fastAtan2(y, x float32) float32 {
 // A finding outside the span is explained when its density stands at most
 // 4× that (scatter of one block); a tone is one line of the skirt's comb,
 // which carries the density over one line spacing 1/T (period T).
-func sweptFootprint(c *Finding, class string, lo, hi, jn float64, g *grid) bool {
+func sweptFootprint(c, x *Finding, g *grid) bool {
+	class, lo, hi, jn := x.Class, x.LowHz, x.HighHz, x.JN
 	if c.Sweep == nil {
 		return false
 	}
@@ -711,6 +713,11 @@ func sweptFootprint(c *Finding, class string, lo, hi, jn float64, g *grid) bool 
 		return jn <= 2*c.JN
 	}
 	sl, sh := c.LowHz-2*g.bin, c.HighHz+2*g.bin
+	if class == ClassPulsed {
+		// The sweep's passes through a sub-band look like pulses there,
+		// at the sweep's own power.
+		return overlaps(x.OffsetHz, x.OffsetHz, sl, sh) && jn <= 2*c.JN
+	}
 	if overlaps(lo, hi, sl, sh) {
 		return true
 	}
