@@ -9,117 +9,105 @@ import (
 
 	"quietband/ingest"
 
-	"quietband/detect/fft"
 	"quietband/detect/gnss"
 )
 
 // GNSSMeter measures the GPS L1 C/A satellites of a capture for the
-// pipeline: acquisition on the first snapshot (10 ms by default; parallel
-// code-phase search, CFAR threshold, see package gnss), then C/N0 tracking
-// of the acquired satellites over every block of the capture. Memory is
-// one snapshot. A GNSSMeter is used by one pipeline at a time.
+// pipeline with a gnss.Meter: acquisition on the first snapshot (10 ms by
+// default) after interference mitigation, over the receiver-clock range
+// while the site's clock offset is unknown and around it afterwards; then
+// C/N0 tracking of the acquired satellites over every block, in the
+// spectrum orientation the satellites show (package gnss documents each
+// step). It keeps the site's clock offset and spectrum orientation from
+// capture to capture: use one GNSSMeter per input. Memory is two
+// snapshots. A GNSSMeter is used by one pipeline at a time.
+//
+// Result returns the satellites; Measurement returns everything measured
+// (notes, clock offset, orientation, why the C/N0 was not measured), for
+// the capture record.
 type GNSSMeter struct {
 	// Acq configures acquisition; zero fields take package gnss defaults,
 	// except Pfa, which defaults to 1e-3 per capture (1e-3/32 per PRN
 	// search) so that noise alone almost never yields a satellite.
 	Acq gnss.AcqConfig
+	// Inverted, when set, forces the spectrum orientation (true: inverted,
+	// I and Q swapped) instead of deciding it from the satellites.
+	Inverted *bool
 
-	acq      *gnss.Acquirer
-	tr       *gnss.Tracker
-	fs, fc   float64
-	snap     []complex64
-	clean    []complex64
-	plan     *fft.Plan
-	spec     []complex64
-	pow      []float64
-	scratch  []float64
-	fill     int
-	done     bool
-	acquired []gnss.Acquired
+	m      *gnss.Meter
+	skip   string
+	cached *SatelliteResult
 }
 
 // Start implements SatelliteMeter.
 func (m *GNSSMeter) Start(fs, centerHz float64, hasCenter bool) string {
-	m.tr, m.fill, m.done, m.acquired = nil, 0, false, m.acquired[:0]
+	m.cached, m.skip = nil, ""
 	if !hasCenter {
-		return "skipped: the capture's centre frequency is unknown"
+		m.skip = "skipped: the capture's centre frequency is unknown"
+		return m.skip
 	}
-	cfg := m.Acq
-	if cfg.Pfa == 0 {
-		n := len(cfg.PRNs)
-		if n == 0 {
-			n = 32
-		}
-		cfg.Pfa = 1e-3 / float64(n)
-	}
-	if m.acq == nil || m.fs != fs || m.fc != centerHz {
-		a, err := gnss.NewAcquirer(cfg, fs, centerHz)
-		if err != nil {
-			if errors.Is(err, gnss.ErrL1NotInBand) {
-				return err.Error()
+	if m.m == nil {
+		cfg := m.Acq
+		if cfg.Pfa == 0 {
+			n := len(cfg.PRNs)
+			if n == 0 {
+				n = 32
 			}
-			return "skipped: " + err.Error()
+			cfg.Pfa = 1e-3 / float64(n)
 		}
-		m.acq, m.fs, m.fc = a, fs, centerHz
-		m.snap = make([]complex64, a.SnapshotLen())
-		m.clean = make([]complex64, a.SnapshotLen())
-		m.plan = fft.NewPlan(exciseN)
-		m.spec = make([]complex64, exciseN)
-		m.pow = make([]float64, exciseN)
+		m.m = gnss.NewMeter(gnss.MeterConfig{Acq: cfg, Inverted: m.Inverted})
+	}
+	if err := m.m.Start(fs, centerHz); err != nil {
+		if errors.Is(err, gnss.ErrL1NotInBand) {
+			m.skip = err.Error()
+		} else {
+			m.skip = "skipped: " + err.Error()
+		}
+		return m.skip
 	}
 	return ""
 }
 
 // Block implements SatelliteMeter.
 func (m *GNSSMeter) Block(start int64, x []complex64) {
-	if m.done || m.acq == nil {
+	if m.skip != "" || m.m == nil {
 		return
 	}
-	if m.tr != nil {
-		m.tr.Process(x, start)
-		return
-	}
-	k := copy(m.snap[m.fill:], x)
-	m.fill += k
-	if m.fill < len(m.snap) {
-		return
-	}
-	// Acquire on a copy with narrowband interference excised, so that a
-	// strong CW, which correlates with every PRN through the C/A code's
-	// line spectrum, does not turn into false satellites; track on the
-	// samples as they are, so that the C/N0 measured is what an ordinary
-	// receiver would see.
-	copy(m.clean, m.snap)
-	m.excise(m.clean)
-	var err error
-	m.acquired, err = m.acq.Acquire(m.acquired, m.clean)
-	if err != nil || len(m.acquired) == 0 {
-		m.done = true
-		return
-	}
-	m.tr, err = gnss.NewTracker(m.fs, m.fc, m.acquired, 0)
-	if err != nil {
-		m.done = true
-		return
-	}
-	m.tr.Process(m.snap, 0)
-	if k < len(x) {
-		m.tr.Process(x[k:], start+int64(k))
-	}
+	m.m.Block(start, x)
 }
 
-// Result implements SatelliteMeter.
+// Result implements SatelliteMeter: the satellites of Measurement.
 func (m *GNSSMeter) Result() []Satellite {
-	if m.tr == nil {
-		return nil
+	return m.Measurement().Satellites
+}
+
+// Measurement returns what was measured in the current capture (call it
+// after the last block): the satellites, the receiver clock offset, the
+// spectrum orientation, notes for every stage not run, and, in
+// Unmeasured, why the site's C/N0 was not measured.
+func (m *GNSSMeter) Measurement() SatelliteResult {
+	if m.cached != nil {
+		return *m.cached
 	}
-	var out []Satellite
-	for _, s := range m.tr.Result() {
-		out = append(out, Satellite{System: s.System, PRN: s.PRN, CN0DBHz: s.CN0dBHz,
-			DopplerHz: s.DopplerHz, CodePhaseChips: s.CodePhaseChips})
+	var r SatelliteResult
+	switch {
+	case m.skip != "":
+		r.Skipped = m.skip
+	case m.m != nil:
+		g := m.m.Result()
+		for _, s := range g.Satellites {
+			r.Satellites = append(r.Satellites, Satellite{System: "GPS", PRN: s.PRN, CN0DBHz: s.CN0dBHz,
+				DopplerHz: s.DopplerHz, CodePhaseChips: s.CodePhaseChips, Method: s.Method})
+		}
+		if g.HasClock {
+			r.ClockOffsetHz = ptr(g.ClockOffsetHz)
+		}
+		r.SpectrumInverted = g.Inverted
+		r.Notes = g.Notes
+		r.Unmeasured = g.Unmeasured
 	}
-	sort.Slice(out, func(i, j int) bool { return out[i].PRN < out[j].PRN })
-	return out
+	m.cached = &r
+	return r
 }
 
 // StrongestMean is the mean C/N0 (dB-Hz, a mean of the dB values) of the
@@ -144,22 +132,46 @@ func StrongestMean(sats []Satellite, n int) float64 {
 	return s / float64(len(v))
 }
 
-// cn0Drop compares a capture's satellites with the baseline's and returns
-// a cn0_drop event (without id, times or links) when the mean C/N0 of the
-// satellites common to both fell by at least margin dB, or when at least
-// half of the baseline's satellites (and at least two) were lost. The
-// drop is measured over the common satellites, PRN by PRN, so that a
-// satellite setting or rising does not look like interference.
+// cn0Drop is cn0DropFrom for satellites alone (the capture's C/N0 taken
+// as measured unless a satellite says it was only acquired).
 func cn0Drop(sats []Satellite, base *Baseline, margin float64) (Event, bool) {
-	if len(base.CN0) == 0 {
+	return cn0DropFrom(SatelliteResult{Satellites: sats}, base, margin)
+}
+
+// reliableDBHz: the satellites whose C/N0 now is at least this (3 dB above
+// the moment estimator's noise floor for a 0.25 s capture, 33 dB-Hz, see
+// gnss.Tracker.Result) carry the drop when there are any: a satellite near
+// the floor is measured only when its noise happened to lift it, so its
+// drop reads small (selection bias).
+const reliableDBHz = 36
+
+// cn0DropFrom compares a capture's measured satellites with the
+// baseline's and returns a cn0_drop event (without id, times or links)
+// when the C/N0 of the satellites common to both fell by at least margin
+// dB, or when at least half of the baseline's satellites (and at least
+// two) were lost. Nothing is compared when the satellites were not
+// measured (r.Skipped or r.Unmeasured set: skipped, too short to track,
+// all zeros, a front-end fault the pipeline found) or when any satellite
+// was only acquired: what was not measured is not a drop.
+//
+// The drop is measured PRN by PRN over the common satellites, so that a
+// satellite setting or rising does not look like interference: the mean
+// of baseline − now over the common satellites still at or above
+// reliableDBHz (all common ones when none is). Under wideband noise every
+// satellite loses the same 10·log10(1 + J/N) (REFERENCES §5, §9), which
+// the strong ones measure without bias while the weak ones are lost.
+func cn0DropFrom(r SatelliteResult, base *Baseline, margin float64) (Event, bool) {
+	if len(base.CN0) == 0 || r.Skipped != "" || r.Unmeasured != "" {
 		return Event{}, false
 	}
 	now := map[int]float64{}
-	for _, s := range sats {
+	for _, s := range r.Satellites {
+		if s.Method == MethodAcquired {
+			return Event{}, false
+		}
 		now[s.PRN] = s.CN0DBHz
 	}
 	var prns, lost []int
-	var sumBase, sumNow float64
 	// Sorted, so that the sums (and the records) do not depend on map
 	// order.
 	keys := make([]int, 0, len(base.CN0))
@@ -167,23 +179,33 @@ func cn0Drop(sats []Satellite, base *Baseline, margin float64) (Event, bool) {
 		keys = append(keys, prn)
 	}
 	sort.Ints(keys)
+	var sumBase, sumNow, relBase, relNow float64
+	rel := 0
 	for _, prn := range keys {
 		b := base.CN0[prn]
-		if c, ok := now[prn]; ok {
-			prns = append(prns, prn)
-			sumBase += b
-			sumNow += c
-		} else {
+		c, ok := now[prn]
+		if !ok {
 			lost = append(lost, prn)
+			continue
+		}
+		prns = append(prns, prn)
+		sumBase += b
+		sumNow += c
+		if c >= reliableDBHz {
+			relBase += b
+			relNow += c
+			rel++
 		}
 	}
-	sort.Ints(prns)
-	sort.Ints(lost)
 	var drop, baseMean, nowMean float64
-	if len(prns) > 0 {
+	switch {
+	case rel > 0:
+		baseMean, nowMean = relBase/float64(rel), relNow/float64(rel)
+		drop = baseMean - nowMean
+	case len(prns) > 0:
 		baseMean, nowMean = sumBase/float64(len(prns)), sumNow/float64(len(prns))
 		drop = baseMean - nowMean
-	} else {
+	default:
 		baseMean = base.CN0Mean
 		nowMean = math.NaN()
 	}
@@ -214,48 +236,26 @@ func cn0Drop(sats []Satellite, base *Baseline, margin float64) (Event, bool) {
 // them (REFERENCES §4: 34.5 dB-Hz for Pd = 0.5 with K = 10).
 const cn0Floor = 34.5
 
-// exciseN is the FFT length of the excision filter.
-const exciseN = 4096
-
-// exciseFactor is how far above the median bin power a bin must stand to
-// be removed: a bin of noise exceeds 15 times the median with probability
-// 2^−15 ≈ 3·10⁻⁵ (exponential bin powers), so the GNSS signals, far below
-// the noise, lose nothing measurable.
-const exciseFactor = 15
-
-// excise removes narrowband interference from x in place: in blocks of
-// exciseN samples, the FFT bins whose power exceeds exciseFactor times the
-// block's median are set to zero (frequency-domain excision, a standard
-// receiver front-end mitigation). A final partial block is left as it is.
-func (m *GNSSMeter) excise(x []complex64) {
-	for off := 0; off+exciseN <= len(x); off += exciseN {
-		blk := x[off : off+exciseN]
-		m.plan.Forward(m.spec, blk)
-		for k, v := range m.spec {
-			m.pow[k] = float64(real(v)*real(v) + imag(v)*imag(v))
-		}
-		thr := exciseFactor * medianScratch(&m.scratch, m.pow)
-		hit := false
-		for k, p := range m.pow {
-			if p > thr {
-				m.spec[k] = 0
-				hit = true
-			}
-		}
-		if !hit {
-			continue
-		}
-		m.plan.Inverse(blk, m.spec)
-		for i := range blk {
-			blk[i] *= complex(1.0/exciseN, 0)
-		}
-	}
-}
-
 // SatelliteResult is what a SatelliteMeter measured in one capture.
 type SatelliteResult struct {
 	Satellites []Satellite
 	Skipped    string // why nothing was measured, if so
+	// Notes name, one plain sentence each, every stage not run (or not in
+	// full) on the capture and why: for CaptureRecord.Notes.
+	Notes []string
+	// ClockOffsetHz is the receiver's common Doppler offset (the median
+	// Doppler of the satellites measured, see gnss.ClockOffset): for
+	// Stats.ClockOffsetHz. Nil when no satellite was measured.
+	ClockOffsetHz *float64
+	// SpectrumInverted is the spectrum orientation the satellites showed
+	// (or the configured one): for Stats.SpectrumInverted. Nil when not
+	// determined.
+	SpectrumInverted *bool
+	// Unmeasured, when not empty, says why the site's C/N0 was not
+	// measured although the meter ran (too short to track, shorter than
+	// the acquisition snapshot, all zeros). The pipeline sets it too when
+	// it finds a front-end fault; cn0DropFrom then compares nothing.
+	Unmeasured string
 }
 
 // MeasureSatellites reads a capture on its own and measures its
@@ -285,6 +285,9 @@ func MeasureSatellites(ctx context.Context, c *ingest.Capture, m SatelliteMeter,
 			return SatelliteResult{}, err
 		}
 		m.Block(b.Start, b.Samples)
+	}
+	if g, ok := m.(interface{ Measurement() SatelliteResult }); ok {
+		return g.Measurement(), nil
 	}
 	return SatelliteResult{Satellites: m.Result()}, nil
 }

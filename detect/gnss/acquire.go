@@ -14,10 +14,14 @@ import (
 
 // Defaults of AcqConfig.
 const (
-	// DefaultDopplerMaxHz is the default one-sided Doppler search range: the
-	// ±4.9 kHz of a static user plus a little oscillator error
-	// (REFERENCES §4).
+	// DefaultDopplerMaxHz is the default one-sided geometric Doppler
+	// range: the ±4.9 kHz of a static user plus a little (REFERENCES §4).
 	DefaultDopplerMaxHz = 5000
+	// DefaultClockMaxHz is the default one-sided receiver clock offset
+	// searched on top of the geometric range while the site's offset is
+	// unknown: 10 kHz, about 6 ppm at L1 (a 2 ppm TCXO gives 3.2 kHz, a
+	// recorder without one several times that; REFERENCES §12.5).
+	DefaultClockMaxHz = 10000
 	// DefaultCoherentMs is the default coherent integration time in code
 	// periods (milliseconds).
 	DefaultCoherentMs = 1
@@ -73,8 +77,14 @@ func checkBand(fs, centerHz float64) (float64, error) {
 type AcqConfig struct {
 	// PRNs lists the satellites searched (default 1–32).
 	PRNs []int
-	// DopplerMaxHz is the one-sided Doppler search range (default 5000 Hz).
+	// DopplerMaxHz is the one-sided geometric Doppler range (default
+	// 5000 Hz).
 	DopplerMaxHz float64
+	// ClockMaxHz is the one-sided receiver clock offset range added to
+	// DopplerMaxHz (default 10 000 Hz; negative: none). Acquire searches
+	// ±(DopplerMaxHz + ClockMaxHz); AcquireAround searches a narrower
+	// window of the same grid once the site's clock offset is known.
+	ClockMaxHz float64
 	// DopplerStepHz is the Doppler bin spacing. The default is 1/(2T) for a
 	// coherent time T, 500 Hz at T = 1 ms: inside the 2/(3T) bin width of
 	// Kaplan & Hegarty 2006 (from memory), with a worst-case loss of
@@ -132,6 +142,17 @@ func (c AcqConfig) withDefaults() (AcqConfig, error) {
 	}
 	if !(c.DopplerMaxHz > 0) || c.DopplerMaxHz > 50e3 {
 		return c, fmt.Errorf("gnss: AcqConfig.DopplerMaxHz %g outside (0, 50000]", c.DopplerMaxHz)
+	}
+	switch {
+	case c.ClockMaxHz == 0:
+		c.ClockMaxHz = DefaultClockMaxHz
+	case c.ClockMaxHz < 0:
+		c.ClockMaxHz = 0
+	case math.IsNaN(c.ClockMaxHz):
+		return c, fmt.Errorf("gnss: AcqConfig.ClockMaxHz is NaN")
+	}
+	if c.DopplerMaxHz+c.ClockMaxHz > 50e3 {
+		return c, fmt.Errorf("gnss: AcqConfig.DopplerMaxHz + ClockMaxHz = %g Hz exceeds 50000", c.DopplerMaxHz+c.ClockMaxHz)
 	}
 	T := float64(c.CoherentMs) * 1e-3
 	if c.DopplerStepHz == 0 {
@@ -220,7 +241,10 @@ type Acquirer struct {
 	halfAfter   []int
 	screened    []bool
 	gammaScreen float64
-	zPrev, zCur []complex64 // z_k of two adjacent anchor rows, nBlock·nLag each
+	// Per search (see AcquireAround): active[d] marks the Doppler rows of
+	// the window searched, screenNow[d] the half-bin rows screened in it.
+	active, screenNow []bool
+	zPrev, zCur       []complex64 // z_k of two adjacent anchor rows, nBlock·nLag each
 
 	plan       transformer // forward, nGrid points
 	lagPlan    transformer // inverse, nLag points
@@ -277,7 +301,7 @@ func NewAcquirer(cfg AcqConfig, fs, centerHz float64) (*Acquirer, error) {
 		fa:       gridPerMs * 1e3,
 		specBase: -1,
 	}
-	half := int(math.Ceil(cfg.DopplerMaxHz/cfg.DopplerStepHz - 1e-9))
+	half := int(math.Ceil((cfg.DopplerMaxHz+cfg.ClockMaxHz)/cfg.DopplerStepHz - 1e-9))
 	for i := -half; i <= half; i++ {
 		a.dops = append(a.dops, float64(i)*cfg.DopplerStepHz)
 	}
@@ -311,6 +335,8 @@ func NewAcquirer(cfg AcqConfig, fs, centerHz float64) (*Acquirer, error) {
 	// adjacent ones.
 	a.base0 = slices.IndexFunc(a.bases, func(v float64) bool { return v == 0 })
 	a.screened = make([]bool, len(a.dops))
+	a.active = make([]bool, len(a.dops))
+	a.screenNow = make([]bool, len(a.dops))
 	for d := range a.dops {
 		if a.dopBase[d] == a.base0 {
 			a.anchors = append(a.anchors, d)
@@ -485,11 +511,36 @@ func DetectionThreshold(k int, pfaCell float64) float64 {
 //     |Δf| < 500 Hz (half the bin spacing is 250 Hz); a data-bit
 //     transition flips one product of the K·T − 1 and is outvoted.
 func (a *Acquirer) Acquire(dst []Acquired, x []complex64) ([]Acquired, error) {
+	return a.AcquireAround(dst, x, 0, math.Inf(1))
+}
+
+// AcquireAround is Acquire restricted to the Doppler bins within
+// centerHz ± halfWidthHz of the grid (at least the bin nearest centerHz):
+// the narrow search once the site's clock offset is known. The threshold
+// γ stays the one of the whole grid (DetectionThreshold with N_cells of
+// every bin), so a satellite inside the window gets the same decision as
+// in the full search and the records do not depend on which search ran.
+func (a *Acquirer) AcquireAround(dst []Acquired, x []complex64, centerHz, halfWidthHz float64) ([]Acquired, error) {
 	dst = dst[:0]
 	if len(x) < a.nSamples {
 		return dst, fmt.Errorf("gnss: snapshot has %d samples, acquisition needs %d (%d ms at %g S/s)",
 			len(x), a.nSamples, a.nBlock*a.coh, a.fs)
 	}
+	if math.IsNaN(centerHz) || math.IsNaN(halfWidthHz) {
+		return dst, fmt.Errorf("gnss: invalid Doppler window %v ± %v Hz", centerHz, halfWidthHz)
+	}
+	near, any := 0, false
+	for d, f := range a.dops {
+		a.active[d] = math.Abs(f-centerHz) <= halfWidthHz
+		any = any || a.active[d]
+		if math.Abs(f-centerHz) < math.Abs(a.dops[near]-centerHz) {
+			near = d
+		}
+	}
+	if !any {
+		a.active[near] = true
+	}
+	clear(a.screenNow)
 	a.bin(x)
 	for i := range a.prns {
 		p := &a.prns[i]
@@ -508,12 +559,12 @@ func (a *Acquirer) Acquire(dst []Acquired, x []complex64) ([]Acquired, error) {
 		}
 		a.transform(b)
 		for d := range a.dops {
-			if a.dopBase[d] != b {
+			if a.dopBase[d] != b || !a.active[d] {
 				continue
 			}
 			for i := range a.prns {
 				p := &a.prns[i]
-				use := !a.screened[d] || p.candidate[d] || a.exhaustive
+				use := !a.screenNow[d] || p.candidate[d] || a.exhaustive
 				if use || a.rowHook != nil {
 					a.correlate(p, d, nil, use, -1)
 				}
@@ -792,9 +843,24 @@ const screenFraction = 0.6
 // Σ_k |z_s − z_{s+1}|². Against the exact half-bin row it keeps, for a tone
 // at s + δ, the SNR fraction (sin πδ/(4δ(1 − δ)))²/(π²/8)/sinc²(δ − ½):
 // at least 0.81 (at δ = ½, −0.91 dB), 0.89 at δ = ¼ or ¾ (computed).
+//
+// Only the rows of the current window (a.active) are searched; a half-bin
+// row is screened only if both its anchors are in the window (screenNow),
+// otherwise it is computed exactly.
 func (a *Acquirer) searchAnchors(p *prnState) {
+	prevDone := false
 	for i, d := range a.anchors {
+		if !a.active[d] {
+			prevDone = false
+			continue
+		}
 		h := a.halfAfter[i]
+		if h >= 0 {
+			a.screenNow[h] = prevDone && a.active[h]
+			if !a.screenNow[h] {
+				h = -1
+			}
+		}
 		a.correlate(p, d, a.zCur, true, h)
 		if h >= 0 {
 			if m, _, ok := rowPeak(a.row2, a.nBlock); ok && m > a.gammaScreen {
@@ -802,6 +868,7 @@ func (a *Acquirer) searchAnchors(p *prnState) {
 			}
 		}
 		a.zPrev, a.zCur = a.zCur, a.zPrev
+		prevDone = true
 	}
 }
 

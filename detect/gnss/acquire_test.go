@@ -90,13 +90,14 @@ func TestAcqConfig(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	// Defaults: PRN 1–32, ±5 kHz in 500 Hz steps (21 bins), K = 10 → 10 ms.
-	if len(a.prns) != 32 || len(a.dops) != 21 || a.dops[0] != -5000 || a.dops[20] != 5000 || a.SnapshotLen() != 40000 {
+	// Defaults: PRN 1–32, ±(5 + 10) kHz in 500 Hz steps (61 bins), K = 10
+	// → 10 ms.
+	if len(a.prns) != 32 || len(a.dops) != 61 || a.dops[0] != -15000 || a.dops[60] != 15000 || a.SnapshotLen() != 40000 {
 		t.Errorf("defaults: %d PRNs, bins %v, snapshot %d", len(a.prns), a.dops, a.SnapshotLen())
 	}
 	for _, bad := range []AcqConfig{
 		{PRNs: []int{0}}, {PRNs: []int{3, 3}}, {PRNs: []int{}}, {CoherentMs: -1}, {NonCoherent: -2},
-		{DopplerStepHz: 700}, {Pfa: 1.5}, {DopplerMaxHz: -1},
+		{DopplerStepHz: 700}, {Pfa: 1.5}, {DopplerMaxHz: -1}, {DopplerMaxHz: 45e3, ClockMaxHz: 10e3},
 	} {
 		if _, err := NewAcquirer(bad, 4e6, gpsca.L1); err == nil {
 			t.Errorf("%+v accepted", bad)
@@ -106,6 +107,11 @@ func TestAcqConfig(t *testing.T) {
 		t.Error("short snapshot accepted")
 	}
 }
+
+// geometricOnly searches the geometric ±5 kHz only (21 Doppler bins, no
+// receiver clock range): the acquisition tests that are not about the
+// clock range run on it, at a third of the default search's cost.
+var geometricOnly = AcqConfig{ClockMaxHz: -1}
 
 // chipErr returns the wrapped code-phase difference in chips.
 func chipErr(a, b float64) float64 {
@@ -128,7 +134,7 @@ func TestAcquireDetection(t *testing.T) {
 		fs       float64
 		captures int
 	}{{4e6, 5}, {5e6, 3}, {10e6, 2}} {
-		a, err := NewAcquirer(AcqConfig{}, tc.fs, gpsca.L1)
+		a, err := NewAcquirer(geometricOnly, tc.fs, gpsca.L1)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -215,7 +221,7 @@ func TestAcquireNoiseOnly(t *testing.T) {
 			defer wg.Done()
 			fs := []float64{4e6, 5e6}[w%2]
 			rng := rand.New(rand.NewPCG(51, uint64(w)))
-			a, err := NewAcquirer(AcqConfig{}, fs, gpsca.L1)
+			a, err := NewAcquirer(geometricOnly, fs, gpsca.L1)
 			if err != nil {
 				t.Error(err)
 				return
@@ -323,7 +329,7 @@ func testRowNoise(row []float64, k int) float64 {
 func TestCrossCorrelationRejection(t *testing.T) {
 	const fs = 4e6
 	rng := rand.New(rand.NewPCG(42, 1))
-	a, err := NewAcquirer(AcqConfig{}, fs, gpsca.L1)
+	a, err := NewAcquirer(geometricOnly, fs, gpsca.L1)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -379,7 +385,7 @@ func TestAcquireScreen(t *testing.T) {
 		fs       float64
 		captures int
 	}{{4e6, 4}, {10e6, 2}} {
-		a, err := NewAcquirer(AcqConfig{}, tc.fs, gpsca.L1)
+		a, err := NewAcquirer(geometricOnly, tc.fs, gpsca.L1)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -410,7 +416,7 @@ func TestAcquireScreen(t *testing.T) {
 		t.Errorf("only %d satellites compared", compared)
 	}
 	// Noise only.
-	a, err := NewAcquirer(AcqConfig{}, 4e6, gpsca.L1)
+	a, err := NewAcquirer(geometricOnly, 4e6, gpsca.L1)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -456,7 +462,7 @@ func TestAcquireDetectionLong(t *testing.T) {
 		fs       float64
 		captures int
 	}{{4e6, 150}, {10e6, 80}} {
-		a, err := NewAcquirer(AcqConfig{}, tc.fs, gpsca.L1)
+		a, err := NewAcquirer(geometricOnly, tc.fs, gpsca.L1)
 		if err != nil {
 			t.Fatal(err)
 		}

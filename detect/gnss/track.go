@@ -58,6 +58,17 @@ const settleEpochs = 60
 // minEpochs is the fewest prompts for which Result reports a satellite.
 const minEpochs = 50
 
+// Code-rate check window (see CodeRates): the epochs of the pull-in after
+// the first few, while the delay-locked loop is fast enough to follow a
+// code Doppler error of up to about 20 chips/s (the ±15 kHz of a
+// spectrum inverted the wrong way round, 2·15 kHz/1540) with a lag of at
+// most 0.2 chip (steady-state error rate/(k_c·1 kHz) of a first-order
+// loop).
+const (
+	rateFrom = 5
+	rateTo   = settleEpochs
+)
+
 // Fixed-point formats: carrier phase in cycles·2^64, code phase in
 // chips·2^32.
 const (
@@ -145,6 +156,14 @@ type channel struct {
 
 	est   MomentCN0
 	fdSum float64
+
+	// Code-rate regression over epochs rateFrom … rateTo − 1: least-squares
+	// sums of the code phase φ_k = corrChips + τ̂_k (chips, relative to
+	// the carrier-aided NCO) against the epoch index k (see CodeRates).
+	rn                   float64
+	rk, rphi, rkk, rkphi float64
+	rphiphi              float64
+	fdRate               float64 // Doppler estimate at the end of the regression
 }
 
 // Tracker tracks a set of acquired satellites over consecutive sample blocks
@@ -188,6 +207,7 @@ type Tracker struct {
 	next     int64 // next sample index expected
 	ch       []channel
 
+	conj     bool         // conjugate the input (an inverted spectrum), see SetConjugate
 	mixStep  uint64       // (L1 − fc)/fs in cycles·2^64 per sample; 0: no mixing
 	pre      []complex128 // pre[i] = S[bufStart + i]
 	nPre     int          // valid entries of pre
@@ -263,6 +283,13 @@ func NewTracker(fs, centerHz float64, sats []Acquired, start int64) (*Tracker, e
 	}
 	return t, nil
 }
+
+// SetConjugate makes the tracker correlate conj(x) instead of x: the
+// capture's spectrum is inverted (I and Q swapped, or a high-side LO;
+// REFERENCES §12.2), so conj(x) is the upright signal, L1 at −(L1 − fc)
+// in x. The satellites given to NewTracker must then carry the Doppler of
+// the upright signal. Call it before the first Process.
+func (t *Tracker) SetConjugate(conj bool) { t.conj = conj }
 
 // phaseStep returns f cycles per sample (|f| < ½) as a cycles·2^64 step.
 func phaseStep(f float64) uint64 { return uint64(int64(math.Round(f * (1 << 63) * 2))) }
@@ -350,7 +377,11 @@ func (t *Tracker) frontEnd(x []complex64, first int64) {
 	pos := int((first - t.start) & 3)
 	step := t.mixStep
 	ph := uint64(first-t.start) * step
+	conj := t.conj
 	mix := func(v complex64) complex128 {
+		if conj {
+			v = complex(real(v), -imag(v))
+		}
 		if step == 0 {
 			return complex128(v)
 		}
@@ -377,7 +408,7 @@ func (t *Tracker) frontEnd(x []complex64, first int64) {
 		add(i, mix(x[i]))
 	}
 	n4 := i + (len(x)-i)&^3
-	if step == 0 {
+	if step == 0 && !conj {
 		for ; i < n4; i += 4 {
 			q := pre[i : i+4 : i+4]
 			v := x[i : i+4 : i+4]
@@ -624,7 +655,18 @@ func (t *Tracker) dump(c *channel) {
 	}
 	corr := 0.0
 	if ae, al := abs(e), abs(l); ae+al > 0 {
-		corr = kc * (1 - elSpacing) * (ae - al) / (ae + al)
+		tau := (1 - elSpacing) * (ae - al) / (ae + al)
+		corr = kc * tau
+		if c.epoch >= rateFrom && c.epoch < rateTo {
+			k, phi := float64(c.epoch), c.corrChips+tau
+			c.rn++
+			c.rk += k
+			c.rphi += phi
+			c.rkk += k * k
+			c.rkphi += k * phi
+			c.rphiphi += phi * phi
+			c.fdRate = c.fd
+		}
 	}
 	c.corrChips += corr
 	if c.epoch >= settleEpochs {
@@ -654,17 +696,66 @@ func (t *Tracker) Result() []Satellite {
 		if c.est.N() < minEpochs {
 			continue
 		}
-		cn0, ok := c.est.CN0(1e-3)
+		cn0, ok := c.est.CN0dB(1e-3)
 		if !ok {
 			continue
 		}
 		out = append(out, Satellite{
 			System:         "GPS",
 			PRN:            c.prn,
-			CN0dBHz:        dB(cn0),
+			CN0dBHz:        cn0,
 			DopplerHz:      c.fdSum / float64(c.est.N()),
 			CodePhaseChips: gpsca.WrapChips(c.initPhase + c.corrChips),
 		})
 	}
 	return slices.Clip(out)
+}
+
+// ChannelState is the state of one tracking channel (see Tracker.Channels).
+type ChannelState struct {
+	PRN int
+	// Epochs is the number of code epochs (≈ 1 ms) dumped so far.
+	Epochs int
+	// Prompts is the number of prompts in the C/N0 estimate (epochs after
+	// the pull-in).
+	Prompts int
+	// DopplerHz is the loop's current carrier Doppler estimate.
+	DopplerHz float64
+	// CodePhaseChips is the code phase at the tracker's start sample,
+	// refined by the delay-locked loop so far.
+	CodePhaseChips float64
+	// CodeRateErr is the code Doppler measured over the pull-in minus the
+	// carrier-aided one, f_D/1540 chips/s (REFERENCES §11.4), in chips/s:
+	// the slope of a least-squares line through the code phase the loop
+	// followed, φ_k = (DLL corrections up to epoch k) + τ̂_k, over epochs
+	// 5 … 59. CodeRateVar is its variance from the line's residuals, and
+	// CodeRateDopplerHz the carrier Doppler at the end of that window.
+	// CodeRateVar is 0 when fewer than ten epochs were seen.
+	CodeRateErr, CodeRateVar, CodeRateDopplerHz float64
+}
+
+// Channels returns the state of every channel, in the order given to
+// NewTracker.
+func (t *Tracker) Channels() []ChannelState {
+	out := make([]ChannelState, len(t.ch))
+	for i := range t.ch {
+		c := &t.ch[i]
+		st := ChannelState{PRN: c.prn, Epochs: c.epoch, Prompts: c.est.N(), DopplerHz: c.fd,
+			CodePhaseChips: gpsca.WrapChips(c.initPhase + c.corrChips), CodeRateDopplerHz: c.fdRate}
+		if n := c.rn; n >= 10 {
+			skk := c.rkk - c.rk*c.rk/n
+			skp := c.rkphi - c.rk*c.rphi/n
+			spp := c.rphiphi - c.rphi*c.rphi/n
+			if skk > 0 {
+				b := skp / skk // chips per epoch
+				res := max(spp-b*skp, 0) / (n - 2)
+				// An epoch is one code period, 1 ms·(1 − f_D/L1): 1 ms
+				// within 10⁻⁵.
+				st.CodeRateErr = b * 1e3
+				st.CodeRateVar = res / skk * 1e6
+			}
+		}
+		out[i] = st
+	}
+	return out
 }

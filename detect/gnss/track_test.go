@@ -36,51 +36,82 @@ func perturbed(rng *rand.Rand, s satSpec) Acquired {
 
 // TestTrackCN0Accuracy: one satellite per 0.25 s capture (50 bit/s data,
 // Doppler within ±5 kHz with matching code Doppler, C/N0 = A²·fs/σ² exactly,
-// REFERENCES §3 model), at 4 and 10 MS/s. Requirement: RMS error ≤ 1 dB over
-// all levels and |bias| ≤ 0.5 dB at each level from 35 to 50 dB-Hz. Expected
-// spread (REFERENCES §3 Monte Carlo, computed): moment method std 0.2–0.3 dB
-// with 1000 prompts, so about 0.45–0.7 dB with the ~190 prompts used here
-// (observed: about 0.85 dB at 35 dB-Hz, 0.45 dB at 38 dB-Hz and above).
+// REFERENCES §3 model), at 4 and 10 MS/s. Requirement: |bias| ≤ 0.5 dB at
+// each level from 30 to 53 dB-Hz (the mean of the dB values against the
+// synthesizer's exact C/N0) and RMS error ≤ 1 dB from 35 dB-Hz up.
+// Expected spread (REFERENCES §3 Monte Carlo, computed): moment method std
+// 0.2–0.3 dB with 1000 prompts, so about 0.45–0.7 dB with the ~190 prompts
+// used here (observed: about 1.8 dB at 30 dB-Hz, 0.85 dB at 35 dB-Hz,
+// 0.45 dB at 38 dB-Hz and above). Without the log-bias correction of
+// MomentCN0.CN0dB the mean at 30 dB-Hz reads −0.86 dB (measured, 100
+// captures). Forty trials at 30 and 32 dB-Hz keep the standard error of the
+// bias near 0.25 dB, ten above (0.27 dB at 35 dB-Hz, less above).
 // One satellite per capture because other C/A signals raise the effective
 // N0 (spectral separation coefficient −61.9 dB/Hz, REFERENCES §7): a 50 dB-Hz
 // companion would lower a weak satellite's true C/N0 by about 0.3 dB.
 func TestTrackCN0Accuracy(t *testing.T) {
-	levels := []float64{35, 38, 42, 46, 50}
-	// Ten trials per level: the standard error of each bias is then about
-	// 0.2 dB at 35 dB-Hz, well inside the 0.5 dB bound.
-	trials := 10
+	levels := []float64{30, 32, 35, 38, 42, 46, 50, 53}
 	for _, fs := range []float64{4e6, 10e6} {
 		t.Run(fmt.Sprintf("%gMSps", fs/1e6), func(t *testing.T) {
 			rng := rand.New(rand.NewPCG(61, uint64(fs)))
 			var sq float64
 			n := 0
 			for _, cn0 := range levels {
-				var bias float64
+				if cn0 < 35 && fs != 4e6 {
+					continue // the low levels at 4 MS/s only (test time)
+				}
+				trials := 10
+				if cn0 < 35 {
+					trials = 40
+				}
+				var bsum float64
+				bn := 0
 				for range trials {
 					s := randomSat(rng, 1+rng.IntN(32), cn0, 5000)
 					c := synthesize(rng, fs, gpsca.L1, 1, int(0.25*fs), []satSpec{s})
 					r := track(t, fs, gpsca.L1, []Acquired{perturbed(rng, s)}, c.x, 65536)
 					if len(r) != 1 {
+						if cn0 < 35 {
+							// Below the estimator's floor now and then
+							// (REFERENCES §3: invalid moment estimates).
+							continue
+						}
 						t.Fatalf("%g dB-Hz: no estimate", cn0)
 					}
 					e := r[0].CN0dBHz - cn0
-					bias += e / float64(trials)
-					sq += e * e
-					n++
+					bsum += e
+					bn++
+					if cn0 >= 35 {
+						sq += e * e
+						n++
+					}
 					// Doppler: FLL output averaged over the estimation interval;
 					// about 6 Hz standard deviation at 35 dB-Hz, 1 Hz at 38 (computed).
-					dopTol := 10.0
+					dopTol, phaseTol := 10.0, 0.08
 					if cn0 < 38 {
 						dopTol = 30
+					}
+					if cn0 < 35 {
+						// At λ = C/N0·T ≈ 1–1.6 per prompt the frequency
+						// discriminator is noise-dominated: errors up to
+						// 230 Hz observed; the bound is the ±1/(4T) =
+						// 250 Hz range of the atan discriminator, beyond
+						// which the loop would have slipped to a false
+						// lock. The C/N0 bias above includes the loss.
+						dopTol, phaseTol = 250, 0.15
 					}
 					if d := r[0].DopplerHz - s.dopplerHz; math.Abs(d) > dopTol {
 						t.Errorf("%g dB-Hz: Doppler error %.2f Hz", cn0, d)
 					}
-					if d := chipErr(r[0].CodePhaseChips, s.codePhase); math.Abs(d) > 0.08 {
+					if d := chipErr(r[0].CodePhaseChips, s.codePhase); math.Abs(d) > phaseTol {
 						t.Errorf("%g dB-Hz: code phase error %.3f chips", cn0, d)
 					}
 				}
-				t.Logf("%g dB-Hz: bias %+.2f dB", cn0, bias)
+				bias := bsum / float64(bn)
+				t.Logf("%g dB-Hz: bias %+.2f dB over %d estimates", cn0, bias, bn)
+				if bn < trials*3/4 {
+					t.Errorf("%g dB-Hz: only %d of %d estimates valid", cn0, bn, trials)
+				}
 				if math.Abs(bias) > 0.5 {
 					t.Errorf("%g dB-Hz: bias %+.2f dB", cn0, bias)
 				}

@@ -1,0 +1,590 @@
+package gnss
+
+import (
+	"fmt"
+	"math"
+	"slices"
+
+	"quietband/ingest/gpsca"
+)
+
+// Measurement methods of a Measured satellite.
+const (
+	MethodTracked  = "tracked"
+	MethodAcquired = "acquired"
+)
+
+// Measured is one satellite measured by a Meter. Doppler and code phase
+// are those of the upright signal (after undoing a spectrum inversion).
+type Measured struct {
+	PRN            int
+	CN0dBHz        float64
+	DopplerHz      float64
+	CodePhaseChips float64 // at the capture's first sample
+	// Method is MethodTracked (C/N0 from the tracking loops' prompts) or
+	// MethodAcquired (from the acquisition peak only, see acquiredCN0).
+	Method string
+}
+
+// Measurement is what a Meter measured in one capture.
+type Measurement struct {
+	Satellites []Measured // ascending PRN
+	// ClockOffsetHz is the receiver's common Doppler offset (see
+	// ClockOffset); HasClock is false when no satellite was measured.
+	ClockOffsetHz float64
+	HasClock      bool
+	// Inverted is the spectrum orientation: true or false when the
+	// satellites determined it (or MeterConfig.Inverted forced it), nil
+	// when it could not be determined.
+	Inverted *bool
+	// Unmeasured, when not empty, says why the site's C/N0 was not
+	// measured on this capture (too short to track, no snapshot, all
+	// zeros): a C/N0 comparison must not use it.
+	Unmeasured string
+	// Notes are plain sentences naming every stage not run (or not run in
+	// full) and why.
+	Notes []string
+	// Mitigation is what interference mitigation removed from the
+	// acquisition snapshot.
+	Mitigation MitigationStats
+	// WideSearch tells whether acquisition searched the whole receiver
+	// clock range (±(DopplerMaxHz + ClockMaxHz)) rather than the narrow
+	// window around the site's known clock offset.
+	WideSearch bool
+}
+
+// MeterConfig configures a Meter. Zero fields take their defaults.
+type MeterConfig struct {
+	// Acq configures acquisition (see AcqConfig). Its Pfa is the
+	// false-alarm probability of one PRN search.
+	Acq AcqConfig
+	// Inverted, when set, forces the spectrum orientation (true: the
+	// capture's spectrum is inverted, I and Q swapped; REFERENCES §12.2)
+	// instead of deciding it from the satellites.
+	Inverted *bool
+	// NarrowHz is the one-sided Doppler window searched around the site's
+	// clock offset once it is known (default DopplerMaxHz + 2 kHz: the
+	// median Doppler of the satellites carries part of the geometric
+	// Dopplers, see ClockOffset).
+	NarrowHz float64
+}
+
+// Meter measures the GPS L1 C/A satellites of captures, one capture at a
+// time, block by block; it keeps what it learned about the site (the
+// receiver clock offset, the spectrum orientation) from capture to
+// capture of one input.
+//
+// Per capture:
+//
+//  1. Acquisition on the first snapshot (10 ms by default) after
+//     interference mitigation (Mitigator: excision, short-time excision,
+//     pulse blanking), over the whole receiver-clock range while the
+//     site's clock offset is unknown (±15 kHz by default), then within
+//     NarrowHz of the site's offset (falling back to the whole range when
+//     the narrow search finds fewer than half the satellites the site had).
+//  2. Tracking (Tracker) of the acquired satellites on the samples as they
+//     are (an ordinary receiver's view: effective C/N0), in the site's
+//     orientation (upright until known).
+//  3. The spectrum orientation from the satellites themselves, at the end
+//     of the pull-in (60 ms): code Doppler has the sign of carrier
+//     Doppler/1540 at L1 (REFERENCES §11.4); the carrier-aided code NCO of
+//     a tracker in the wrong orientation runs 2·f_D/1540 chips/s off, which
+//     its delay-locked loop follows. The weighted regression of the
+//     measured code-rate error on the carrier Doppler across satellites
+//     (the test of REFERENCES §12.2) has slope 0 in the right orientation
+//     and −2/1540 in the wrong one, for any receiver clock offset (the
+//     clock term flips with the signals). With d_i the code-rate error of
+//     satellite i (ChannelState.CodeRateErr), v_i its variance and f_i its
+//     Doppler, β = Σ f_i·d_i/v_i / Σ f_i²/v_i with standard error
+//     s = 1/√(Σ f_i²/v_i) (scaled by the residuals' reduced χ² when it
+//     exceeds 1); the orientation is decided when
+//     |β + 1/1540| > 4s, and is wrong when β < −1/1540. Then the tracker
+//     is restarted at that sample on the conjugated samples, from the
+//     acquisition's code phase carried forward with the corrected code
+//     Doppler, so that C/N0 is measured on corrected samples without
+//     reading the capture twice (the first capture of an inverted input
+//     loses its first 60 ms of C/N0 prompts; later captures start in the
+//     right orientation).
+//  4. Result: tracked satellites (at least 50 prompts after the pull-in,
+//     above the estimator's noise floor) as MethodTracked; when the
+//     capture is too short to track, the acquired satellites as
+//     MethodAcquired. Satellites acquired but lost in tracking are not
+//     reported (a note says so).
+//
+// A Meter is not safe for concurrent use.
+type Meter struct {
+	cfg MeterConfig
+	acq *Acquirer
+	mit *Mitigator
+	fs  float64
+	fc  float64
+	k   int // coherent blocks of the acquisition
+
+	snap, clean []complex64
+	mitBuf      []complex64 // mitigated block, when tracking on mitigated samples
+
+	// Per capture.
+	fill     int
+	seen     int64 // samples seen so far (end of the last block)
+	acqDone  bool
+	allZero  bool
+	acquired []Acquired // recorded frame
+	powerDB  float64    // snapshot power, dB (of full scale 1)
+	mitStats MitigationStats
+	wide     bool
+	mitTrack bool // track on mitigated samples (see mitigatedTracking)
+	tr       *Tracker
+	trStart  int64
+	trInv    bool // orientation of the tracker (conjugated samples)
+	decided  bool
+	invKnown bool // the orientation was determined on this capture
+	restarts int
+	resulted bool
+
+	// The site (carried from capture to capture while fs and fc stay).
+	site struct {
+		clockKnown bool
+		clockHz    float64 // recorded frame (acquisition search centre)
+		count      int     // satellites acquired then
+		powerDB    float64 // snapshot power when satellites were last measured
+		hasPower   bool
+		invKnown   bool
+		inv        bool
+	}
+}
+
+// NewMeter returns a Meter with configuration cfg.
+func NewMeter(cfg MeterConfig) *Meter { return &Meter{cfg: cfg} }
+
+// Start prepares for the next capture, sampled at fs and centred at
+// centerHz. It returns an error wrapping ErrL1NotInBand when L1 is not in
+// the band, or another configuration error; the Meter then measures
+// nothing until the next successful Start. A new rate or centre forgets
+// what was learned about the site.
+func (m *Meter) Start(fs, centerHz float64) error {
+	m.fill, m.seen, m.acqDone, m.allZero = 0, 0, false, false
+	m.acquired, m.mitStats, m.wide, m.mitTrack = m.acquired[:0], MitigationStats{}, false, false
+	m.tr, m.trStart, m.trInv, m.decided, m.invKnown, m.restarts, m.resulted = nil, 0, false, false, false, 0, false
+	if m.acq != nil && m.fs == fs && m.fc == centerHz {
+		return nil
+	}
+	m.acq = nil
+	a, err := NewAcquirer(m.cfg.Acq, fs, centerHz)
+	if err != nil {
+		return err
+	}
+	m.acq, m.fs, m.fc, m.k = a, fs, centerHz, a.nBlock*a.coh
+	m.mit = NewMitigator(fs)
+	m.snap = make([]complex64, a.SnapshotLen())
+	m.clean = make([]complex64, a.SnapshotLen())
+	m.site.clockKnown, m.site.invKnown, m.site.hasPower = false, false, false
+	return nil
+}
+
+// Block takes the next block of samples; start is the index of x[0] in
+// the capture.
+func (m *Meter) Block(start int64, x []complex64) {
+	if m.acq == nil {
+		return
+	}
+	m.seen = max(m.seen, start+int64(len(x)))
+	if m.tr != nil {
+		m.process(start, x)
+		m.decide()
+		return
+	}
+	if m.acqDone {
+		return
+	}
+	k := copy(m.snap[m.fill:], x)
+	m.fill += k
+	if m.fill < len(m.snap) {
+		return
+	}
+	m.acquire()
+	if m.tr == nil {
+		return
+	}
+	if m.mitTrack {
+		m.tr.Process(m.clean, 0)
+	} else {
+		m.tr.Process(m.snap, 0)
+	}
+	if k < len(x) {
+		m.process(start+int64(k), x[k:])
+	}
+	m.decide()
+}
+
+// process feeds the tracker one block, mitigated first when the
+// interference is too strong for raw tracking (see mitigatedTracking).
+func (m *Meter) process(start int64, x []complex64) {
+	if !m.mitTrack {
+		m.tr.Process(x, start)
+		return
+	}
+	if cap(m.mitBuf) < len(x) {
+		m.mitBuf = make([]complex64, len(x))
+	}
+	y := m.mitBuf[:len(x)]
+	m.mit.Mitigate(y, x)
+	m.tr.Process(y, start)
+}
+
+// Tracking on mitigated samples: when mitigation removed at least
+// mitigatedExcised of the snapshot's power (an interferer at least 10 dB
+// above the noise) or blanked at least mitigatedBlanked of its samples,
+// the interference left in the raw prompts is not noise-like: a strong
+// CW or sweep correlates with the code through its 1 kHz lines into a
+// component of nearly constant modulus, which the moment estimator takes
+// for signal (raw tracking under a 30 dB CW read C/N0 up to 19 dB above
+// the truth in the test bank). The tracker then runs on the mitigated
+// blocks, and a note says that the C/N0 is the mitigated receiver's.
+const (
+	mitigatedExcised = 0.9
+	mitigatedBlanked = 0.01
+)
+
+// orientation returns the orientation to start tracking in: forced, or
+// the site's, or upright.
+func (m *Meter) orientation() bool {
+	switch {
+	case m.cfg.Inverted != nil:
+		return *m.cfg.Inverted
+	case m.site.invKnown:
+		return m.site.inv
+	}
+	return false
+}
+
+// narrowHz returns the one-sided window of the narrow search.
+func (m *Meter) narrowHz() float64 {
+	if m.cfg.NarrowHz > 0 {
+		return m.cfg.NarrowHz
+	}
+	return m.acq.cfg.DopplerMaxHz + 2000
+}
+
+// acquire runs acquisition on the full snapshot and starts tracking.
+func (m *Meter) acquire() {
+	m.acqDone = true
+	p := power(m.snap)
+	if p == 0 {
+		m.allZero = true
+		return
+	}
+	m.powerDB = dB(p / float64(len(m.snap)))
+	m.mitStats = m.mit.Mitigate(m.clean, m.snap)
+	m.mitTrack = m.mitStats.ExcisedFraction >= mitigatedExcised || m.mitStats.BlankedFraction >= mitigatedBlanked
+	var err error
+	if m.site.clockKnown {
+		m.acquired, err = m.acq.AcquireAround(m.acquired, m.clean, m.site.clockHz, m.narrowHz())
+		if err == nil && 2*len(m.acquired) < m.site.count {
+			m.acquired, err = m.acq.Acquire(m.acquired, m.clean)
+			m.wide = true
+		}
+	} else {
+		m.acquired, err = m.acq.Acquire(m.acquired, m.clean)
+		m.wide = true
+	}
+	if err != nil || len(m.acquired) == 0 {
+		m.acquired = m.acquired[:0]
+		return
+	}
+	inv := m.orientation()
+	sats := make([]Acquired, len(m.acquired))
+	for i, a := range m.acquired {
+		sats[i] = a
+		if inv {
+			sats[i].DopplerHz = -a.DopplerHz
+		}
+	}
+	m.startTracker(sats, 0, inv)
+	if m.cfg.Inverted != nil {
+		m.decided = true
+	}
+}
+
+func (m *Meter) startTracker(sats []Acquired, start int64, inv bool) {
+	tr, err := NewTracker(m.fs, m.fc, sats, start)
+	if err != nil {
+		m.tr = nil
+		return
+	}
+	tr.SetConjugate(inv)
+	m.tr, m.trStart, m.trInv = tr, start, inv
+}
+
+// inversionSlope is the decision boundary of the orientation test: half
+// way between the slopes 0 (right orientation) and −2/1540 (wrong one) of
+// the code-rate error against the carrier Doppler, in chips/s per Hz.
+const inversionSlope = -1.0 / gpsca.CarrierToCodeRatio
+
+// decide applies the orientation test once every channel has passed the
+// code-rate window (see Meter), and restarts the tracker in the other
+// orientation if it was wrong.
+func (m *Meter) decide() {
+	if m.decided || m.tr == nil {
+		return
+	}
+	chans := m.tr.Channels()
+	for _, c := range chans {
+		if c.Epochs < rateTo {
+			return
+		}
+	}
+	m.decided = true
+	beta, se, ok := orientationSlope(chans)
+	if !ok || math.Abs(beta-inversionSlope) <= 4*se {
+		return
+	}
+	m.invKnown = true
+	if beta > inversionSlope {
+		return // the tracker's orientation is right
+	}
+	// Wrong orientation: restart on the conjugated samples from here.
+	next := m.seen
+	sats := make([]Acquired, len(chans))
+	for i, c := range chans {
+		fd := -c.DopplerHz // the loop's Doppler, in the other orientation
+		a := m.acquired[slices.IndexFunc(m.acquired, func(a Acquired) bool { return a.PRN == c.PRN })]
+		sats[i] = Acquired{PRN: c.PRN, DopplerHz: fd,
+			CodePhaseChips: gpsca.WrapChips(a.CodePhaseChips + float64(next)*gpsca.CodeRate(fd)/m.fs)}
+	}
+	m.startTracker(sats, next, !m.trInv)
+	m.restarts++
+}
+
+// orientationSlope returns the weighted least-squares slope β of the
+// code-rate error on the carrier Doppler across channels and its standard
+// error (see Meter); ok is false without usable channels. The standard
+// error 1/√(Σ f_i²/v_i) is scaled by the residuals' reduced χ² when that
+// exceeds 1 (three channels or more), so that variances v_i estimated too
+// small (the loop's code phases are correlated from epoch to epoch) do
+// not make the decision overconfident.
+func orientationSlope(chans []ChannelState) (beta, se float64, ok bool) {
+	var sfd, sff float64
+	n := 0
+	for _, c := range chans {
+		if !(c.CodeRateVar > 0) {
+			continue
+		}
+		v := max(c.CodeRateVar, 1e-3)
+		f := c.CodeRateDopplerHz
+		sfd += f * c.CodeRateErr / v
+		sff += f * f / v
+		n++
+	}
+	if !(sff > 0) {
+		return 0, 0, false
+	}
+	beta = sfd / sff
+	scale := 1.0
+	if n >= 3 {
+		var chi2 float64
+		for _, c := range chans {
+			if c.CodeRateVar > 0 {
+				r := c.CodeRateErr - beta*c.CodeRateDopplerHz
+				chi2 += r * r / max(c.CodeRateVar, 1e-3)
+			}
+		}
+		scale = max(1, chi2/float64(n-1))
+	}
+	return beta, math.Sqrt(scale / sff), true
+}
+
+// trackFloor returns the C/N0 (dB-Hz) below which a moment estimate from
+// k prompts is indistinguishable from noise at the 10⁻³ level: without a
+// signal, S²'s estimate has standard deviation 2N²/√k (see
+// Tracker.Result), so noise reads S/N = √h/(1 − √h) with h = 2·3.09/√k
+// (33 dB-Hz for 190 prompts, computed).
+func trackFloor(k int) float64 {
+	h := 2 * 3.09 / math.Sqrt(float64(k))
+	if h >= 1 {
+		return math.Inf(1)
+	}
+	r := math.Sqrt(h)
+	return dB(r / (1 - r) / 1e-3)
+}
+
+// acquiredLossDB is added to the C/N0 read from an acquisition peak: the
+// mean code-phase, filter and Doppler-bin losses of the search (−0.6 to
+// −0.9 dB and −0.3 dB, computed, see Acquire).
+const acquiredLossDB = 1.1
+
+// acquiredCN0 returns the C/N0 (dB-Hz) read from an acquisition peak: the
+// per-block SNR λ̂ = PeakMetric/K − 1 (E[S/σ²] = K(1 + λ), REFERENCES §4;
+// Gómez-Casco et al. 2018's peak-to-floor form, REFERENCES §3) over the
+// block time T, plus the mean search losses. It is biased high near the
+// threshold (the maximum selects positive noise) and scatters by about
+// ±2 dB: the quality of a MethodAcquired value.
+func (m *Meter) acquiredCN0(a Acquired) float64 {
+	k := float64(m.acq.nBlock)
+	lam := a.PeakMetric/k - 1
+	t := float64(m.acq.coh) * 1e-3
+	if !(lam > 0) {
+		return math.NaN()
+	}
+	return dB(lam/t) + acquiredLossDB
+}
+
+// Result returns the measurement of the current capture (call it after
+// the last block). The first call of a capture also updates what the
+// Meter knows of the site.
+func (m *Meter) Result() Measurement {
+	var r Measurement
+	if m.acq == nil {
+		return r
+	}
+	dur := float64(m.seen) / m.fs
+	r.Mitigation, r.WideSearch = m.mitStats, m.wide
+	switch {
+	case !m.acqDone:
+		r.Unmeasured = fmt.Sprintf("the capture (%.1f ms) is shorter than the %d ms acquisition snapshot: satellites not measured",
+			dur*1e3, m.k)
+		r.Notes = append(r.Notes, r.Unmeasured)
+		return r
+	case m.allZero:
+		r.Unmeasured = "the acquisition snapshot is all zeros: satellites not measured"
+		r.Notes = append(r.Notes, r.Unmeasured)
+		return r
+	}
+	if m.cfg.Inverted != nil {
+		r.Inverted = m.cfg.Inverted
+	} else if m.invKnown {
+		v := m.trInv
+		r.Inverted = &v
+	}
+	var chans []ChannelState
+	tracked := map[int]Satellite{}
+	if m.tr != nil {
+		chans = m.tr.Channels()
+		for _, s := range m.tr.Result() {
+			tracked[s.PRN] = s
+		}
+	}
+	var short, lost []int
+	for _, a := range m.acquired {
+		ci := slices.IndexFunc(chans, func(c ChannelState) bool { return c.PRN == a.PRN })
+		if ci < 0 {
+			continue
+		}
+		c := chans[ci]
+		if s, ok := tracked[a.PRN]; ok && s.CN0dBHz >= trackFloor(c.Prompts) {
+			cp := gpsca.WrapChips(s.CodePhaseChips - float64(m.trStart)*gpsca.CodeRate(s.DopplerHz)/m.fs)
+			r.Satellites = append(r.Satellites, Measured{PRN: a.PRN, CN0dBHz: s.CN0dBHz, DopplerHz: s.DopplerHz,
+				CodePhaseChips: cp, Method: MethodTracked})
+			continue
+		}
+		if c.Prompts >= minEpochs {
+			lost = append(lost, a.PRN)
+			continue
+		}
+		// Too short to track: the acquisition's values, in the tracker's
+		// orientation, with the loop's Doppler once it has pulled in.
+		fd := a.DopplerHz
+		if m.trInv {
+			fd = -fd
+		}
+		if c.Epochs >= 20 {
+			fd = c.DopplerHz
+		}
+		cn0 := m.acquiredCN0(a)
+		if math.IsNaN(cn0) {
+			continue
+		}
+		short = append(short, a.PRN)
+		r.Satellites = append(r.Satellites, Measured{PRN: a.PRN, CN0dBHz: cn0, DopplerHz: fd,
+			CodePhaseChips: a.CodePhaseChips, Method: MethodAcquired})
+	}
+	slices.SortFunc(r.Satellites, func(u, v Measured) int { return u.PRN - v.PRN })
+	if len(short) > 0 {
+		need := float64(settleEpochs+minEpochs) + float64(m.trStart)/m.fs*1e3
+		why := fmt.Sprintf("the capture (%.1f ms) is too short to track satellites (about %.0f ms needed", dur*1e3, need)
+		if m.restarts > 0 {
+			why += ", counting the restart after the spectrum inversion was found"
+		}
+		why += "): satellites from acquisition only, C/N0 from the acquisition peak (about ±2 dB)"
+		r.Unmeasured = why
+		r.Notes = append(r.Notes, why)
+	}
+	if len(lost) > 0 {
+		r.Notes = append(r.Notes, fmt.Sprintf("satellites %v were acquired but lost in tracking (C/N0 below the estimator's noise floor)", lost))
+	}
+	if m.mitTrack {
+		r.Notes = append(r.Notes, fmt.Sprintf("C/N0 measured after interference mitigation (%.1f dB of the band's power excised, %.1f %% of the samples blanked): a receiver without mitigation sees less",
+			-dB(max(1-r.Mitigation.ExcisedFraction, 1e-12)), 100*r.Mitigation.BlankedFraction))
+	}
+	// Interference the mitigation saw, or a band power well above the
+	// site's when its satellites were last measured (a wideband jammer
+	// raises it by 10·log10(1 + J/N); REFERENCES §9).
+	rise := m.powerDB - m.site.powerDB
+	if len(r.Satellites) == 0 && (r.Mitigation.Interfered() || len(lost) > 0 || m.site.hasPower && rise >= lostRiseDB) {
+		why := "interference was present"
+		if m.site.hasPower && rise >= lostRiseDB {
+			why = fmt.Sprintf("the band's power was %.1f dB above the site's when satellites were last measured", rise)
+		}
+		r.Notes = append(r.Notes, "no satellite could be measured while "+why+": the satellites are lost, not absent")
+	}
+	if r.Inverted == nil && m.tr != nil && !m.decided {
+		r.Notes = append(r.Notes, "spectrum orientation not determined: the capture ended before the tracking loops' pull-in (60 ms)")
+	} else if r.Inverted == nil && m.tr != nil {
+		r.Notes = append(r.Notes, "spectrum orientation not determined: the satellites' Dopplers do not separate the two orientations")
+	}
+	if f, ok := ClockOffset(r.Satellites); ok {
+		r.ClockOffsetHz, r.HasClock = f, true
+	}
+	if !m.resulted {
+		m.resulted = true
+		m.learnSite(r)
+	}
+	return r
+}
+
+// learnSite keeps the receiver clock offset (in the recorded frame, the
+// one acquisition searches) and the orientation for the next captures.
+func (m *Meter) learnSite(r Measurement) {
+	if r.Inverted != nil && m.cfg.Inverted == nil {
+		m.site.invKnown, m.site.inv = true, *r.Inverted
+	}
+	// Three satellites at least, so that one satellite's geometric
+	// Doppler does not set the window.
+	if len(r.Satellites) > 0 {
+		m.site.powerDB, m.site.hasPower = m.powerDB, true
+	}
+	if len(r.Satellites) >= 3 {
+		f := r.ClockOffsetHz
+		if m.trInv {
+			f = -f
+		}
+		m.site.clockKnown, m.site.clockHz, m.site.count = true, f, len(r.Satellites)
+	}
+}
+
+// lostRiseDB is the band power rise (dB) over the site's, with no
+// satellite measured, that makes the satellites "lost": 3 dB is
+// interference as strong as the noise (J/N = 0 dB; REFERENCES §9).
+const lostRiseDB = 3
+
+// ClockOffset returns the receiver's common Doppler offset of the given
+// satellites: the median of their carrier Dopplers (the mean of the two
+// middle ones for an even count). Without ephemeris the geometric Doppler
+// of each satellite cannot be removed, so the offset includes the median
+// geometric Doppler of the satellites in view (roughly symmetric over
+// ±4.9 kHz for a static receiver, so small but not zero; REFERENCES
+// §12.5). ok is false without satellites.
+func ClockOffset(sats []Measured) (float64, bool) {
+	if len(sats) == 0 {
+		return 0, false
+	}
+	f := make([]float64, len(sats))
+	for i, s := range sats {
+		f[i] = s.DopplerHz
+	}
+	slices.Sort(f)
+	n := len(f)
+	if n%2 == 1 {
+		return f[n/2], true
+	}
+	return (f[n/2-1] + f[n/2]) / 2, true
+}
