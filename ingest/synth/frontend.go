@@ -18,6 +18,10 @@ import (
 //	→ DC offset → quantization → spectrum inversion → sample drops → gaps
 //	→ dead / stuck / unnormalised.
 //
+// With real samples at an IF (Scenario.RealIF) the complex stream is
+// turned into real samples after the gaps, and the DC offset,
+// quantization, stuck value and scale act on those, as on one ADC.
+//
 // The receiver clock offset (clock_ppm) acts on frequencies where they are
 // made (every carrier, code rate and emitter), not on the samples.
 //

@@ -12,6 +12,36 @@
 // carrier power C = C/N0·N0 = 10^(CN0/10)·σ²/fs. An interferer's J/N is its
 // power over the noise power in the capture bandwidth, J = 10^(JN/10)·σ²;
 // for pulses it is the in-pulse peak.
+//
+// What real recordings hold, beyond that ideal sum:
+//
+//   - The sky: satellites with a Doppler rate (DopplerRateHzS, the code
+//     following the carrier at 1/1540), and a scenario Sky propagated to
+//     each capture's offset_s (Propagate); RandomSky draws a realistic sky
+//     from a seed.
+//   - Emitters keyed on and off several times (On), sweeps far wider than
+//     the band whose amplitude follows the recorder's anti-alias response
+//     (flat to 0.8·fs/2, a raised cosine to zero at fs/2) so that nothing
+//     aliases, pulses hopping over channels (ChannelsHz), any number of
+//     emitters of any kind together.
+//   - The recorder's front end (FrontEnd, per scenario, overridden part by
+//     part per capture): gain, drift and steps; a passband (tilt, ripple,
+//     roll-off) as a linear-phase FIR; its own spurs; I/Q imbalance; DC
+//     offset; low-bit quantization without AGC; the receiver clock's
+//     offset; spectrum inversion; sample drops, zero-filled gaps, dead,
+//     stuck and unnormalised captures. See FrontEnd for the order.
+//   - Real samples at an IF (RealIF, real formats), as IF-sampling front
+//     ends write them, for package ingest to convert.
+//
+// The truth then also says what the recording holds: apparent offsets,
+// Dopplers and J/N (after the clock offset, an inversion, the passband),
+// the front end and its derived values, its spurs, the faults with their
+// sample spans.
+//
+// Every capture is deterministic for a seed: each source draws from its
+// own random stream. Sources and options added since the front-end model
+// draw from streams of their own, and a scenario that uses none of them
+// is written byte for byte as before (TestUnchangedWithoutNewOptions).
 package synth
 
 import (

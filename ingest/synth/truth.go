@@ -92,12 +92,17 @@ func apparentEmitter(te *TruthEmitter, fs float64, ck clock, inv float64, pb *pa
 		}
 	case KindSwept:
 		lo, hi := ck.offset(te.LowHz), ck.offset(te.HighHz)
-		// The mean over the sweep's own samples (up to 2²⁰ of them): a
+		// The mean over the sweep's own samples: a
 		// sweep that crosses the band in a few samples on a grid that
 		// repeats every period is not its integral.
 		c := chirp{low: lo, high: hi, period: te.PeriodS, shape: te.Shape}
 		shaped := sweepLeavesBand(lo, hi, fs)
-		k := max(1, min(te.EndSample-te.StartSample, 1<<20))
+		// Whole periods when the period is a whole number of samples
+		// (then the pattern repeats exactly), else up to 2¹⁸ samples.
+		k := max(1, min(te.EndSample-te.StartSample, 1<<18))
+		if p := te.PeriodS * fs; p == math.Trunc(p) && p <= 1<<20 {
+			k = int64(p) * max(1, k/int64(p))
+		}
 		var sum float64
 		for i := int64(0); i < k; i++ {
 			f := c.freq(float64(i) / fs)

@@ -73,3 +73,90 @@ func TestWriteStreams(t *testing.T) {
 		t.Errorf("writing 2 s at 20 MS/s allocated %.1f MiB, want < 16 MiB (streaming)", float64(grow)/(1<<20))
 	}
 }
+
+// frontEnd20 is a busy front end: passband FIR, I/Q imbalance, DC offset,
+// 12-bit quantization, a spur, a clock offset, a gain step, a sample drop
+// and a gap.
+func frontEnd20() *FrontEnd {
+	return &FrontEnd{
+		Passband:     &Passband{TiltDB: 3, RippleDB: 0.5, RippleCycles: 3, RolloffDB: 20, RolloffFraction: 0.15},
+		IQImbalance:  &IQImbalance{GainError: 0.02, PhaseDeg: 1.5},
+		DCOffset:     &IQValue{I: 0.003, Q: -0.002},
+		Quantization: &Quantization{Bits: 12, SigmaLSB: 40},
+		Spurs:        []Tone{{OffsetHz: 2.5e6, JNDB: 3}},
+		ClockPPM:     ref(1.5),
+		GainSteps:    []GainStep{{AtS: 0.03, DB: 1}},
+		SampleDrops:  []SampleDrop{{AtS: 0.05, Samples: 16384}},
+		Gaps:         []Gap{{AtS: 0.07, Samples: 4096}},
+	}
+}
+
+// BenchmarkWriteFrontEnd20MSps is BenchmarkWrite20MSps through frontEnd20
+// and with the satellites' Doppler rates: the front end's cost per sample
+// (it is not on the default path).
+func BenchmarkWriteFrontEnd20MSps(b *testing.B) {
+	dir := b.TempDir()
+	s := busy20MSps(0.1, chirp20)
+	s.FrontEnd = frontEnd20()
+	for i := range s.Captures[0].Satellites {
+		s.Captures[0].Satellites[i].DopplerRateHzS = -0.5
+	}
+	if err := s.Normalize(); err != nil {
+		b.Fatal(err)
+	}
+	var samples int64
+	for b.Loop() {
+		truths, err := Write(&s, dir)
+		if err != nil {
+			b.Fatal(err)
+		}
+		samples += truths[0].Samples
+	}
+	b.ReportMetric(float64(samples)/b.Elapsed().Seconds()/1e6, "MS/s")
+}
+
+// TestWriteStreamsFrontEnd is TestWriteStreams through a busy front end
+// (frontEnd20, with the drop and gap moved to 0.5 s), keyed wide-swept and
+// hopping emitters and satellites with Doppler rates, then as real samples
+// at an IF: 0.5 s at 20 MS/s (10⁷ samples, 80 MB as complex64) must
+// allocate under 16 MiB. Not a timing test.
+func TestWriteStreamsFrontEnd(t *testing.T) {
+	if testing.Short() {
+		t.Skip("writes 40 MB twice")
+	}
+	wide := Emitter{Kind: KindSwept, JNDB: 10, LowHz: -20e6, HighHz: 20e6, PeriodS: 20e-6, On: [][]float64{{0.05, 0.1}, {0.3, 0.35}}}
+	hop := Emitter{Kind: KindPulsed, Pulse: "rect", WidthS: 6.4e-6, PRIS: 100e-6, JNDB: 15, ChannelsHz: []float64{-6e6, -3e6, 0, 3e6, 6e6},
+		StartS: 0.15, EndS: 0.25}
+	for _, format := range []string{"ci16_le", "ri16_le"} {
+		t.Run(format, func(t *testing.T) {
+			s := busy20MSps(0.5, wide, hop)
+			s.Format = format
+			s.FrontEnd = frontEnd20()
+			s.FrontEnd.SampleDrops[0].AtS, s.FrontEnd.Gaps[0].AtS = 0.25, 0.3
+			if format == "ri16_le" {
+				s.FrontEnd.IQImbalance = nil
+				s.FrontEnd.DCOffset.Q = 0
+			}
+			for i := range s.Captures[0].Satellites {
+				s.Captures[0].Satellites[i].DopplerRateHzS = -0.7
+			}
+			dir := t.TempDir()
+			var before, after runtime.MemStats
+			runtime.GC()
+			runtime.ReadMemStats(&before)
+			truths, err := Write(&s, dir)
+			runtime.ReadMemStats(&after)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if truths[0].Samples != 10_000_000 {
+				t.Fatalf("%d samples written", truths[0].Samples)
+			}
+			grow := after.TotalAlloc - before.TotalAlloc
+			t.Logf("TotalAlloc grew by %.2f MiB for %d samples", float64(grow)/(1<<20), truths[0].Samples)
+			if grow > 16<<20 {
+				t.Errorf("writing 0.5 s at 20 MS/s through the front end allocated %.1f MiB, want < 16 MiB (streaming)", float64(grow)/(1<<20))
+			}
+		})
+	}
+}
