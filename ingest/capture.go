@@ -128,10 +128,8 @@ func (c *Capture) SegmentAt(n int64) Segment {
 }
 
 // IsCaptureFile reports whether path names something Open can take
-// without further settings: a SigMF metadata or data file, a raw file with
-// a format ending, or one with a common raw-data ending (.bin, .dat, .iq,
-// .raw: Open needs its format given). RawSettings.IsCapture adds the
-// settings' Pattern.
+// without further settings: a SigMF metadata or data file, or a raw file
+// with a format ending. RawSettings.IsCapture adds the settings' Pattern.
 func IsCaptureFile(path string) bool { return RawSettings{}.IsCapture(path) }
 
 // IsCapture reports whether path is a capture file under these settings:
@@ -145,7 +143,7 @@ func (s RawSettings) IsCapture(path string) bool {
 	if IsSidecar(path) {
 		return false
 	}
-	if _, ok := FormatForExtension(ext); ok || rawDataEndings[ext] {
+	if _, ok := FormatForExtension(ext); ok {
 		return true
 	}
 	if s.Pattern != "" {
@@ -155,11 +153,15 @@ func (s RawSettings) IsCapture(path string) bool {
 	return false
 }
 
-// rawDataEndings are file endings recorders commonly give raw samples
-// without saying their format (common practice). Such files are captures
-// whose format must be given (--format, or the input's format); Open
-// refuses them until it is, so a watched folder does not pass them over in
-// silence.
+// HasRawDataEnding reports whether path ends as recorders commonly name
+// raw samples without saying their format: .bin, .dat, .iq, .raw (common
+// practice). Such a file is a capture only when a pattern takes it (or it
+// is named on its own with a format); the Watcher warns about the others
+// rather than pass them over in silence.
+func HasRawDataEnding(path string) bool {
+	return rawDataEndings[strings.ToLower(filepath.Ext(path))] && !IsSidecar(path)
+}
+
 var rawDataEndings = map[string]bool{".bin": true, ".dat": true, ".iq": true, ".raw": true}
 
 // IsSidecar reports whether path is a file that travels beside captures

@@ -409,14 +409,14 @@ func TestOpenRaw(t *testing.T) {
 }
 
 // TestIsCaptureFile checks the file names Open takes: the two files of a
-// SigMF recording (SigMF 1.2.6 additional_content.md, "Files"), raw files
-// with a datatype ending and the common raw-data endings (whose format
-// must then be given); archives, collections and sidecars are not, even
-// when a pattern matches them; a pattern adds any other name.
+// SigMF recording (SigMF 1.2.6 additional_content.md, "Files") and raw
+// files with a datatype ending; archives, collections and sidecars are
+// not, even when a pattern matches them; a pattern adds any other name,
+// the common raw-data endings (.bin ...) among them.
 func TestIsCaptureFile(t *testing.T) {
 	cases := map[string]bool{
 		"a.sigmf-meta": true, "a.sigmf-data": true, "A.SIGMF-META": true, "x.ci16": true, "x.cu8": true,
-		"x.cf32_be": true, "x.ri8": true, "x.cs16": true, "x.bin": true, "x.DAT": true, "x.iq": true, "x.raw": true,
+		"x.cf32_be": true, "x.ri8": true, "x.cs16": true, "x.bin": false, "x.DAT": false, "x.iq": false,
 		"x": false, "x.sigmf": false, "x.sigmf-collection": false, "x.tmp": false,
 		"x.truth.json": false, "x.json": false, "README.md": false, "LICENSE.txt": false,
 	}
@@ -427,9 +427,14 @@ func TestIsCaptureFile(t *testing.T) {
 	}
 	pat := RawSettings{Pattern: "cap_*"}
 	for name, want := range map[string]bool{"cap_001": true, "cap_1.u8": true, "other": false, "cap_1.truth.json": false,
-		"cap_1.sigmf-meta": true, "x.bin": true, "cap_notes.txt": false} {
+		"cap_1.sigmf-meta": true, "x.bin": false, "cap_1.bin": true, "cap_notes.txt": false} {
 		if got := pat.IsCapture(filepath.Join("/d", name)); got != want {
 			t.Errorf("pattern cap_*: IsCapture(%q) = %v, want %v", name, got, want)
+		}
+	}
+	for name, want := range map[string]bool{"x.bin": true, "x.RAW": true, "x.iq": true, "x.dat": true, "x.ci8": false, "x.json": false} {
+		if HasRawDataEnding(name) != want {
+			t.Errorf("HasRawDataEnding(%q) = %v", name, !want)
 		}
 	}
 }

@@ -29,7 +29,12 @@ func Find(paths ...string) ([]Found, error) { return FindRaw(RawSettings{}, path
 // files raw.IsCapture takes (raw.Pattern adds names); a file named on its
 // own is a raw capture whatever its name when raw.Format is given (a
 // sidecar never is).
-func FindRaw(raw RawSettings, paths ...string) ([]Found, error) {
+func FindRaw(raw RawSettings, paths ...string) ([]Found, error) { return findRaw(raw, nil, paths...) }
+
+// findRaw is FindRaw; ignored, when not nil, is told of each file of a
+// walked folder that is left out although it has a raw-data ending
+// (HasRawDataEnding).
+func findRaw(raw RawSettings, ignored func(path string), paths ...string) ([]Found, error) {
 	var out []Found
 	seen := map[string]bool{}
 	addFile := func(p string) {
@@ -48,6 +53,9 @@ func FindRaw(raw RawSettings, paths ...string) ([]Found, error) {
 			return
 		case raw.IsCapture(p):
 		default:
+			if ignored != nil && HasRawDataEnding(p) {
+				ignored(p)
+			}
 			return
 		}
 		if !seen[p] {

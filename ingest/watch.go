@@ -140,6 +140,7 @@ type Watcher struct {
 	ready   []readyItem
 	head    *Work // ready[0], opened
 	emitted map[string]signature
+	ignored map[string]bool // files with raw-data endings warned about (noteIgnored)
 	full    bool
 	fullLog time.Time
 
@@ -519,6 +520,9 @@ func (w *Watcher) handle(ev fsEvent) {
 		return
 	}
 	if !in.Raw.IsCapture(ev.path) {
+		if ev.op != opGone {
+			w.noteIgnored(in, ev.path)
+		}
 		return
 	}
 	c := w.candidateFor(in, ev.path)
@@ -715,7 +719,7 @@ func (w *Watcher) addTree(in *watchInput, dir string) {
 // renamed into the watched tree, which puts its files in place as a
 // rename of each would.
 func (w *Watcher) scan(in *watchInput, dir string, prune, placed bool) {
-	found, err := FindRaw(in.Raw, dir)
+	found, err := findRaw(in.Raw, func(p string) { w.noteIgnored(in, p) }, dir)
 	if err != nil {
 		w.log.Error("watcher: cannot scan folder", "input", in.Name, "dir", dir, "err", err)
 		return
@@ -771,6 +775,29 @@ func (w *Watcher) scan(in *watchInput, dir string, prune, placed bool) {
 		}
 	}
 }
+
+// noteIgnored warns, once per file, about a file left out although its
+// ending is one recorders give raw samples (.bin ...): the input has no
+// pattern that takes it. At most maxIgnoredNoted files are remembered;
+// past that the warnings stop, with a last one saying so.
+func (w *Watcher) noteIgnored(in *watchInput, path string) {
+	if !HasRawDataEnding(path) || w.ignored[path] || len(w.ignored) > maxIgnoredNoted {
+		return
+	}
+	if w.ignored == nil {
+		w.ignored = map[string]bool{}
+	}
+	w.ignored[path] = true
+	if len(w.ignored) > maxIgnoredNoted {
+		w.log.Warn("watcher: more files with raw-data endings left out; no more warnings about them", "input", in.Name)
+		return
+	}
+	w.log.Warn("watcher: file not taken: its ending names no sample format; give the input a pattern that matches it, with its format and sample_rate, to read it",
+		"input", in.Name, "path", path)
+}
+
+// maxIgnoredNoted bounds the files noteIgnored remembers.
+const maxIgnoredNoted = 1024
 
 // asCandidate reports whether a file Find reports with a problem is still
 // followed as a candidate: a SigMF data file whose metadata may yet come,

@@ -3,6 +3,7 @@ package ingest
 import (
 	"context"
 	"fmt"
+	"log/slog"
 	"math/rand/v2"
 	"os"
 	"path/filepath"
@@ -544,10 +545,10 @@ func BenchmarkWatchRescan(b *testing.B) {
 
 // TestWatchRawFiles checks DESIGN.md "Inputs" for raw files: any name is
 // a raw capture once the input gives a format and a pattern matching it;
-// the common raw endings (.bin ...) are captures even without one, and a
-// capture that cannot be read (no format, no rate) is handed out with its
-// problem, naming the setting, not passed over; sidecars and other files
-// are never taken.
+// a capture that cannot be read (no format, no rate) is handed out with
+// its problem, naming the setting, not passed over; sidecars and other
+// files are never taken, and a file with a raw-data ending that no pattern
+// takes is warned about, once.
 func TestWatchRawFiles(t *testing.T) {
 	t.Parallel()
 	var wg sync.WaitGroup
@@ -555,14 +556,17 @@ func TestWatchRawFiles(t *testing.T) {
 		wg.Go(func() {
 			t.Run(m.notify, func(t *testing.T) {
 				rootA, rootB, rootC := t.TempDir(), t.TempDir(), t.TempDir()
-				h := startWatcher(t, WatchConfig{Notify: m.notify, RescanInterval: m.rescan, Inputs: []WatchInput{
-					{Name: "a", Root: rootA, Settle: m.settle, Raw: RawSettings{Format: CI8, SampleRate: 1e6, Pattern: "cap_*"}},
-					{Name: "b", Root: rootB, Settle: m.settle, Raw: RawSettings{Format: CI8}},
-					{Name: "c", Root: rootC, Settle: m.settle, Raw: RawSettings{SampleRate: 1e6}},
-				}})
+				var logBuf syncBuf
+				h := startWatcher(t, WatchConfig{Notify: m.notify, RescanInterval: m.rescan, Logger: slog.New(slog.NewTextHandler(&logBuf, nil)),
+					Inputs: []WatchInput{
+						{Name: "a", Root: rootA, Settle: m.settle, Raw: RawSettings{Format: CI8, SampleRate: 1e6, Pattern: "cap_*"}},
+						{Name: "b", Root: rootB, Settle: m.settle, Raw: RawSettings{Format: CI8, Pattern: "*.dat"}},
+						{Name: "c", Root: rootC, Settle: m.settle, Raw: RawSettings{SampleRate: 1e6, Pattern: "*.bin"}},
+					}})
 				rng := rand.New(rand.NewPCG(51, 52))
 				writeFile(t, filepath.Join(rootA, "cap_0001"), ci8Bytes(rng, 7))
-				writeFile(t, filepath.Join(rootA, "x.bin"), ci8Bytes(rng, 8))
+				writeFile(t, filepath.Join(rootA, "x.ci8"), ci8Bytes(rng, 8))
+				writeFile(t, filepath.Join(rootA, "left.bin"), ci8Bytes(rng, 8))
 				writeFile(t, filepath.Join(rootA, "cap_0001.truth.json"), []byte("{}"))
 				writeFile(t, filepath.Join(rootA, "cap_notes.txt"), []byte("notes"))
 				writeFile(t, filepath.Join(rootA, "other"), ci8Bytes(rng, 3))
@@ -572,7 +576,7 @@ func TestWatchRawFiles(t *testing.T) {
 				for _, wk := range h.take(4, 10*time.Second) {
 					got[wk.Input+"/"+wk.Name] = wk
 				}
-				for name, n := range map[string]int64{"a/cap_0001": 7, "a/x.bin": 8} {
+				for name, n := range map[string]int64{"a/cap_0001": 7, "a/x.ci8": 8} {
 					if wk, ok := got[name]; !ok || wk.Problem != nil || wk.Capture.Samples != n || wk.Capture.Format != CI8 {
 						t.Errorf("%s: %+v", name, wk)
 					}
@@ -592,8 +596,29 @@ func TestWatchRawFiles(t *testing.T) {
 				}
 				h.w.Rescan()
 				h.none(500 * time.Millisecond)
+				if n := strings.Count(logBuf.String(), "file not taken"); n != 1 || !strings.Contains(logBuf.String(), "left.bin") {
+					t.Errorf("%d warnings about left.bin, want 1:\n%s", n, logBuf.String())
+				}
 			})
 		})
 	}
 	wg.Wait()
+}
+
+// syncBuf is a bytes.Buffer safe for the watcher's goroutine and the test.
+type syncBuf struct {
+	mu sync.Mutex
+	b  strings.Builder
+}
+
+func (s *syncBuf) Write(p []byte) (int, error) {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.Write(p)
+}
+
+func (s *syncBuf) String() string {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.String()
 }

@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"io"
 	"log/slog"
+	"math"
 	"net"
 	"os"
 	"path/filepath"
@@ -40,13 +41,19 @@ type runConfig struct {
 	Metrics            metricsConfig   `yaml:"metrics"`
 }
 
-// inputConfig is one watched folder.
+// inputConfig is one watched folder. The raw-file keys (format,
+// sample_rate, center_hz, if_hz, lo_side, pattern) have no defaults: a raw
+// file whose rate is not given is quarantined with that reason, one
+// without a centre is analysed with the centre unknown.
 type inputConfig struct {
 	Name       string        `yaml:"name"`
 	Path       string        `yaml:"path"`
 	Format     string        `yaml:"format"`
 	SampleRate float64       `yaml:"sample_rate"`
 	CenterHz   *float64      `yaml:"center_hz"`
+	IFHz       float64       `yaml:"if_hz"`
+	LOSide     string        `yaml:"lo_side"`
+	Pattern    string        `yaml:"pattern"`
 	Settle     time.Duration `yaml:"settle"`
 }
 
@@ -72,8 +79,7 @@ type metricsConfig struct {
 const (
 	defaultStateDir       = "quietband-state"
 	defaultInputPath      = "captures"
-	defaultSampleRate     = 4e6
-	defaultCenterHz       = 1575.42e6
+	detectCheckRate       = 4e6 // the rate at which the detect section is checked when no input states one
 	defaultMaxLogBytes    = 128 << 20
 	defaultFallingBehind  = 5 * time.Minute
 	defaultLogLevel       = "info"
@@ -116,7 +122,7 @@ func loadRunConfig(path string, o runOverrides) (*runConfig, error) {
 	if len(o.watch) > 0 {
 		cfg.Inputs = nil
 		for _, dir := range o.watch {
-			in := inputConfig{Path: dir, SampleRate: o.raw.SampleRate}
+			in := inputConfig{Path: dir, SampleRate: o.raw.SampleRate, IFHz: o.raw.IFHz, Pattern: o.raw.Pattern}
 			c := o.raw.CenterHz
 			if !o.raw.HasCenter {
 				c = 0
@@ -124,6 +130,9 @@ func loadRunConfig(path string, o runOverrides) (*runConfig, error) {
 			in.CenterHz = &c
 			if o.raw.Format != ingest.FormatUnknown {
 				in.Format = o.raw.Format.String()
+			}
+			if o.raw.LOSide != ingest.LOSideUnknown {
+				in.LOSide = o.raw.LOSide.String()
 			}
 			cfg.Inputs = append(cfg.Inputs, in)
 		}
@@ -242,20 +251,8 @@ func (c *runConfig) fill() error {
 			return fmt.Errorf("inputs[%d]: name %q is used twice", i, in.Name)
 		}
 		names[in.Name] = true
-		if in.Format != "" {
-			if _, err := ingest.ParseFormat(in.Format); err != nil {
-				return fmt.Errorf("inputs[%d] (%s): format: %w", i, in.Name, err)
-			}
-		}
-		if in.SampleRate == 0 {
-			in.SampleRate = defaultSampleRate
-		}
-		if !(in.SampleRate > 0 && in.SampleRate <= ingest.MaxSampleRate) {
-			return fmt.Errorf("inputs[%d] (%s): sample_rate %g must be in (0, %g]", i, in.Name, in.SampleRate, float64(ingest.MaxSampleRate))
-		}
-		if in.CenterHz == nil {
-			v := defaultCenterHz
-			in.CenterHz = &v
+		if err := in.checkRaw(); err != nil {
+			return fmt.Errorf("inputs[%d] (%s): %w", i, in.Name, err)
 		}
 		if in.Settle == 0 {
 			in.Settle = ingest.DefaultSettle
@@ -263,11 +260,13 @@ func (c *runConfig) fill() error {
 		if in.Settle < 0 {
 			return fmt.Errorf("inputs[%d] (%s): settle %v must be positive", i, in.Name, in.Settle)
 		}
-		if err := c.Detect.Defaults(in.SampleRate).Validate(); err != nil {
-			return fmt.Errorf("detect (for input %s at %g samples/s): %w", in.Name, in.SampleRate, err)
+		if fs := in.analysedRate(); fs > 0 {
+			if err := c.Detect.Defaults(fs).Validate(); err != nil {
+				return fmt.Errorf("detect (for input %s at %g samples/s): %w", in.Name, fs, err)
+			}
 		}
 	}
-	if err := c.Detect.Defaults(defaultSampleRate).Validate(); err != nil {
+	if err := c.Detect.Defaults(detectCheckRate).Validate(); err != nil {
 		return fmt.Errorf("detect: %w", err)
 	}
 	abs := func(p string) string {
@@ -349,16 +348,74 @@ func inputNameFor(path string) string {
 	return s
 }
 
+// checkRaw checks the raw-file keys of an input: a known format, a rate
+// in range when given, an IF and LO side that a real format can use, a
+// valid pattern.
+func (in inputConfig) checkRaw() error {
+	var f ingest.Format
+	if in.Format != "" {
+		var err error
+		if f, err = ingest.ParseFormat(in.Format); err != nil {
+			return fmt.Errorf("format: %w", err)
+		}
+	}
+	if in.SampleRate != 0 && !(in.SampleRate > 0 && in.SampleRate <= ingest.MaxSampleRate) {
+		return fmt.Errorf("sample_rate %g must be in (0, %g] (or absent: raw files are then quarantined for want of it)", in.SampleRate, float64(ingest.MaxSampleRate))
+	}
+	if in.CenterHz != nil && (math.IsNaN(*in.CenterHz) || math.IsInf(*in.CenterHz, 0)) {
+		return fmt.Errorf("center_hz %g is not a frequency", *in.CenterHz)
+	}
+	if in.IFHz < 0 || math.IsNaN(in.IFHz) || math.IsInf(in.IFHz, 0) {
+		return fmt.Errorf("if_hz %g must be a positive number of Hz", in.IFHz)
+	}
+	side := ingest.LOSideUnknown
+	if in.LOSide != "" {
+		var err error
+		if side, err = ingest.ParseLOSide(in.LOSide); err != nil {
+			return fmt.Errorf("lo_side: %w", err)
+		}
+	}
+	if in.Pattern != "" {
+		if _, err := filepath.Match(in.Pattern, ""); err != nil {
+			return fmt.Errorf("pattern %q: %w", in.Pattern, err)
+		}
+	}
+	if f.IsReal() && in.SampleRate > 0 {
+		if err := (ingest.IFConversion{IFHz: in.IFHz, Side: side}).Check(in.SampleRate); err != nil {
+			return fmt.Errorf("format %s: %w", f, err)
+		}
+	}
+	return nil
+}
+
+// analysedRate is the rate the detectors see for the input's raw files:
+// half the file's for a real format; 0 when not given.
+func (in inputConfig) analysedRate() float64 {
+	if f, err := ingest.ParseFormat(in.Format); err == nil && f.IsReal() {
+		return in.SampleRate / 2
+	}
+	return in.SampleRate
+}
+
 // rawSettings are the raw-file settings of an input.
 func (in inputConfig) rawSettings() ingest.RawSettings {
-	s := ingest.RawSettings{SampleRate: in.SampleRate}
+	s := ingest.RawSettings{SampleRate: in.SampleRate, IFHz: in.IFHz, Pattern: in.Pattern}
 	if in.CenterHz != nil && *in.CenterHz != 0 {
 		s.CenterHz, s.HasCenter = *in.CenterHz, true
 	}
 	if in.Format != "" {
 		s.Format, _ = ingest.ParseFormat(in.Format)
 	}
+	if in.LOSide != "" {
+		s.LOSide, _ = ingest.ParseLOSide(in.LOSide)
+	}
 	return s
+}
+
+// sameInput reports whether two inputs watch the same folder the same way
+// (a change needs a restart).
+func sameInput(a, b inputConfig) bool {
+	return a.Name == b.Name && a.Path == b.Path && a.Settle == b.Settle && a.rawSettings() == b.rawSettings()
 }
 
 // notify is the watcher's event source for the configuration.

@@ -53,7 +53,9 @@ type replaySummary struct {
 
 func runReplay(args []string, out, errOut io.Writer) error {
 	fs := newFlags("replay", "PATH...", `
-Analyses captures (files or folders, recursively: SigMF pairs and raw files)
+Analyses captures (files or folders, recursively: SigMF pairs and raw files;
+raw files need --rate, real-valued ones --if and --lo-side too: a raw file
+without them is reported and recorded as quarantined with the reason)
 with the same detectors as the daemon, in time order, learning the site
 baseline from clean captures as it goes. Prints a table of the events found
 and a summary; --json prints the event-log records instead; --log appends
@@ -108,7 +110,7 @@ type job struct {
 func collect(paths []string, raw ingest.RawSettings) ([]job, error) {
 	var jobs []job
 	for _, root := range paths {
-		found, err := ingest.Find(root)
+		found, err := ingest.FindRaw(raw, root)
 		if err != nil {
 			return nil, err
 		}

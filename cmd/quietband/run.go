@@ -71,7 +71,7 @@ the detection settings; SIGTERM or SIGINT stops after the capture in hand (or
 abandons it after a few seconds; it is analysed again on the next start).`, errOut)
 	configPath := fs.String("config", "", "YAML configuration file (default: none, built-in defaults)")
 	var watch stringList
-	fs.Var(&watch, "watch", "folder to watch, repeatable; replaces the configured inputs (raw files take --format, --rate, --center)")
+	fs.Var(&watch, "watch", "folder to watch, repeatable; replaces the configured inputs (raw files take --format, --rate, --center, --if, --lo-side, --pattern)")
 	raw := addRawFlags(fs)
 	logPath := fs.String("log", "", "event log file (default: state_dir/"+eventLogFileName+")")
 	state := fs.String("state", "", "state folder: baseline, ledger, default event log location (default "+defaultStateDir+")")
@@ -818,10 +818,7 @@ func (d *daemon) reload() {
 		d.log.Info("quietband run: detection settings reloaded; they apply from the next capture")
 	}
 	var restart []string
-	if !slices.EqualFunc(cfg.Inputs, d.cfg.Inputs, func(a, b inputConfig) bool {
-		return a.Name == b.Name && a.Path == b.Path && a.Format == b.Format && a.SampleRate == b.SampleRate &&
-			*a.CenterHz == *b.CenterHz && a.Settle == b.Settle
-	}) {
+	if !slices.EqualFunc(cfg.Inputs, d.cfg.Inputs, sameInput) {
 		restart = append(restart, "inputs")
 	}
 	for key, changed := range map[string]bool{"log": cfg.Log != d.cfg.Log, "state_dir": cfg.StateDir != d.cfg.StateDir,
@@ -956,7 +953,7 @@ func (d *daemon) sweep(now time.Time) {
 	cutoff := now.Add(-time.Duration(d.cfg.Retention.Days) * 24 * time.Hour)
 	n := 0
 	for _, in := range d.cfg.Inputs {
-		found, err := ingest.Find(in.Path)
+		found, err := ingest.FindRaw(in.rawSettings(), in.Path)
 		if err != nil {
 			d.log.Error("quietband run: retention: cannot scan", "input", in.Name, "err", err)
 			continue

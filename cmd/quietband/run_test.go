@@ -585,7 +585,7 @@ func TestRunConfig(t *testing.T) {
 			t.Fatal(err)
 		}
 		if len(cfg.Inputs) != 1 || cfg.Inputs[0].Path != defaultInputPath || cfg.Inputs[0].Name != "captures" ||
-			cfg.Inputs[0].SampleRate != defaultSampleRate || *cfg.Inputs[0].CenterHz != defaultCenterHz ||
+			cfg.Inputs[0].SampleRate != 0 || cfg.Inputs[0].CenterHz != nil ||
 			cfg.Inputs[0].Settle != ingest.DefaultSettle {
 			t.Errorf("default input %+v", cfg.Inputs)
 		}
