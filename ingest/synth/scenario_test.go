@@ -291,6 +291,31 @@ func TestParseScenarioErrors(t *testing.T) {
 			[]string{"satellites[0]", "outside ±fs/2"}},
 		{"narrow band beyond fs/2", head + "    emitters: [{kind: narrowband_noise, jn_db: 0, offset_hz: 1.95e6, bandwidth_hz: 2.0e5}]\n", []string{"within ±fs/2"}},
 		{"no captures", "name: empty\n", []string{"no captures"}},
+		// Keyed, wide-swept and hopping emitters, Doppler rates, skies.
+		{"on intervals overlap", head + "    emitters: [{kind: cw, offset_hz: 1000, jn_db: 0, on: [[0.01, 0.05], [0.04, 0.06]]}]\n",
+			[]string{"c1", "emitters[0]", "on[1] starts at 0.04 s", "not overlap"}},
+		{"on interval of three values", head + "    emitters: [{kind: cw, offset_hz: 1000, jn_db: 0, on: [[0.01, 0.05, 0.07]]}]\n",
+			[]string{"on[0] must be [start_s, end_s]"}},
+		{"on beyond the capture", head + "    emitters: [{kind: cw, offset_hz: 1000, jn_db: 0, on: [[0.05, 0.2]]}]\n", []string{"on[0] [0.05, 0.2]", "≤ 0.1"}},
+		{"on and end_s disagree", head + "    emitters: [{kind: cw, offset_hz: 1000, jn_db: 0, end_s: 0.08, on: [[0.01, 0.05]]}]\n",
+			[]string{"end_s 0.08", "disagree with the on intervals"}},
+		{"sweep all outside the band", head + "    emitters: [{kind: swept, jn_db: 3, low_hz: 3.0e6, high_hz: 9.0e6, period_s: 1.0e-4}]\n",
+			[]string{"emitters[0] (swept)", "entirely outside ±fs/2"}},
+		{"sweep crossing too fast", head + "    emitters: [{kind: swept, jn_db: 3, low_hz: -4.0e7, high_hz: 4.0e7, period_s: 1.0e-5}]\n",
+			[]string{"crosses the ±2e+06 Hz band in", "at least 8"}},
+		{"sweep beyond 100 MHz", head + "    emitters: [{kind: swept, jn_db: 3, low_hz: -2.0e8, high_hz: 1.0e6, period_s: 1.0e-3}]\n",
+			[]string{"low_hz -2e+08", "±1e+08"}},
+		{"hopping with an offset", head + "    emitters: [{kind: pulsed, jn_db: 10, pri_s: 1.0e-3, offset_hz: 5000, channels_hz: [0, 1.0e6]}]\n",
+			[]string{"offset_hz 5000 and channels_hz both"}},
+		{"hop channel outside the band", head + "    emitters: [{kind: pulsed, jn_db: 10, pri_s: 1.0e-3, channels_hz: [0, 3.0e6]}]\n",
+			[]string{"channels_hz[1] 3e+06", "outside ±fs/2"}},
+		{"channels on a CW", head + "    emitters: [{kind: cw, offset_hz: 0, jn_db: 0, channels_hz: [0]}]\n", []string{"channels_hz is for pulsed emitters"}},
+		{"Doppler rate 20 Hz/s", head + "    satellites: [{prn: 3, cn0_dbhz: 40, doppler_rate_hz_s: 20}]\n", []string{"satellites[0]", "doppler_rate_hz_s 20"}},
+		{"rate drives the carrier out", "sample_rate: 4.0e3\ncaptures: [{name: c1, duration_s: 2000, satellites: [{prn: 3, cn0_dbhz: 40, doppler_hz: 1000, doppler_rate_hz_s: 1}]}]\n",
+			[]string{"satellites[0]", "2000 s into the capture", "outside ±fs/2"}},
+		{"sky and random sky", "sky: [{prn: 3, cn0_dbhz: 40}]\nrandom_sky: {satellites: 8, seed: 1}\n" + head, []string{"sky or random_sky, not both"}},
+		{"random sky of 40", "random_sky: {satellites: 40, seed: 1}\n" + head, []string{"random_sky.satellites 40", "1..32"}},
+		{"sky satellite bad", "sky: [{prn: 33, cn0_dbhz: 40}]\n" + head, []string{"sky[0]", "prn 33"}},
 		{"bad format", "format: ci12\n" + head, []string{"format", "ci12"}},
 	}
 	for _, tc := range cases {
@@ -464,5 +489,39 @@ func TestBuiltins(t *testing.T) {
 				}
 			}
 		})
+	}
+}
+
+// TestExampleYAML: the example scenario in testdata parses, and writes
+// (cut to 0.05 s) with what it asks for in the truth: 12 drawn
+// satellites in every capture, the front end with its spur, the keyed
+// intervals, the wide sweep's in-band part, the hop channels, the 2-bit
+// quantizer and the drop and gap of the last capture.
+func TestExampleYAML(t *testing.T) {
+	t.Parallel()
+	s, err := LoadScenario("testdata/example-site.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	s.ScaleDuration(0.05)
+	truths, err := Write(s, t.TempDir())
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, tr := range truths {
+		if len(tr.Satellites) != 12 || tr.FrontEnd == nil || len(tr.FrontEndSpurs) != 1 || tr.FrontEnd.ClockShiftL1Hz == nil {
+			t.Errorf("%s: %d satellites, front end %v, spurs %v", tr.Capture, len(tr.Satellites), tr.FrontEnd != nil, tr.FrontEndSpurs)
+		}
+	}
+	sweep, keyed := truths[1].Emitters[0], truths[1].Emitters[1]
+	if len(sweep.Intervals) != 3 || len(keyed.Intervals) != 2 || *sweep.InBandLowHz != -2e6 || *sweep.InBandHighHz != 2e6 {
+		t.Errorf("capture 2: sweep %+v, keyed tone %+v", sweep, keyed)
+	}
+	if hop := truths[2].Emitters[0]; len(hop.ApparentChannelsHz) != 3 {
+		t.Errorf("capture 3: hopping link %+v", hop)
+	}
+	last := truths[3]
+	if last.FrontEnd.Quantizer == nil || last.FrontEnd.Quantizer.Bits != 2 || len(last.Faults) != 2 || math.Abs(last.FrontEnd.CaptureGainDB-0.6) > 1e-12 {
+		t.Errorf("capture 4: quantizer %+v, faults %+v, gain %g", last.FrontEnd.Quantizer, last.Faults, last.FrontEnd.CaptureGainDB)
 	}
 }
