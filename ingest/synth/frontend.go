@@ -142,7 +142,8 @@ type Quantization struct {
 }
 
 // GainStep changes the gain by DB from AtS seconds into the capture on
-// (steps add up).
+// (steps add up). The time is the analog stream's: a sample drop earlier
+// in the capture moves the step AtS·fs − dropped samples into the file.
 type GainStep struct {
 	AtS float64 `yaml:"at_s" json:"at_s"`
 	DB  float64 `yaml:"db" json:"db"`
@@ -550,7 +551,10 @@ func (q *quantizer) levels() []int {
 // high-side LO). A DC offset (dc_offset.i), the quantization, a stuck
 // value and an unnormalised scale then act on the real samples, as on one
 // ADC. Defaults: IFHz = fs_file/4 (the conversion without multiplications),
-// LOSide "low".
+// LOSide "low". The truth's apparent values are those of the complex
+// stream; ingest's conversion back to it rolls off the outer fifth of each
+// side of the band (its half-band's transition), as with any such
+// receiver.
 type RealIF struct {
 	IFHz   float64 `yaml:"if_hz,omitempty" json:"if_hz"`
 	LOSide string  `yaml:"lo_side,omitempty" json:"lo_side"`
