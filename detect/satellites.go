@@ -105,6 +105,9 @@ func (m *GNSSMeter) Measurement() SatelliteResult {
 		r.SpectrumInverted = g.Inverted
 		r.Notes = g.Notes
 		r.Unmeasured = g.Unmeasured
+		if g.HasDrop {
+			r.DropSample = ptr(g.DropSample)
+		}
 	}
 	m.cached = &r
 	return r
@@ -256,6 +259,10 @@ type SatelliteResult struct {
 	// the acquisition snapshot, all zeros). The pipeline sets it too when
 	// it finds a front-end fault; cn0DropFrom then compares nothing.
 	Unmeasured string
+	// DropSample, when set, is the sample near which every strongly
+	// tracked satellite lost lock at once: a sample drop or gap in the
+	// recording (REFERENCES §12.7), for a "gap" fault.
+	DropSample *int64
 }
 
 // MeasureSatellites reads a capture on its own and measures its

@@ -40,6 +40,13 @@ func (m *MomentCN0) Add(p complex128) {
 	m.s4 += a * a
 }
 
+// remove takes out one prompt of power a = |P|² added before.
+func (m *MomentCN0) remove(a float64) {
+	m.n--
+	m.s2 -= a
+	m.s4 -= a * a
+}
+
 // N returns the number of prompts accumulated.
 func (m *MomentCN0) N() int { return m.n }
 

@@ -69,6 +69,107 @@ const (
 	rateTo   = settleEpochs
 )
 
+// Lock monitor: a channel whose signal is strong (an estimated S/N per
+// prompt of at least lockMinSNR, 37 dB-Hz) has lost it when the mean
+// power of its last lockWindow prompts falls below lockFraction of the
+// mean over the estimate so far (S + N). With S/N ≥ 5 the mean of
+// eight prompts of a locked signal stays above (S + N)·0.5 with
+// probability better than 1 − 10⁻⁶, and a lost one (power N ≤ (S + N)/6)
+// falls below 0.3·(S + N) (Gamma(8) tails, computed). Losing every
+// satellite at the same sample is the mark of a sample drop or gap
+// (REFERENCES §12.7), which the Meter reports.
+const (
+	lockWindow   = 8
+	lockRing     = 16 // prompts kept per channel, for freezeAt
+	lockMinSNR   = 5
+	lockFraction = 0.3
+	// lockSpreadMs is the largest spread (ms) of the strong channels'
+	// loss samples that counts as one shared loss: each is placed within
+	// an epoch or two (see freeze).
+	lockSpreadMs = 3
+)
+
+// freeze marks the channel lost at the first prompt of its last
+// lockWindow from which every prompt is below half the locked mean power
+// S + N, and takes those prompts out of the estimate (all but the
+// current one, which was not added).
+func (c *channel) freeze() {
+	s, n, _ := c.est.Powers()
+	first := lockWindow - 1 // chronological index in the window
+	for j := lockWindow - 1; j >= 0; j-- {
+		if c.recent[c.ring(j)] >= 0.5*(s+n) {
+			break
+		}
+		first = j
+	}
+	for j := first; j < lockWindow-1; j++ {
+		c.est.remove(c.recent[c.ring(j)])
+		c.fdSum -= c.recentFd[c.ring(j)]
+	}
+	c.lostAt = c.recentStart[c.ring(first)]
+	c.corrAtLoss = c.corrChips
+}
+
+// corr returns the DLL's total correction, frozen when the loss was
+// found (after it the loop follows noise).
+func (c *channel) corr() float64 {
+	if c.lostAt >= 0 {
+		return c.corrAtLoss
+	}
+	return c.corrChips
+}
+
+// doppler returns the mean Doppler over the estimate's prompts, or the
+// loop's current value before there are any.
+func (c *channel) doppler() float64 {
+	if c.est.N() > 0 {
+		return c.fdSum / float64(c.est.N())
+	}
+	return c.fd
+}
+
+// ring returns the ring index of the j-th prompt (chronologically) of the
+// last lockWindow ones, the current one being j = lockWindow − 1.
+func (c *channel) ring(j int) int {
+	return (c.epoch - (lockWindow - 1) + j + lockRing) % lockRing
+}
+
+// freezeAt marks a channel lost from sample at, the loss shared by the
+// strong channels (see Tracker.commonLoss), and takes out of its estimate
+// the prompts of the ring that began at or after it.
+func (c *channel) freezeAt(at int64) {
+	if c.lostAt >= 0 {
+		return
+	}
+	if c.epoch > settleEpochs {
+		for j := range min(lockRing, c.epoch-settleEpochs) {
+			k := (c.epoch - 1 - j + lockRing) % lockRing
+			if c.recentStart[k] >= at {
+				c.est.remove(c.recent[k])
+				c.fdSum -= c.recentFd[k]
+			}
+		}
+	}
+	c.lostAt = at
+	c.corrAtLoss = c.corrChips
+}
+
+// lost applies the lock monitor to the channel's recent prompts.
+func (c *channel) lost() bool {
+	if c.epoch < settleEpochs+lockWindow || c.est.N() < 2*lockWindow {
+		return false
+	}
+	s, n, ok := c.est.Powers()
+	if !ok || s < lockMinSNR*n {
+		return false
+	}
+	var sum float64 // over the last lockWindow prompts
+	for j := range lockWindow {
+		sum += c.recent[c.ring(j)]
+	}
+	return sum/lockWindow < lockFraction*(s+n)
+}
+
 // Fixed-point formats: carrier phase in cycles·2^64, code phase in
 // chips·2^32.
 const (
@@ -157,6 +258,16 @@ type channel struct {
 	est   MomentCN0
 	fdSum float64
 
+	// Lock monitor (see lockWindow): the last lockRing prompt powers
+	// and the sample where each epoch began; lostAt is the first sample
+	// of the window in which lock was lost (−1 while locked), after which
+	// the estimates are frozen.
+	corrAtLoss  float64 // corrChips when the loss was found
+	recent      [lockRing]float64
+	recentFd    [lockRing]float64
+	recentStart [lockRing]int64
+	lostAt      int64
+
 	// Code-rate regression over epochs rateFrom … rateTo − 1: least-squares
 	// sums of the code phase φ_k = corrChips + τ̂_k (chips, relative to
 	// the carrier-aided NCO) against the epoch index k (see CodeRates).
@@ -217,6 +328,10 @@ type Tracker struct {
 	// it (see frontEnd).
 	base, part complex128
 
+	// shared is the sample of a loss of lock shared by every strong
+	// channel (see commonLoss), −1 if none.
+	shared int64
+
 	// epochHook, if set (by tests), sees every complete epoch before the
 	// loop updates, with the channel's NCO state of that epoch.
 	epochHook func(c *channel)
@@ -242,6 +357,7 @@ func NewTracker(fs, centerHz float64, sats []Acquired, start int64) (*Tracker, e
 		fs: fs, offsetHz: off, start: start, next: start,
 		ch:       make([]channel, len(sats)),
 		mixStep:  phaseStep(off / fs),
+		shared:   -1,
 		pre:      make([]complex128, chunkLen+hist),
 		nPre:     1,
 		bufStart: start,
@@ -279,6 +395,7 @@ func NewTracker(fs, centerHz float64, sats []Acquired, start int64) (*Tracker, e
 		c.partial = c.cp0 != 0
 		c.nP, c.ti = start, c.trans0
 		c.fd = s.DopplerHz
+		c.lostAt = -1
 		t.setSteps(c, 0)
 	}
 	return t, nil
@@ -344,8 +461,60 @@ func (t *Tracker) Process(block []complex64, firstSample int64) {
 		for i := range t.ch {
 			t.run(&t.ch[i])
 		}
+		t.commonLoss()
 	}
 }
+
+// commonLoss freezes every channel when the strong ones have all lost
+// lock at the same time (at least two, within lockSpreadMs): the capture
+// lost samples there (REFERENCES §12.7), so the weak channels' prompts
+// after it are noise too, although their own monitor cannot tell. Those
+// prompts, as far back as the ring reaches, leave their estimates.
+func (t *Tracker) commonLoss() {
+	if t.shared >= 0 {
+		return
+	}
+	var lo, hi int64 = math.MaxInt64, -1
+	lost := 0
+	for i := range t.ch {
+		c := &t.ch[i]
+		switch {
+		case c.lostAt >= 0:
+			lost++
+			lo, hi = min(lo, c.lostAt), max(hi, c.lostAt)
+		case c.strong():
+			return // a strong satellite kept its lock
+		}
+	}
+	if lost < 2 || float64(hi-lo) > lockSpreadMs*1e-3*t.fs {
+		return
+	}
+	var at []int64
+	for i := range t.ch {
+		if c := &t.ch[i]; c.lostAt >= 0 {
+			at = append(at, c.lostAt)
+		}
+	}
+	slices.Sort(at)
+	t.shared = at[len(at)/2]
+	for i := range t.ch {
+		t.ch[i].freezeAt(t.shared)
+	}
+}
+
+// strong reports whether the channel's estimate so far has the S/N per
+// prompt the lock monitor watches (lockMinSNR).
+func (c *channel) strong() bool {
+	if c.est.N() < 2*lockWindow {
+		return false
+	}
+	s, n, ok := c.est.Powers()
+	return ok && s >= lockMinSNR*n
+}
+
+// SharedLoss returns the sample where every strongly tracked satellite
+// lost lock at once (see commonLoss), and whether that happened.
+func (t *Tracker) SharedLoss() (int64, bool) { return t.shared, t.shared >= 0 }
 
 // compact drops the prefix entries no channel needs any more: those before
 // the start of every running channel's current chip.
@@ -669,9 +838,16 @@ func (t *Tracker) dump(c *channel) {
 		}
 	}
 	c.corrChips += corr
-	if c.epoch >= settleEpochs {
-		c.est.Add(p)
-		c.fdSum += c.fd
+	if c.epoch >= settleEpochs && c.lostAt < 0 {
+		pw := real(p)*real(p) + imag(p)*imag(p)
+		i := c.epoch % lockRing
+		c.recent[i], c.recentFd[i], c.recentStart[i] = pw, c.fd, c.n0
+		if c.lost() {
+			c.freeze()
+		} else {
+			c.est.Add(p)
+			c.fdSum += c.fd
+		}
 	}
 	c.prev, c.havePrev = p, true
 	c.epoch++
@@ -704,8 +880,8 @@ func (t *Tracker) Result() []Satellite {
 			System:         "GPS",
 			PRN:            c.prn,
 			CN0dBHz:        cn0,
-			DopplerHz:      c.fdSum / float64(c.est.N()),
-			CodePhaseChips: gpsca.WrapChips(c.initPhase + c.corrChips),
+			DopplerHz:      c.doppler(),
+			CodePhaseChips: gpsca.WrapChips(c.initPhase + c.corr()),
 		})
 	}
 	return slices.Clip(out)
@@ -719,7 +895,8 @@ type ChannelState struct {
 	// Prompts is the number of prompts in the C/N0 estimate (epochs after
 	// the pull-in).
 	Prompts int
-	// DopplerHz is the loop's current carrier Doppler estimate.
+	// DopplerHz is the mean carrier Doppler over the C/N0 estimate's
+	// prompts, or the loop's current value before there are any.
 	DopplerHz float64
 	// CodePhaseChips is the code phase at the tracker's start sample,
 	// refined by the delay-locked loop so far.
@@ -732,6 +909,14 @@ type ChannelState struct {
 	// CodeRateDopplerHz the carrier Doppler at the end of that window.
 	// CodeRateVar is 0 when fewer than ten epochs were seen.
 	CodeRateErr, CodeRateVar, CodeRateDopplerHz float64
+	// CN0dBHz is the moment estimate over the prompts so far
+	// (MomentCN0.CN0dB), when CN0OK.
+	CN0dBHz float64
+	CN0OK   bool
+	// LostAt is the first sample of the window of prompts in which the
+	// lock monitor found the signal lost (see lockWindow), −1 while
+	// locked; the estimates stop there.
+	LostAt int64
 }
 
 // Channels returns the state of every channel, in the order given to
@@ -740,8 +925,9 @@ func (t *Tracker) Channels() []ChannelState {
 	out := make([]ChannelState, len(t.ch))
 	for i := range t.ch {
 		c := &t.ch[i]
-		st := ChannelState{PRN: c.prn, Epochs: c.epoch, Prompts: c.est.N(), DopplerHz: c.fd,
-			CodePhaseChips: gpsca.WrapChips(c.initPhase + c.corrChips), CodeRateDopplerHz: c.fdRate}
+		st := ChannelState{PRN: c.prn, Epochs: c.epoch, Prompts: c.est.N(), DopplerHz: c.doppler(),
+			CodePhaseChips: gpsca.WrapChips(c.initPhase + c.corr()), CodeRateDopplerHz: c.fdRate, LostAt: c.lostAt}
+		st.CN0dBHz, st.CN0OK = c.est.CN0dB(1e-3)
 		if n := c.rn; n >= 10 {
 			skk := c.rkk - c.rk*c.rk/n
 			skp := c.rkphi - c.rk*c.rphi/n
