@@ -54,7 +54,10 @@ func ParseLOSide(s string) (LOSide, error) {
 // When the IF is a quarter of the file rate (within 1e-9 of it) the mixer
 // is the sequence 1, −j, −1, +j and the conversion needs no
 // multiplications for it (Lyons; REFERENCES §12.1); any other IF within
-// [0.2, 0.3] of the file rate takes a numerically controlled oscillator.
+// [0.2, 0.3] of the file rate takes a numerically controlled oscillator
+// (float64) and twice the filtering. Cost per complex sample on the 2-CPU
+// development machine (BenchmarkIFConvert): about 2 ns at fs/4, 7.5 ns
+// through the oscillator.
 // Outside that range the mirror image of the band would fall inside the
 // passband of the filter, and the conversion is refused.
 //
@@ -189,12 +192,16 @@ type ifConverter struct {
 	invert  bool    // high-side LO: conjugate the output
 	cyc     float64 // IF/fs, cycles per file sample (general IF)
 	pairs   []complex64
-	mixed   []complex64 // general IF: mixed samples, mixed[k] = file sample 2·base + k
-	// IF = fs/4: the pairs' real and imaginary parts apart (even[j] =
-	// real(pairs[j]), odd[j] = imag(pairs[j])), contiguous for the filter.
-	even, odd []float32
-	base      int64 // pair index of pairs[0]
-	have      int64 // pairs base … have−1 are filled
+	// The streams the filter runs on, indexed as pairs (j ↔ pair base+j),
+	// contiguous for the vector kernel. IF = fs/4: even[j] = real(pairs[j]),
+	// odd[j] = imag(pairs[j]). General IF: the mixed samples y[k] =
+	// x[k]·e^(−j2π·cyc·k), evenRe/evenIm = y[2p] and oddRe/oddIm =
+	// (−1)^p·y[2p+1] (see outputGeneral).
+	even, odd, evenIm, oddIm []float32
+	bufs                     [][]complex64 // what even … oddIm are cut from, for the pool
+	scratch                  []complex64   // general IF: one block of the real parts' filter output
+	base                     int64         // pair index of pairs[0]
+	have                     int64         // pairs base … have−1 are filled
 }
 
 func newIFConverter(c IFConversion, fs float64, blockSamples int) *ifConverter {
@@ -202,40 +209,45 @@ func newIFConverter(c IFConversion, fs float64, blockSamples int) *ifConverter {
 	v.quarter = math.Abs(4*c.IFHz-fs) <= 1e-9*fs
 	n := blockSamples + 2*hbK + 1
 	v.pairs = samplePool.get(n)
-	if v.quarter {
-		// One complex buffer holds both halves (n + n float32s).
-		v.even = realsOf(samplePool.get(n))
-		v.odd = v.even[n:]
-		v.even = v.even[:n:n]
-	} else {
-		v.mixed = samplePool.get(2 * n)
+	// Each complex buffer of n holds two float32 streams of n.
+	split := func() (a, b []float32) {
+		buf := samplePool.get(n)
+		v.bufs = append(v.bufs, buf)
+		r := realsOf(buf)
+		return r[:n:n], r[n:]
+	}
+	v.even, v.odd = split()
+	if !v.quarter {
+		v.evenIm, v.oddIm = split()
+		v.scratch = samplePool.get(blockSamples)
+		v.bufs = append(v.bufs, v.scratch)
 	}
 	v.reset()
 	return v
 }
 
+func (v *ifConverter) streams() [][]float32 {
+	if v.quarter {
+		return [][]float32{v.even, v.odd}
+	}
+	return [][]float32{v.even, v.odd, v.evenIm, v.oddIm}
+}
+
 func (v *ifConverter) reset() {
 	v.base, v.have = -hbK, 0
 	clear(v.pairs[:hbK])
-	if v.mixed != nil {
-		clear(v.mixed[:2*hbK])
-	}
-	if v.even != nil {
-		clear(v.even[:hbK])
-		clear(v.odd[:hbK])
+	for _, x := range v.streams() {
+		clear(x[:hbK])
 	}
 }
 
 func (v *ifConverter) release() {
 	samplePool.put(v.pairs)
-	if v.mixed != nil {
-		samplePool.put(v.mixed)
+	for _, b := range v.bufs {
+		samplePool.put(b)
 	}
-	if v.even != nil {
-		// Give back the complex buffer they were cut from.
-		samplePool.put(unsafe.Slice((*complex64)(unsafe.Pointer(unsafe.SliceData(v.even))), len(v.even)))
-	}
-	v.pairs, v.mixed, v.even, v.odd = nil, nil, nil, nil
+	v.pairs, v.bufs, v.scratch = nil, nil, nil
+	v.even, v.odd, v.evenIm, v.oddIm = nil, nil, nil, nil
 }
 
 // compact drops the pairs no output from m0 on needs.
@@ -246,12 +258,8 @@ func (v *ifConverter) compact(m0 int64) {
 	}
 	keep := int(v.have - v.base)
 	copy(v.pairs, v.pairs[drop:keep])
-	if v.mixed != nil {
-		copy(v.mixed, v.mixed[2*drop:2*keep])
-	}
-	if v.even != nil {
-		copy(v.even, v.even[drop:keep])
-		copy(v.odd, v.odd[drop:keep])
+	for _, x := range v.streams() {
+		copy(x, x[drop:keep])
 	}
 	v.base += int64(drop)
 }
@@ -264,15 +272,14 @@ func (v *ifConverter) slot(n int) []complex64 {
 
 // commit takes the n pairs written into slot(n) (or zeros, for padding).
 func (v *ifConverter) commit(n int) {
-	if v.mixed != nil {
-		v.mix(v.have, n)
-	}
-	if v.even != nil {
+	if v.quarter {
 		j := int(v.have - v.base)
 		ev, od := v.even[j:j+n], v.odd[j:j+n]
 		for i, p := range v.pairs[j : j+n] {
 			ev[i], od[i] = real(p), imag(p)
 		}
+	} else {
+		v.mix(v.have, n)
 	}
 	v.have += int64(n)
 }
@@ -285,13 +292,13 @@ func (v *ifConverter) pad(end int64) {
 	}
 }
 
-// mix forms mixed samples y[k] = x[k]·e^(−j2π·cyc·k) for the n pairs from
-// pair index p0: the oscillator starts each call from its exact phase
-// (reduced modulo one cycle in float64) and steps by complex
-// multiplication in float64 within it.
+// mix forms the mixed samples y[k] = x[k]·e^(−j2π·cyc·k) of the n pairs
+// from pair index p0 into the four streams (the odd ones times (−1)^p):
+// the oscillator starts each call from its exact phase (reduced modulo one
+// cycle in float64) and steps by complex multiplication in float64 within
+// it.
 func (v *ifConverter) mix(p0 int64, n int) {
-	k0 := 2 * p0
-	ph := math.Mod(v.cyc*float64(k0), 1)
+	ph := math.Mod(v.cyc*float64(2*p0), 1)
 	s, c := math.Sincos(-2 * math.Pi * ph)
 	rot := complex(c, s)
 	s1, c1 := math.Sincos(-2 * math.Pi * v.cyc)
@@ -299,12 +306,18 @@ func (v *ifConverter) mix(p0 int64, n int) {
 	step2 := step1 * step1
 	j := int(p0 - v.base)
 	src := v.pairs[j : j+n]
-	dst := v.mixed[2*j : 2*j+2*n]
+	er, ei, or, oi := v.even[j:j+n], v.evenIm[j:j+n], v.odd[j:j+n], v.oddIm[j:j+n]
+	sign := 1.0
+	if p0%2 != 0 {
+		sign = -1
+	}
 	for i, x := range src {
 		r1 := rot * step1
-		dst[2*i] = complex64(complex(float64(real(x))*real(rot), float64(real(x))*imag(rot)))
-		dst[2*i+1] = complex64(complex(float64(imag(x))*real(r1), float64(imag(x))*imag(r1)))
+		x0, x1 := float64(real(x)), sign*float64(imag(x))
+		er[i], ei[i] = float32(x0*real(rot)), float32(x0*imag(rot))
+		or[i], oi[i] = float32(x1*real(r1)), float32(x1*imag(r1))
 		rot *= step2
+		sign = -sign
 	}
 }
 
@@ -407,26 +420,34 @@ func halfBandQuarterGo(dst []complex64, even, odd []float32, j0 int, signs *[2][
 	}
 }
 
-// outputGeneral is the NCO form: z[m] = y[2m] + Σ_i g_i·(y[2m−2i+1] +
-// y[2m+2i−1]) on the mixed samples y.
+// outputGeneral is the NCO form, z[m] = y[2m] + Σ_i g_i·(y[2m−2i+1] +
+// y[2m+2i−1]) on the mixed samples y, for the real and the imaginary parts
+// of y. With the odd samples stored as yo'[p] = (−1)^p·y[2p+1], each sum is
+// (−1)^m·Σ_i g_i·(−1)^i·(yo'[m−i] − yo'[m+i−1]): the fs/4 form's sum, so
+// the same kernel (halfBandQuarter) computes both, with the signs (−1)^m
+// on its sums and none on the even samples; the two results are then
+// added up.
 func (v *ifConverter) outputGeneral(dst []complex64, m0 int64) {
 	j0 := int(m0 - v.base)
-	y := v.mixed[2*(j0-hbK) : 2*(j0+len(dst)+hbK)]
-	g := hbTaps
-	for m := range dst {
-		// File samples 2m−2K … 2m+2K−1 around the centre at 2K; the taps
-		// at offsets ±(2i−1), summed as a tree.
-		w := (*[4 * hbK]complex64)(y[2*m : 2*m+4*hbK])
-		var t [hbK]complex64
-		for i := range hbK {
-			a, b := w[2*hbK-2*i-1], w[2*hbK+2*i+1]
-			t[i] = complex(g[i]*(real(a)+real(b)), g[i]*(imag(a)+imag(b)))
-		}
-		z := w[2*hbK] + (((t[0] + t[1]) + (t[2] + t[3])) + ((t[4] + t[5]) + (t[6] + t[7])) + ((t[8] + t[9]) + (t[10] + t[11])))
-		if v.invert {
-			z = complex(real(z), -imag(z))
-		}
-		dst[m] = z
+	s := float32(1)
+	if m0%2 != 0 {
+		s = -1
+	}
+	var signs [2][8]float32
+	for k := range 8 {
+		signs[0][k], signs[1][k] = 1, s
+		s = -s
+	}
+	re := v.scratch[:len(dst)]
+	halfBandQuarter(re, v.even, v.odd, j0, &signs)      // (y_re[2m], S_re)
+	halfBandQuarter(dst, v.evenIm, v.oddIm, j0, &signs) // (y_im[2m], S_im)
+	q := float32(1)
+	if v.invert {
+		q = -1
+	}
+	for m, a := range re {
+		b := dst[m]
+		dst[m] = complex(real(a)+imag(a), q*(real(b)+imag(b)))
 	}
 }
 

@@ -333,17 +333,24 @@ func BenchmarkIFConvert(b *testing.B) {
 	}
 }
 
-// BenchmarkReaderRealIF streams 16 MiB of ri8 (real, fs/4 IF) through the
-// Reader from memory, in blocks of 64 Ki complex samples (read, SHA-256,
-// decode, convert), against the same bytes read as ci8 (complex: read,
+// BenchmarkReaderRealIF streams 16 MiB of ri8 (real, fs/4 IF, and an IF
+// of 0.2417·fs through the NCO) and ri16_le through the Reader from
+// memory, in blocks of 64 Ki complex samples (read, SHA-256, decode,
+// convert), against the same bytes read as ci8 (complex: read,
 // SHA-256, decode): both give 8 Mi complex samples, so the difference is
 // the cost of the conversion as the pipeline sees it; ns/sample per
 // complex sample.
 func BenchmarkReaderRealIF(b *testing.B) {
 	data := make([]byte, 16<<20)
 	rand.NewChaCha8([32]byte{3}).Read(data)
-	for _, f := range []Format{CI8, RI8, RI16LE} {
-		b.Run(f.String(), func(b *testing.B) {
+	for _, tc := range []struct {
+		f    Format
+		name string
+		conv IFConversion
+	}{{CI8, "ci8", IFConversion{}}, {RI8, "ri8", IFConversion{3e6, LowSide}}, {RI16LE, "ri16_le", IFConversion{3e6, LowSide}},
+		{RI8, "ri8-nco", IFConversion{2.9e6, LowSide}}} {
+		f := tc.f
+		b.Run(tc.name, func(b *testing.B) {
 			raw := data
 			if f == RI16LE {
 				raw = data[:len(data)/2*2]
@@ -357,7 +364,7 @@ func BenchmarkReaderRealIF(b *testing.B) {
 			for b.Loop() {
 				var r *Reader
 				if f.IsReal() {
-					r, _ = NewIFReader(bytes.NewReader(raw), "bench", f, benchSamples, n, 12e6, IFConversion{3e6, LowSide})
+					r, _ = NewIFReader(bytes.NewReader(raw), "bench", f, benchSamples, n, 12e6, tc.conv)
 				} else {
 					r = NewReader(bytes.NewReader(raw), "bench", f, benchSamples, n)
 				}
