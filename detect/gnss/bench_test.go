@@ -23,27 +23,58 @@ func benchSats(seed uint64, fs, center float64, n int, prns []int, cn0 float64) 
 	return synthesize(rng, fs, center, 1, n, sats), acq
 }
 
-// BenchmarkAcquire32PRN_10ms searches all 32 PRNs (21 Doppler bins,
-// K = 10 blocks of 1 ms) in a 10 ms snapshot with four signals at 42 dB-Hz,
-// at 4 and 10 MS/s.
+// BenchmarkAcquire32PRN_10ms searches all 32 PRNs (K = 10 blocks of 1 ms)
+// in a 10 ms snapshot with four signals at 42 dB-Hz, at 4 and 10 MS/s:
+// "wide" is the default search while a site's clock offset is unknown
+// (±15 kHz, 61 Doppler bins), "narrow" the search around a known offset
+// (±7 kHz, 29 bins), "geometric" the former default (±5 kHz, 21 bins).
 func BenchmarkAcquire32PRN_10ms(b *testing.B) {
 	for _, fs := range []float64{4e6, 10e6} {
-		b.Run(fmt.Sprintf("%gMSps", fs/1e6), func(b *testing.B) {
-			c, _ := benchSats(7, fs, gpsca.L1, int(0.01*fs), []int{2, 9, 17, 30}, 42)
-			a, err := NewAcquirer(AcqConfig{}, fs, gpsca.L1)
-			if err != nil {
-				b.Fatal(err)
-			}
-			var res []Acquired
-			b.ReportAllocs()
-			for b.Loop() {
-				res, err = a.Acquire(res, c.x)
+		for _, mode := range []string{"wide", "narrow", "geometric"} {
+			b.Run(fmt.Sprintf("%gMSps/%s", fs/1e6, mode), func(b *testing.B) {
+				c, _ := benchSats(7, fs, gpsca.L1, int(0.01*fs), []int{2, 9, 17, 30}, 42)
+				cfg := AcqConfig{}
+				if mode == "geometric" {
+					cfg.ClockMaxHz = -1
+				}
+				a, err := NewAcquirer(cfg, fs, gpsca.L1)
 				if err != nil {
 					b.Fatal(err)
 				}
-			}
-			if len(res) != 4 {
-				b.Fatalf("acquired %v", res)
+				var res []Acquired
+				b.ReportAllocs()
+				for b.Loop() {
+					if mode == "narrow" {
+						res, err = a.AcquireAround(res, c.x, 0, DefaultDopplerMaxHz+2000)
+					} else {
+						res, err = a.Acquire(res, c.x)
+					}
+					if err != nil {
+						b.Fatal(err)
+					}
+				}
+				if len(res) != 4 {
+					b.Fatalf("acquired %v", res)
+				}
+				b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N)/1e6, "ms/snapshot")
+			})
+		}
+	}
+}
+
+// BenchmarkMitigate10ms is the interference mitigation of one 10 ms
+// snapshot (passband estimate, two blanking passes, three excision
+// stages) on noise with four satellites, at 4 and 10 MS/s.
+func BenchmarkMitigate10ms(b *testing.B) {
+	for _, fs := range []float64{4e6, 10e6} {
+		b.Run(fmt.Sprintf("%gMSps", fs/1e6), func(b *testing.B) {
+			c, _ := benchSats(7, fs, gpsca.L1, int(0.01*fs), []int{2, 9, 17, 30}, 42)
+			m := NewMitigator(fs)
+			y := make([]complex64, len(c.x))
+			m.Mitigate(y, c.x)
+			b.ReportAllocs()
+			for b.Loop() {
+				m.Mitigate(y, c.x)
 			}
 			b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N)/1e6, "ms/snapshot")
 		})
@@ -78,36 +109,41 @@ func BenchmarkTrack8Sats_1s_10MSps(b *testing.B) {
 	}
 }
 
-// BenchmarkPipeline_1s_10MSps is the GNSS part of the capture pipeline:
-// acquisition of all 32 PRNs on the first 10 ms, then tracking of the
-// acquired satellites (eight at 45 dB-Hz) over the whole 1 s capture at
-// 10 MS/s in 65 536-sample blocks. rt is the real-time factor (capture
-// duration over processing time).
+// BenchmarkPipeline_1s_10MSps is the GNSS part of the capture pipeline,
+// the Meter over a 1 s capture at 10 MS/s in 65 536-sample blocks with
+// eight satellites at 45 dB-Hz: interference mitigation and acquisition of
+// all 32 PRNs on the first 10 ms, then tracking over the whole capture
+// and the orientation test. "steady" is every capture of an input after
+// the first (the site's clock offset known: the narrow search), "first"
+// the first capture (the wide search). rt is the real-time factor
+// (capture duration over processing time).
 func BenchmarkPipeline_1s_10MSps(b *testing.B) {
 	const fs = 10e6
 	c, _ := benchSats(9, fs, gpsca.L1, int(fs), []int{1, 4, 8, 12, 19, 23, 27, 31}, 45)
-	a, err := NewAcquirer(AcqConfig{}, fs, gpsca.L1)
-	if err != nil {
-		b.Fatal(err)
+	for _, mode := range []string{"steady", "first"} {
+		b.Run(mode, func(b *testing.B) {
+			m := NewMeter(MeterConfig{Acq: AcqConfig{Pfa: 1e-3 / 32}})
+			run := func() Measurement {
+				if err := m.Start(fs, gpsca.L1); err != nil {
+					b.Fatal(err)
+				}
+				if mode == "first" {
+					m.site.clockKnown = false
+				}
+				const blk = 65536
+				for i := 0; i < len(c.x); i += blk {
+					m.Block(int64(i), c.x[i:min(i+blk, len(c.x))])
+				}
+				return m.Result()
+			}
+			run() // learns the site
+			b.ReportAllocs()
+			for b.Loop() {
+				if r := run(); len(r.Satellites) != 8 || r.WideSearch != (mode == "first") {
+					b.Fatalf("measured %d satellites, wide search %v", len(r.Satellites), r.WideSearch)
+				}
+			}
+			b.ReportMetric(float64(b.N)/b.Elapsed().Seconds(), "rt")
+		})
 	}
-	var acq []Acquired
-	b.ReportAllocs()
-	for b.Loop() {
-		acq, err = a.Acquire(acq, c.x[:a.SnapshotLen()])
-		if err != nil {
-			b.Fatal(err)
-		}
-		t, err := NewTracker(fs, gpsca.L1, acq, 0)
-		if err != nil {
-			b.Fatal(err)
-		}
-		const blk = 65536
-		for i := 0; i < len(c.x); i += blk {
-			t.Process(c.x[i:min(i+blk, len(c.x))], int64(i))
-		}
-		if len(t.Result()) != 8 {
-			b.Fatalf("acquired %d, tracked %d", len(acq), len(t.Result()))
-		}
-	}
-	b.ReportMetric(float64(b.N)/b.Elapsed().Seconds(), "rt")
 }
