@@ -38,7 +38,8 @@ type GNSSMeter struct {
 	// search) so that noise alone almost never yields a satellite.
 	Acq gnss.AcqConfig
 	// Inverted, when set, forces the spectrum orientation (true: inverted,
-	// I and Q swapped) instead of deciding it from the satellites.
+	// I and Q swapped) instead of deciding it from the satellites. Acq and
+	// Inverted are read at the first Start.
 	Inverted *bool
 
 	m      *gnss.Meter
