@@ -35,8 +35,11 @@ type tracker struct {
 	prev     []float32 // previous block's frame matrix
 	prevF    Features
 	last     *BlockInput
-	order    []int     // scratch of explainBlock
-	act      []float64 // scratch of frameActivity
+	order    []int // scratch of explainBlock
+	// compressed says that some block of the capture drove the front end
+	// into its nonlinear range (nonlinear.go).
+	compressed bool
+	act        []float64 // scratch of frameActivity
 }
 
 type trackedEvent struct {
@@ -109,7 +112,8 @@ func (t *tracker) block(in *BlockInput, fs []Finding) {
 			x.keyed = t.keyed(in, x)
 		}
 	}
-	t.explainBlock(fs, &grid{bin: bin, fs: f.Fs, frames: max(f.Frames, 1), irr: t.cfg.ImageRejectionDB})
+	t.compressed = t.compressed || in.Compressed
+	t.explainBlock(fs, &grid{bin: bin, fs: f.Fs, frames: max(f.Frames, 1), irr: t.cfg.ImageRejectionDB, compressed: in.Compressed})
 	var classed []Finding
 	for _, x := range fs {
 		if x.Class == "" || (x.Class == ClassCW && (len(x.Tones) == 0 || isSweepComb(x.Tones))) {

@@ -114,7 +114,7 @@ const transientEdges = 2
 
 // cwFootprint is what a tone accounts for besides itself: within
 // maxToneHalfWidth bins, its own main lobe and close-in leakage (anything
-// weaker); and, when it keys on or off inside the block, the transient: a
+// weaker and no wider than a tone); and, when it keys on or off inside the block, the transient: a
 // tone cut inside a frame leaks like the Hann window's edge, the power at
 // k bins and beyond being about 2/(π²k) of the tone's in that frame (a
 // cut spectrum falls as 1/(πk) in amplitude, both sides; common practice),
@@ -136,7 +136,10 @@ func cwFootprint(c, x *Finding, g *grid) bool {
 			d = t.OffsetHz - hi
 		}
 		k := d / bin
-		if k <= maxToneHalfWidth && jn <= tj {
+		// Its own main lobe: a narrow finding (a tone's width) beside it.
+		// A wider one holding the tone is another emitter: a tone inside
+		// a noise band.
+		if k <= maxToneHalfWidth && jn <= tj && hi-lo <= float64(2*maxToneHalfWidth+1)*bin {
 			return true
 		}
 		if c.keyed && jn <= 4*tj*2*transientEdges/(math.Pi*math.Pi*math.Max(k, 1)*float64(g.frames)) {

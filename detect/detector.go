@@ -39,6 +39,10 @@ type BlockInput struct {
 	// wideSubbands equal sub-bands: what NoiseFloor tests.
 	LevelRise   float64
 	SubbandRise [wideSubbands]float64
+	// Compressed says the block's samples went through a nonlinear front
+	// end: a quantizer of one to three bits, or an ADC that clipped more
+	// than compressedClip of them (see nonlinear.go).
+	Compressed bool
 	// Ratio is PSD/Floor per bin; Excluded marks bins no detector looks
 	// at (the DC bin of direct-conversion front ends, masks).
 	Ratio    []float64
@@ -113,6 +117,9 @@ type SweepParams struct {
 	// Power is the sweep's power while present (full scale 1) and Duty
 	// the share of its period it is present in the band, from the fold.
 	Power, Duty float64
+	// Fit is the correlation of the folded profile with its shape's
+	// template (1: a clean ramp or triangle).
+	Fit float64
 }
 
 // PulseParams describe a pulse train.

@@ -25,10 +25,11 @@ type footprintFunc func(c, x *Finding, g *grid) bool
 
 // grid is the spectral analysis the footprints are judged on.
 type grid struct {
-	bin    float64 // FFT bin width, Hz
-	fs     float64 // sample rate
-	frames int     // frames per block
-	irr    float64 // image rejection, dB
+	bin        float64 // FFT bin width, Hz
+	fs         float64 // sample rate
+	frames     int     // frames per block
+	irr        float64 // image rejection, dB
+	compressed bool    // the front end is in its nonlinear range (nonlinear.go)
 }
 
 // footprints lists, by class, the footprint of each kind of emitter.
@@ -58,6 +59,9 @@ func explains(c, x *Finding, g *grid) bool {
 		return false
 	}
 	if fp := footprints[c.Class]; fp != nil && fp(c, x, g) {
+		return true
+	}
+	if compressedFootprint(c, x, g) {
 		return true
 	}
 	class, lo, hi, jn := x.Class, x.LowHz, x.HighHz, x.JN
@@ -164,9 +168,7 @@ func (t *tracker) explainBlock(fs []Finding, g *grid) {
 			}
 		}
 		for ci := range fs {
-			if c := &fs[ci]; c.Class != x.Class || c.Class == ClassCW {
-				try(c)
-			}
+			try(&fs[ci])
 		}
 		// An open event of x's own class is x's emitter itself, seen
 		// before: x continues it.
@@ -187,7 +189,7 @@ func (t *tracker) explainBlock(fs []Finding, g *grid) {
 // measurable, a tone's transients after it stopped.
 func (t *tracker) explainEvents() {
 	bin := t.fs / float64(t.cfg.FFTSize)
-	g := &grid{bin: bin, fs: t.fs, frames: t.cfg.Frames, irr: t.cfg.ImageRejectionDB}
+	g := &grid{bin: bin, fs: t.fs, frames: t.cfg.Frames, irr: t.cfg.ImageRejectionDB, compressed: t.compressed}
 	slack := int64(t.blockLen)
 	kept := t.events[:0]
 	for _, e := range t.events {

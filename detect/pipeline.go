@@ -191,6 +191,9 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 		if side != nil {
 			side.blocks <- blk
 		}
+		if blk.Start == 0 {
+			b.lowBit = r.Levels().LowBit()
+		}
 		b.block(blk, p.Observer)
 		if inline {
 			meter.Block(blk.Start, blk.Samples)
@@ -526,6 +529,7 @@ type bank struct {
 	ref       *NoiseReference
 	learner   floorLearner
 	occupied  []bool
+	lowBit    bool // the capture's samples take a low-bit quantizer's few levels
 	findings  []Finding
 	center    float64
 	hasCenter bool
@@ -550,7 +554,7 @@ func (p *Pipeline) bankFor(cfg Config, fs float64) *bank {
 
 // reset prepares the bank for a new capture over the input's baseline.
 func (b *bank) reset(base *Baseline, center float64, hasCenter bool) {
-	b.center, b.hasCenter = center, hasCenter
+	b.center, b.hasCenter, b.lowBit = center, hasCenter, false
 	fs := b.eng.fs
 	var prev []float32
 	if b.tr != nil {
@@ -571,6 +575,7 @@ func (b *bank) block(blk ingest.Block, obs BlockObserver) {
 	f := b.eng.Analyze(blk.Start, blk.Samples, blk.Clipped)
 	in := &b.in
 	in.F, in.Samples, in.Cfg = f, blk.Samples, &b.cfg
+	in.Compressed = b.lowBit || float64(blk.Clipped) > compressedClip*float64(len(blk.Samples))
 	b.sk.Compute(in)
 	b.ref.apply(in, &b.thr)
 	fnd := b.findings[:0]

@@ -33,8 +33,8 @@ import (
 // x[n]·x*[n−1].
 type Pulse struct {
 	env      []float64
-	cache    map[int]float64
-	quartile map[int][2]float64
+	cache    map[float64]float64
+	quartile map[float64][2]float64
 	centers  []float64
 	starts   []int
 	ends     []int
@@ -50,13 +50,14 @@ type Pulse struct {
 	spec    []complex64
 	lobes   []float32
 	// The sub-band search's scratch: the trains found, their spectra,
-	// the mixed and the filtered samples, the filter.
+	// the filtered samples, the fast convolution's FFTs and buffers.
 	trains            []Finding
 	lobeBufs          [][]float32
-	mixed             []complex64
 	filtered          []complex64
-	taps              []float32
-	tapsFor           [2]float64
+	sbPlan, sbInv     *fft.Plan
+	sbSpec, sbSeg     []complex64
+	sbOut             []complex64
+	sbTaper           []float32
 	lens, lensScratch []float64
 	carriers          []float64 // each pulse's carrier offset
 	mixture           []float64 // the carriers of a wideband train of several emitters
@@ -108,7 +109,7 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 	}
 	d.trains = d.trains[:0]
 	d.mixture = d.mixture[:0]
-	wide, okWide := d.train(x, fs, in.NoisePower, in.F.Start, 1, continued, in.Cfg, true)
+	wide, okWide := d.train(x, fs, in.NoisePower/in.Rise, in.F.Start, 1, continued, in.Cfg, true)
 	regions := d.regions(in)
 	if okWide && len(d.mixture) > 0 {
 		// Several emitters in the wideband train: each carrier becomes a
@@ -157,11 +158,11 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 	noise := in.NoisePower / in.Rise
 	found, wideAgain := 0, false
 	for i, r := range regions {
-		y, fsd, dec, center, nsub := d.subband(in, r)
+		y, fsd, dec, center, nsub, skip := d.subband(in, r)
 		if len(y) == 0 {
 			continue
 		}
-		tr, ok := d.train(y, fsd, nsub, in.F.Start, dec, false, in.Cfg, false)
+		tr, ok := d.train(y, fsd, nsub, in.F.Start+int64(skip), dec, false, in.Cfg, false)
 		if !ok {
 			continue
 		}
@@ -332,6 +333,12 @@ func (d *Pulse) train(x []complex64, fs, noise float64, start int64, dec int, co
 		lens = append(lens, float64(d.ends[p]-d.starts[p]))
 	}
 	d.lens = lens
+	// Pulses of one emitter last alike; the runs of noise crossing the
+	// threshold on its own peaks (band noise switching on, two tones
+	// beating) do not: their lengths spread as widely as they are long.
+	if n >= 4 && !d.alike(lens) {
+		return Finding{}, false
+	}
 	half := min(maxLen, int(math.Ceil(1.5*medianScratch(&d.lensScratch, lens)))) + 2*l
 	if n >= 3 {
 		gaps := d.lens[:0]
@@ -487,9 +494,8 @@ func (d *Pulse) spectralDensity(prof []float64, used int, ns, rate, fs float64) 
 // (pulses at duty cycles up to three quarters do not move them, nor do
 // chirp bursts filling half of the time): k is the shape whose
 // Gamma(k, 1/k) has the same ratio q₂/q₁ (from 1 to 4L), and the power is
-// q₂ over that distribution's lower quartile, at least the noise power
-// expected from the floor.
-func (d *Pulse) reference(sums []float64, l int, noise float64) (float64, int) {
+// q₂ over that distribution's lower quartile.
+func (d *Pulse) reference(sums []float64, l int, noise float64) (float64, float64) {
 	const bins = 1024
 	var hist [bins]int
 	top := 16 * noise // the histogram spans 0..16 N
@@ -510,34 +516,55 @@ func (d *Pulse) reference(sums []float64, l int, noise float64) (float64, int) {
 		return top
 	}
 	q1, q2 := quantile(0.1), quantile(0.25)
-	k := l
+	k := float64(l)
 	if q1 > 0 {
-		k = d.shapeFor(q2/q1, 4*l)
+		k = d.shapeFor(q2/q1, 4*float64(l))
 	}
 	_, ql := d.gammaQuartiles(k)
-	return math.Max(noise, q2/ql), k
+	// The envelope between the pulses measures the background itself;
+	// the floor's noise power only guards against a background of zeros
+	// (a dead stretch), at a hundredth of it: a wide emitter (a sweep
+	// crossing the band, a noise jammer) lifts the floor the spectrum sees
+	// far above the envelope between its bursts.
+	return math.Max(0.01*noise, q2/ql), k
 }
 
 // gammaQuartiles returns the lower decile and the lower quartile of
 // Gamma(k, 1/k), cached.
-func (d *Pulse) gammaQuartiles(k int) (float64, float64) {
+func (d *Pulse) gammaQuartiles(k float64) (float64, float64) {
 	if d.quartile == nil {
-		d.quartile = map[int][2]float64{}
+		d.quartile = map[float64][2]float64{}
 	}
 	if v, ok := d.quartile[k]; ok {
 		return v[0], v[1]
 	}
-	g := distuv.Gamma{Alpha: float64(k), Beta: float64(k)}
+	g := distuv.Gamma{Alpha: k, Beta: k}
 	v := [2]float64{g.Quantile(0.1), g.Quantile(0.25)}
 	d.quartile[k] = v
 	return v[0], v[1]
 }
 
-// shapeFor returns the k in 1..kmax whose Gamma(k) lower quartile over
+// shapes are the shapes k shapeFor chooses from: tenths up to 4, then
+// whole numbers (a threshold far in the tail moves a lot with a small k).
+var shapes = func() []float64 {
+	var v []float64
+	for k := 0.5; k < 4; k += 0.1 {
+		v = append(v, math.Round(k*10)/10)
+	}
+	for k := 4.0; k <= 128; k++ {
+		v = append(v, k)
+	}
+	return v
+}()
+
+// shapeFor returns the k up to kmax whose Gamma(k) lower quartile over
 // lower decile is nearest r (the ratio falls with k: 2.73 at k = 1).
-func (d *Pulse) shapeFor(r float64, kmax int) int {
-	best, at := math.Inf(1), 1
-	for k := 1; k <= kmax; k++ {
+func (d *Pulse) shapeFor(r, kmax float64) float64 {
+	best, at := math.Inf(1), 1.0
+	for _, k := range shapes {
+		if k > kmax {
+			break
+		}
 		q1, q2 := d.gammaQuartiles(k)
 		if e := math.Abs(q2/q1 - r); e < best {
 			best, at = e, k
@@ -546,15 +573,15 @@ func (d *Pulse) shapeFor(r float64, kmax int) int {
 	return at
 }
 
-func (d *Pulse) threshold(l int, pfa float64) float64 {
+func (d *Pulse) threshold(k, pfa float64) float64 {
 	if d.cache == nil {
-		d.cache = map[int]float64{}
+		d.cache = map[float64]float64{}
 	}
-	if v, ok := d.cache[l]; ok {
+	if v, ok := d.cache[k]; ok {
 		return v
 	}
-	v := distuv.Gamma{Alpha: float64(l), Beta: float64(l)}.Quantile(1 - pfa)
-	d.cache[l] = v
+	v := distuv.Gamma{Alpha: k, Beta: k}.Quantile(1 - pfa)
+	d.cache[k] = v
 	return v
 }
 
@@ -728,6 +755,11 @@ func pulseFootprint(c, x *Finding, g *grid) bool {
 	if class == ClassWidebandNoise {
 		return jn <= c.JN
 	}
+	if class == ClassPulsed {
+		// The same pulses seen again in another sub-band (a strong
+		// train's spectrum reaches far): weaker, arriving with c's.
+		return jn < c.JN && samePulses(c.Pulse, x.Pulse, g.fs)
+	}
 	if c.Pulse != nil && len(c.Pulse.Channels) > 0 {
 		// A hopper: each channel's main lobe and spectrum.
 		bw := 1 / math.Max(c.Pulse.WidthS, 1e-9)
@@ -751,6 +783,43 @@ func pulseFootprint(c, x *Finding, g *grid) bool {
 		band = float64(2*maxToneHalfWidth+1) * g.bin
 	}
 	return c.sidelobeJN(lo, hi, band, g.bin, g.fs) >= jn
+}
+
+// alike reports whether run lengths are those of one emitter's pulses:
+// their interquartile range at most the median (the quartiles of a pulse
+// train's runs differ by a few samples of threshold jitter; those of noise
+// peaks, roughly exponential, by about 1.1 medians).
+func (d *Pulse) alike(lens []float64) bool {
+	s := append(d.lensScratch[:0], lens...)
+	d.lensScratch = s
+	sort.Float64s(s)
+	q1, q2, q3 := s[len(s)/4], s[len(s)/2], s[3*len(s)/4]
+	return q3-q1 <= q2
+}
+
+// samePulses reports whether most (four fifths) of train b's arrivals
+// coincide with a's, to within a's pulse width or a microsecond (arrival
+// times in capture samples at rate fs).
+func samePulses(a, b *PulseParams, fs float64) bool {
+	if a == nil || b == nil || len(b.Groups) == 0 || len(a.Groups) == 0 {
+		return false
+	}
+	tol := math.Max(a.WidthS, 1e-6)
+	// Arrival times are capture samples; a's are sorted.
+	hit := 0
+	for _, t := range b.Groups {
+		i := sort.Search(len(a.Groups), func(i int) bool { return a.Groups[i] >= t })
+		near := math.Inf(1)
+		for _, j := range []int{i - 1, i} {
+			if j >= 0 && j < len(a.Groups) {
+				near = math.Min(near, math.Abs(float64(a.Groups[j]-t)))
+			}
+		}
+		if near <= tol*fs {
+			hit++
+		}
+	}
+	return 5*hit >= 4*len(b.Groups)
 }
 
 // sidelobeJN is the most J/N pulse train c's spectrum explains in the band
@@ -951,83 +1020,106 @@ func (d *Pulse) regions(in *BlockInput) [][2]float64 {
 	return out
 }
 
-// subband filters sub-band r (offsets, Hz) out of the block: the samples
-// mixed by −fc (fc its centre), low-pass filtered to its half-width by a
-// windowed-sinc FIR (Blackman window, 6 taps per decimated sample; about
-// 74 dB stopband, common practice for a Blackman-windowed sinc) and
-// decimated by D so that the output rate is about 2.5 times the sub-band's
-// width and no less than 2 MS/s (1 µs must hold two samples). It returns
-// the output, its rate, D, fc and the noise power per output sample
-// expected from the noise reference over the sub-band's bins.
-func (d *Pulse) subband(in *BlockInput, r [2]float64) ([]complex64, float64, int, float64, float64) {
+// subband filters sub-band r (offsets, Hz) out of the block, mixed to
+// baseband and decimated, by fast convolution (overlap-save, Oppenheim &
+// Schafer, from memory): the block is cut into segments of F samples
+// hopping by F/2; each segment's F-point FFT keeps the F/D bins around
+// the sub-band's centre (an even bin, so that consecutive segments join in
+// phase), those within its half-width at 1 and a raised-cosine edge of a
+// fifth of the half-width beyond; an F/D-point inverse FFT gives the
+// segment decimated by D. The mask is a zero-phase filter, whose impulse
+// response reaches both ways, so the circular convolution is exact in the
+// middle half of each segment only: that half is kept. D is the
+// largest power of two leaving the output rate at least 2.5 times the
+// sub-band's width and 2 MS/s (1 µs must hold two samples). The filter is
+// as sharp as the FFT's bins (fs/F), at about 10 ns per input sample. It
+// returns the output, its rate, D, the centre, the noise power per output
+// sample expected from the noise reference over the sub-band, and the
+// block samples left out at its start.
+func (d *Pulse) subband(in *BlockInput, r [2]float64) ([]complex64, float64, int, float64, float64, int) {
 	f := in.F
 	fs := f.Fs
-	fc := (r[0] + r[1]) / 2
-	half := math.Min((r[1]-r[0])/2, fs/2)
-	dec := max(1, int(fs/math.Max(2.5*2*half, 2e6)))
-	fsd := fs / float64(dec)
-	cut := half / fs // cycles per input sample
-	ntaps := 6*dec*2 + 1
-	if len(d.taps) != ntaps || d.tapsFor != [2]float64{cut, float64(dec)} {
-		d.taps = make([]float32, ntaps)
-		var sum float64
-		c := float64(ntaps-1) / 2
-		for i := range d.taps {
-			t := float64(i) - c
-			v := 2 * cut
-			if t != 0 {
-				v = math.Sin(2*math.Pi*cut*t) / (math.Pi * t)
-			}
-			w := 0.42 - 0.5*math.Cos(2*math.Pi*float64(i)/float64(ntaps-1)) + 0.08*math.Cos(4*math.Pi*float64(i)/float64(ntaps-1))
-			d.taps[i] = float32(v * w)
-			sum += v * w
-		}
-		for i := range d.taps {
-			d.taps[i] /= float32(sum)
-		}
-		d.tapsFor = [2]float64{cut, float64(dec)}
-	}
 	x := in.Samples
-	if cap(d.mixed) < len(x) {
-		d.mixed = make([]complex64, len(x))
+	const segment = 4096
+	binHz := fs / segment
+	b0 := 2 * int(math.Round((r[0]+r[1])/2/binHz/2))
+	fc := float64(b0) * binHz
+	half := math.Min((r[1]-r[0])/2, fs/2)
+	edge := half / 5
+	dec := 1
+	for dec*2 <= segment/16 && fs/float64(dec*2) >= math.Max(2.5*2*(half+edge), 2e6) {
+		dec *= 2
 	}
-	mx := d.mixed[:len(x)]
-	step := complex128(cmplx.Rect(1, -2*math.Pi*fc/fs))
-	rot := complex128(cmplx.Rect(1, -2*math.Pi*fc/fs*float64(f.Start%int64(math.MaxInt32))))
-	for i, v := range x {
-		mx[i] = v * complex64(rot)
-		rot *= step
-		if i&1023 == 1023 {
-			rot /= complex(cmplx.Abs(rot), 0)
+	m := segment / dec
+	if d.sbPlan == nil || d.sbPlan.Len() != segment {
+		d.sbPlan = fft.NewPlan(segment)
+		d.sbSpec = make([]complex64, segment)
+		d.sbSeg = make([]complex64, segment)
+	}
+	if d.sbInv == nil || d.sbInv.Len() != m {
+		d.sbInv = fft.NewPlan(m)
+		d.sbOut = make([]complex64, m)
+		d.sbTaper = make([]float32, m)
+	}
+	// The taper over the kept bins, in FFT order (k ≥ 0 at k, k < 0 at
+	// m + k).
+	for i := range d.sbTaper {
+		k := i
+		if i >= m/2 {
+			k = i - m
+		}
+		a := math.Abs(float64(k)) * binHz
+		switch {
+		case a <= half:
+			d.sbTaper[i] = 1
+		case a <= half+edge:
+			d.sbTaper[i] = float32(0.5 * (1 + math.Cos(math.Pi*(a-half)/edge)))
+		default:
+			d.sbTaper[i] = 0
 		}
 	}
-	m := len(x) / dec
-	if cap(d.filtered) < m {
-		d.filtered = make([]complex64, m)
+	hop := segment / 2
+	n := len(x) / dec
+	if cap(d.filtered) < n+m {
+		d.filtered = make([]complex64, n+m)
 	}
-	y := d.filtered[:m]
-	for o := range y {
-		end := o*dec + 1
-		var acc complex64
-		for k, h := range d.taps {
-			i := end - 1 - k
-			if i < 0 {
-				break
+	y := d.filtered[:0]
+	scale := complex(float32(1.0/segment), 0)
+	for st := -segment / 4; st < len(x); st += hop {
+		seg := d.sbSeg
+		clear(seg)
+		lo, hi := max(st, 0), min(st+segment, len(x))
+		if lo < hi {
+			copy(seg[lo-st:], x[lo:hi])
+		}
+		d.sbPlan.Forward(d.sbSpec, seg)
+		for i := range d.sbOut {
+			k := i
+			if i >= m/2 {
+				k = i - m
 			}
-			acc += mx[i] * complex(h, 0)
+			j := ((b0+k)%segment + segment) % segment
+			d.sbOut[i] = d.sbSpec[j] * complex(d.sbTaper[i], 0) * scale
 		}
-		y[o] = acc
+		d.sbInv.Inverse(d.sbOut, d.sbOut)
+		y = append(y, d.sbOut[m/4:3*m/4]...)
 	}
-	// The filter's delay: shift by (taps−1)/2 input samples.
-	delay := (ntaps - 1) / 2 / dec
-	if delay < len(y) {
-		y = y[delay:]
+	y = y[:min(len(y), n)]
+	d.filtered = y
+	// The block's edges: the filter meets the zeros beyond them, and a
+	// strong emitter's abrupt start there leaks into the sub-band; the
+	// first and last samples within the filter's reach (about five over
+	// the taper's width) are left out.
+	guard := int(math.Ceil(5 / edge * fs / float64(dec)))
+	if 4*guard >= len(y) {
+		return nil, 0, 0, 0, 0, 0
 	}
+	y = y[guard : len(y)-guard]
 	var noise float64
-	for k := f.Bin(r[0]); k <= f.Bin(r[1]); k++ {
+	for k := f.Bin(fc - half); k <= f.Bin(fc+half); k++ {
 		noise += in.Floor[k]
 	}
-	return y, fsd, dec, fc, noise
+	return y, fs / float64(dec), dec, fc, noise, guard * dec
 }
 
 // hopping appends the sub-band trains to out, one finding for those that

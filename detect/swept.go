@@ -52,6 +52,16 @@ type Swept struct {
 // Name implements Detector.
 func (*Swept) Name() string { return "swept" }
 
+// minSweepSpan is the narrowest sweep reported, as a share of the band
+// (chirp jammers sweep megahertz; REFERENCES §5).
+const minSweepSpan = 0.05
+
+// minNarrowSweepFit is the correlation a sweep narrower than a fifth of
+// the band must reach between its folded frequency profile and its shape's
+// template: a true narrow sweep is a clean ramp; a carrier's wobble that
+// happens to fold is not.
+const minNarrowSweepFit = 0.9
+
 // minSweepCoherence is the folded coherence Σ|Z_b|/Σ|z[n]| a chirp must
 // reach: a periodic constant-envelope sweep folds coherently (near 1 at
 // high J/N, about J/(J+N) below), noise and pulse pairs do not.
@@ -88,7 +98,11 @@ func (d *Swept) Detect(in *BlockInput, out []Finding) []Finding {
 		}
 		sw, ok, _ = d.fold(in.Samples, f.Fs, period)
 	}
-	if !ok || sw.Coherent < minSweepCoherence {
+	// A "sweep" over a few bins is a carrier wobbling (a strong tone
+	// through a 2-bit quantizer folds coherently too): a sweep covers at
+	// least minSweepSpan of the band.
+	if !ok || sw.Coherent < minSweepCoherence || sw.HighHz-sw.LowHz < minSweepSpan*f.Fs ||
+		sw.HighHz-sw.LowHz < 0.2*f.Fs && sw.Fit < minNarrowSweepFit {
 		d.last = SweepParams{}
 		return out
 	}
@@ -606,7 +620,7 @@ func sweepFromProfile(prof, w []float64, period float64) (SweepParams, bool) {
 		return SweepParams{}, false
 	}
 	dt := period / float64(n)
-	sw := SweepParams{PeriodS: period}
+	sw := SweepParams{PeriodS: period, Fit: math.Max(math.Abs(bestRamp), bestTri)}
 	if math.Abs(bestRamp) >= bestTri {
 		sw.Shape = "up"
 		if bestRamp < 0 {
