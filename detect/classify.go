@@ -36,6 +36,7 @@ type tracker struct {
 	prevF    Features
 	last     *BlockInput
 	order    []int // scratch of explainBlock
+	grid     grid  // the block's, for explainBlock
 	// compressed says that some block of the capture drove the front end
 	// into its nonlinear range (nonlinear.go).
 	compressed bool
@@ -113,7 +114,8 @@ func (t *tracker) block(in *BlockInput, fs []Finding) {
 		}
 	}
 	t.compressed = t.compressed || in.Compressed
-	t.explainBlock(fs, &grid{bin: bin, fs: f.Fs, frames: max(f.Frames, 1), irr: t.cfg.ImageRejectionDB, compressed: in.Compressed})
+	t.grid = grid{bin: bin, fs: f.Fs, frames: max(f.Frames, 1), irr: t.cfg.ImageRejectionDB, compressed: in.Compressed}
+	t.explainBlock(fs, &t.grid)
 	var classed []Finding
 	for _, x := range fs {
 		if x.Class == "" || (x.Class == ClassCW && (len(x.Tones) == 0 || isSweepComb(x.Tones))) {
@@ -125,7 +127,8 @@ func (t *tracker) block(in *BlockInput, fs []Finding) {
 	for _, x := range classed {
 		var ev *trackedEvent
 		for _, o := range t.open {
-			if o.class == x.Class && (x.Class == ClassWidebandNoise || overlaps(o.lo, o.hi, x.LowHz, x.HighHz)) && !matched[o] {
+			if o.class == x.Class && !matched[o] && (x.Class == ClassWidebandNoise ||
+				overlaps(o.lo, o.hi, x.LowHz, x.HighHz) || sameSlowSweep(o.sweep, x.Sweep)) {
 				ev = o
 				break
 			}
@@ -461,9 +464,28 @@ func (e *trackedEvent) absorb(t *tracker, in *BlockInput, x Finding, all []Findi
 		e.tones = mergeTones(e.tones, x.Tones, f.Fs/float64(f.N)*3)
 		e.setBand(f, Finding{Class: ClassCW, Tones: e.tones})
 	case ClassSwept:
+		if x.Sweep.Slow && (e.sweep == nil || e.sweep.Slow) {
+			// A sweep slower than a block: each block sees a stretch of
+			// its ramp; the event gathers the span and the flybacks.
+			if e.sweep == nil {
+				s := *x.Sweep
+				s.FlybackAt = nil
+				e.sweep = &s
+			} else {
+				e.sweep.LowHz = math.Min(e.sweep.LowHz, x.Sweep.LowHz)
+				e.sweep.HighHz = math.Max(e.sweep.HighHz, x.Sweep.HighHz)
+				if x.Sweep.Fit > e.sweep.Fit {
+					e.sweep.RateHzS, e.sweep.Fit, e.sweep.Shape = x.Sweep.RateHzS, x.Sweep.Fit, x.Sweep.Shape
+				}
+			}
+			e.sweep.FlybackAt = append(e.sweep.FlybackAt, x.Sweep.FlybackAt...)
+			e.lo, e.hi = e.sweep.LowHz, e.sweep.HighHz
+			e.setBand(f, Finding{LowHz: e.lo, HighHz: e.hi})
+			break
+		}
 		// The most coherent fold measures the sweep best (a block the
 		// sweep only partly fills folds poorly); its band is the event's.
-		if e.sweep == nil || x.Sweep.Coherent > e.sweep.Coherent {
+		if e.sweep == nil || e.sweep.Slow || x.Sweep.Coherent > e.sweep.Coherent {
 			s := *x.Sweep
 			e.sweep = &s
 			e.lo, e.hi = s.LowHz, s.HighHz
@@ -507,6 +529,14 @@ func (e *trackedEvent) absorb(t *tracker, in *BlockInput, x Finding, all []Findi
 	}
 }
 
+// sameSlowSweep reports whether two stretches of sweeps slower than a
+// block are one sweep: their bands move from block to block (and jump at a
+// flyback), but their rates agree to within a fifth.
+func sameSlowSweep(a, b *SweepParams) bool {
+	return a != nil && b != nil && a.Slow && b.Slow && a.RateHzS*b.RateHzS > 0 &&
+		math.Abs(a.RateHzS-b.RateHzS) <= 0.2*math.Abs(a.RateHzS)
+}
+
 // mergeTones adds the tones of a block to those already known, averaging
 // the ones within tol Hz of each other.
 func mergeTones(have, add []ToneParam, tol float64) []ToneParam {
@@ -535,7 +565,9 @@ func (e *trackedEvent) toEvent(c *ingest.Capture, name string, cfg Config, fs, c
 	if end <= start {
 		end = min(start+int64(cfg.FFTSize), c.Samples)
 	}
-	ev := Event{Class: e.class, Capture: name, SampleStart: start, SampleCount: end - start,
+	// Sample indices are the file's (a real capture's file holds twice
+	// the samples analysed).
+	ev := Event{Class: e.class, Capture: name, SampleStart: c.FileSample(start), SampleCount: c.FileSample(end) - c.FileSample(start),
 		Start: Time{c.SampleTime(start)}, End: Time{c.SampleTime(end)}, Detectors: sortedKeys(e.detectors)}
 	jn := e.jnSum / float64(max(e.hits, 1))
 	ev.OffsetHz = (e.lo + e.hi) / 2
@@ -556,7 +588,22 @@ func (e *trackedEvent) toEvent(c *ingest.Capture, name string, cfg Config, fs, c
 		s := e.sweep
 		ev.OffsetHz = (s.LowHz + s.HighHz) / 2
 		ev.BandwidthHz = s.HighHz - s.LowHz
-		ev.Params.SweepPeriodS = ptr(s.PeriodS)
+		period := s.PeriodS
+		if s.Slow && period == 0 {
+			// Slower than a block: the period is the spacing of the
+			// flybacks seen, else at least the time the span seen took.
+			if len(s.FlybackAt) >= 2 {
+				d := make([]float64, len(s.FlybackAt)-1)
+				for i := range d {
+					d[i] = float64(s.FlybackAt[i+1] - s.FlybackAt[i])
+				}
+				period = medianOf(d) / fs
+			} else if s.RateHzS != 0 {
+				period = (s.HighHz - s.LowHz) / math.Abs(s.RateHzS)
+				ev.Params.PeriodIsLowerBound = true
+			}
+		}
+		ev.Params.SweepPeriodS = ptr(period)
 		ev.Params.SweepLowHz = ptr(s.LowHz)
 		ev.Params.SweepHighHz = ptr(s.HighHz)
 		ev.Params.SweepRateHzPerS = ptr(s.RateHzS)

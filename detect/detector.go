@@ -43,6 +43,10 @@ type BlockInput struct {
 	// end: a quantizer of one to three bits, or an ADC that clipped more
 	// than compressedClip of them (see nonlinear.go).
 	Compressed bool
+	// LowBitThreshold is the magnitude threshold of a symmetric two- or
+	// three-bit quantizer whose levels the capture's samples take (full
+	// scale 1; 0 otherwise): what the pulse detector counts beyond.
+	LowBitThreshold float32
 	// Ratio is PSD/Floor per bin; Excluded marks bins no detector looks
 	// at (the DC bin of direct-conversion front ends, masks).
 	Ratio    []float64
@@ -98,6 +102,9 @@ type Finding struct {
 	// keyed, for a CW finding, says that a tone was switched on or off
 	// inside the block (its on/off transients spread over many bins).
 	keyed bool
+	// JNLowerBound says JN is only a lower bound (a low-bit quantizer was
+	// saturated by the emitter).
+	JNLowerBound bool
 }
 
 // SweepParams describe a swept tone.
@@ -120,6 +127,11 @@ type SweepParams struct {
 	// Fit is the correlation of the folded profile with its shape's
 	// template (1: a clean ramp or triangle).
 	Fit float64
+	// Slow marks a sweep slower than a block, seen as a ramp (Swept.ramp):
+	// PeriodS is 0 unless the block held two flybacks; FlybackAt are the
+	// capture samples of those it held, for the event's period.
+	Slow      bool
+	FlybackAt []int64
 }
 
 // PulseParams describe a pulse train.

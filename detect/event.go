@@ -61,11 +61,15 @@ type Params struct {
 	// and the period.
 	SweepSpanHz     *float64 `json:"sweep_span_hz,omitempty"`
 	SpanExceedsBand bool     `json:"span_exceeds_band,omitempty"`
-	PulseWidthS     *float64 `json:"pulse_width_s,omitempty"`
-	PRIS            *float64 `json:"pri_s,omitempty"`
-	DutyCycle       *float64 `json:"duty_cycle,omitempty"`
-	Pulses          *int     `json:"pulses,omitempty"`
-	PairSpacingS    *float64 `json:"pair_spacing_s,omitempty"`
+	// PeriodIsLowerBound says that a sweep slower than the capture shows
+	// did not fly back twice in it: sweep_period_s is the time the span
+	// seen took, and the true period is at least that.
+	PeriodIsLowerBound bool     `json:"period_is_lower_bound,omitempty"`
+	PulseWidthS        *float64 `json:"pulse_width_s,omitempty"`
+	PRIS               *float64 `json:"pri_s,omitempty"`
+	DutyCycle          *float64 `json:"duty_cycle,omitempty"`
+	Pulses             *int     `json:"pulses,omitempty"`
+	PairSpacingS       *float64 `json:"pair_spacing_s,omitempty"`
 	// ChannelsHz are the carrier offsets of a pulsed emitter that hops
 	// from pulse to pulse over several channels.
 	ChannelsHz     []float64 `json:"channels_hz,omitempty"`
@@ -91,17 +95,23 @@ type Impact struct {
 // CaptureRecord is the body of a `kind: "capture"` record: written after
 // the capture's events, it marks the capture done.
 type CaptureRecord struct {
-	Capture    string   `json:"capture"`
-	SHA256     string   `json:"sha256,omitempty"`
-	Format     string   `json:"format,omitempty"`
-	SampleRate float64  `json:"sample_rate_hz,omitempty"`
-	CenterHz   *float64 `json:"center_hz,omitempty"`
-	Start      *Time    `json:"start,omitempty"`
-	Samples    int64    `json:"samples"`
-	Status     string   `json:"status"`
-	Error      string   `json:"error,omitempty"`
-	Events     int      `json:"events"`
-	Stats      *Stats   `json:"stats,omitempty"`
+	Capture    string  `json:"capture"`
+	SHA256     string  `json:"sha256,omitempty"`
+	Format     string  `json:"format,omitempty"`
+	SampleRate float64 `json:"sample_rate_hz,omitempty"`
+	// AnalysisRateHz is the rate the detectors worked at when it differs
+	// from the file's (real samples at an IF, turned into complex
+	// baseband at half the rate); IFHz and LOSide say how.
+	AnalysisRateHz *float64 `json:"analysis_rate_hz,omitempty"`
+	IFHz           *float64 `json:"if_hz,omitempty"`
+	LOSide         string   `json:"lo_side,omitempty"`
+	CenterHz       *float64 `json:"center_hz,omitempty"`
+	Start          *Time    `json:"start,omitempty"`
+	Samples        int64    `json:"samples"`
+	Status         string   `json:"status"`
+	Error          string   `json:"error,omitempty"`
+	Events         int      `json:"events"`
+	Stats          *Stats   `json:"stats,omitempty"`
 	// Fault, when set, says that the front end, not the sky, explains the
 	// samples (an ok capture may carry one: what could be analysed was).
 	Fault *Fault `json:"fault,omitempty"`
@@ -141,6 +151,13 @@ type Stats struct {
 	Baseline       string      `json:"baseline"` // "learning", "learned" or "loaded"
 	Satellites     []Satellite `json:"satellites"`
 	GNSSSkipped    string      `json:"gnss_skipped,omitempty"`
+	// Quantization names the few levels a low-bit front end's samples
+	// take ("2-bit: levels ±1, ±3"), and OccupancyLevelDB the input level
+	// read from the magnitude-bit occupancy (REFERENCES §12.3: σ over the
+	// quantizer's threshold, dB), a scale that means something where
+	// dBFS of a few levels does not.
+	Quantization     string   `json:"quantization,omitempty"`
+	OccupancyLevelDB *float64 `json:"occupancy_level_db,omitempty"`
 	// ClockOffsetHz is the receiver's common Doppler offset, when
 	// satellites were measured.
 	ClockOffsetHz *float64 `json:"clock_offset_hz,omitempty"`

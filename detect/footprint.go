@@ -30,6 +30,7 @@ type grid struct {
 	frames     int     // frames per block
 	irr        float64 // image rejection, dB
 	compressed bool    // the front end is in its nonlinear range (nonlinear.go)
+	tone       Finding // explainTones' scratch: one tone as a finding
 }
 
 // footprints lists, by class, the footprint of each kind of emitter.
@@ -77,10 +78,11 @@ func explains(c, x *Finding, g *grid) bool {
 // left.
 func explainTones(x *Finding, c *Finding, g *grid) bool {
 	kept := x.Tones[:0]
+	one := &g.tone
 	for _, t := range x.Tones {
 		jn := math.Pow(10, t.JNDB/10)
-		one := Finding{Class: ClassCW, LowHz: t.OffsetHz - g.bin, HighHz: t.OffsetHz + g.bin, OffsetHz: t.OffsetHz, JN: jn}
-		if explains(c, &one, g) {
+		*one = Finding{Class: ClassCW, LowHz: t.OffsetHz - g.bin, HighHz: t.OffsetHz + g.bin, OffsetHz: t.OffsetHz, JN: jn}
+		if explains(c, one, g) {
 			continue
 		}
 		kept = append(kept, t)
@@ -109,23 +111,30 @@ func (x *Finding) setTones(bin float64) {
 // imageTones drops the tones of a CW finding that are the I/Q images of
 // stronger tones of the same finding.
 func imageTones(x *Finding, bin, irr float64) {
-	if len(x.Tones) < 2 {
+	n := len(x.Tones)
+	if n < 2 {
 		return
 	}
+	// The tones are sorted by offset: the partners of −f are found by
+	// binary search.
 	kept := x.Tones[:0:0]
-	for i, t := range x.Tones {
+	for _, t := range x.Tones {
 		image := false
-		for j, s := range x.Tones {
-			if i != j && math.Abs(t.OffsetHz+s.OffsetHz) <= 1.5*bin && t.JNDB <= s.JNDB-irr {
+		lo := sort.Search(n, func(i int) bool { return x.Tones[i].OffsetHz >= -t.OffsetHz-1.5*bin })
+		for j := lo; j < n && x.Tones[j].OffsetHz <= -t.OffsetHz+1.5*bin; j++ {
+			if s := x.Tones[j]; s.OffsetHz != t.OffsetHz && t.JNDB <= s.JNDB-irr {
 				image = true
 				break
 			}
 		}
 		if !image {
+			if len(kept) == 0 {
+				kept = make([]ToneParam, 0, n)
+			}
 			kept = append(kept, t)
 		}
 	}
-	if len(kept) != len(x.Tones) {
+	if len(kept) != n {
 		x.Tones = append(x.Tones[:0], kept...)
 		x.setTones(bin)
 	}

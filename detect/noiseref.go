@@ -24,7 +24,10 @@ import (
 // Without a baseline (the first captures of a site, a single-file replay),
 // the passband is fitted to the block itself (Passband): robust to
 // interference, never a flat median floor that a real front end's
-// passband would rise above.
+// passband would rise above. The fit is made on a capture's first block
+// and every ownRefit blocks after; the blocks between take its shape at
+// their own level, as they would a baseline's (a passband does not change
+// within a capture, and an emitter that appears later is not absorbed).
 //
 // The excess-power threshold on the ratio (BlockInput.BinThreshold) is the
 // (1 − BinPfa) quantile of Gamma(M, 1/M), or of F(2M, 2E) when the floor
@@ -41,7 +44,15 @@ type NoiseReference struct {
 	vals   []float64
 	skip   []bool
 	qcache map[int]float64
+	// own is the passband fitted to this capture (no baseline), ownAge
+	// the blocks since.
+	own    []float64
+	ownAge int
 }
+
+// ownRefit is how often, in blocks, the passband of a capture without a
+// baseline is fitted again.
+const ownRefit = 8
 
 // referenceQuantile is the lower quantile of the bins' ratios that
 // measures the noise level.
@@ -60,6 +71,7 @@ func newNoiseReference(n int) *NoiseReference {
 // from frames frames.
 func (r *NoiseReference) reset(shape []float64, frames float64) {
 	r.shape, r.frames, r.level = nil, 0, 0
+	r.ownAge = -1
 	if len(shape) != r.pb.n {
 		return
 	}
@@ -105,33 +117,45 @@ func (r *NoiseReference) apply(in *BlockInput, thr *thresholdCache) {
 		in.SubbandRise[b] = 1
 	}
 	floorFrames := 0.0
-	if r.shape != nil && f.Frames > 0 {
+	shape, level := r.shape, r.level
+	if shape == nil && r.ownAge >= 0 && r.ownAge < ownRefit && f.Frames > 0 {
+		shape, level = r.own, r.ownLevel()
+	}
+	if shape != nil && f.Frames > 0 {
 		q := r.gammaQuantile(f.Frames)
-		level := r.level * r.quantileRatio(in, 0, n) / q
-		if !(level > 0) {
-			level = r.level
+		lv := level * r.quantileRatio(in, shape, 0, n) / q
+		if !(lv > 0) {
+			lv = level
 		}
-		g := level / r.level
+		g := lv / level
 		for k := range in.Floor {
-			in.Floor[k] = r.shape[k] * g
+			in.Floor[k] = shape[k] * g
 		}
-		in.LevelRise = g
-		w := n / wideSubbands
-		for b := range in.SubbandRise {
-			if v := r.quantileRatio(in, b*w, (b+1)*w) / q; v > 0 {
-				in.SubbandRise[b] = v
+		if r.shape != nil {
+			in.LevelRise = g
+			w := n / wideSubbands
+			for b := range in.SubbandRise {
+				if v := r.quantileRatio(in, shape, b*w, (b+1)*w) / q; v > 0 {
+					in.SubbandRise[b] = v
+				}
 			}
+			floorFrames = r.frames
+		} else {
+			r.ownAge++
 		}
-		floorFrames = r.frames
 	} else {
 		for k := range r.skip {
 			r.skip[k] = !in.usable(k)
 		}
-		fit, _ := r.pb.Fit(f.PSD, max(f.Frames, 1), r.skip)
+		fit, ok := r.pb.Fit(f.PSD, max(f.Frames, 1), r.skip)
 		if fit == nil {
 			fit = f.PSD // nothing usable at all: compare the block with itself
 		}
 		copy(in.Floor, fit)
+		if ok && f.Frames >= minFrames {
+			r.own = append(r.own[:0], fit...)
+			r.ownAge = 0
+		}
 	}
 	in.NoisePower = 0
 	for k, fl := range in.Floor {
@@ -145,13 +169,22 @@ func (r *NoiseReference) apply(in *BlockInput, thr *thresholdCache) {
 	in.BinThreshold = thr.bin(f.Frames, floorFrames, in.Cfg.BinPfa) * math.Pow(10, referenceMarginDB/10)
 }
 
+// ownLevel is the mean of the capture's own passband.
+func (r *NoiseReference) ownLevel() float64 {
+	var s float64
+	for _, v := range r.own {
+		s += v
+	}
+	return s / float64(max(len(r.own), 1))
+}
+
 // quantileRatio is the referenceQuantile quantile of PSD/shape over the
 // usable bins lo..hi−1 (0 when none is usable).
-func (r *NoiseReference) quantileRatio(in *BlockInput, lo, hi int) float64 {
+func (r *NoiseReference) quantileRatio(in *BlockInput, shape []float64, lo, hi int) float64 {
 	v := r.vals[:0]
 	for k := lo; k < hi; k++ {
-		if in.usable(k) && r.shape[k] > 0 {
-			v = append(v, in.F.PSD[k]/r.shape[k])
+		if in.usable(k) && shape[k] > 0 {
+			v = append(v, in.F.PSD[k]/shape[k])
 		}
 	}
 	r.vals = v

@@ -10,6 +10,7 @@ import (
 	"io"
 	"math"
 	"runtime"
+	"strings"
 	"sync/atomic"
 	"time"
 
@@ -62,8 +63,9 @@ type SatelliteMeter interface {
 	Start(fs, centerHz float64, hasCenter bool) (skip string)
 	// Block takes the next block of samples.
 	Block(start int64, x []complex64)
-	// Result returns the satellites measured.
-	Result() []Satellite
+	// Measurement returns what was measured: the satellites, the
+	// receiver's clock offset, the spectrum orientation, notes.
+	Measurement() SatelliteResult
 }
 
 // Result is the outcome of one capture.
@@ -142,6 +144,7 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 		return nil, err
 	}
 	defer r.Close()
+	r.CheckFrontEnd()
 
 	b := p.bankFor(cfg, fs)
 	b.reset(&base, center, hasCenter)
@@ -192,7 +195,9 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 			side.blocks <- blk
 		}
 		if blk.Start == 0 {
-			b.lowBit = r.Levels().LowBit()
+			lv := r.Levels()
+			b.lowBit = lv.LowBit()
+			b.lowT, _ = lv.Threshold()
 		}
 		b.block(blk, p.Observer)
 		if inline {
@@ -205,28 +210,31 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 	sha := r.SHA256()
 	tr.finish()
 	var measured SatelliteResult
-	if sats != nil {
+	switch {
+	case sats != nil:
 		m, err := sats()
 		if err != nil {
 			return nil, err
 		}
 		measured = m
-		st.gnssSkipped = m.Skipped
+	case meter != nil && st.gnssSkipped == "":
+		measured = meter.Measurement()
+	case st.gnssSkipped != "":
+		measured.Skipped = st.gnssSkipped
+		measured.Notes = []string{"satellites not measured: " + strings.TrimPrefix(st.gnssSkipped, "skipped: ")}
 	}
+	st.gnssSkipped = measured.Skipped
 
 	res := &Result{Blocks: st.blocks}
 	fp := p.Fingerprint(fs)
 	stats := st.stats(base.Power)
-	switch {
-	case sats != nil:
-		stats.Satellites = measured.Satellites
-	case meter != nil && st.gnssSkipped == "":
-		stats.Satellites = meter.Result()
-	}
+	stats.Satellites = measured.Satellites
 	if stats.Satellites == nil {
 		stats.Satellites = []Satellite{}
 	}
 	stats.GNSSSkipped = st.gnssSkipped
+	stats.ClockOffsetHz = measured.ClockOffsetHz
+	stats.SpectrumInverted = measured.SpectrumInverted
 	switch {
 	case base.Loaded:
 		stats.Baseline = "loaded"
@@ -234,6 +242,28 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 		stats.Baseline = "learned"
 	default:
 		stats.Baseline = "learning"
+	}
+	var notes []string
+	fe, _ := r.FrontEnd()
+	fault := frontEndFault(fe, measured.DropSample, c)
+	levels := fe.Levels
+	if bits := levels.Bits(); bits > 0 {
+		stats.Quantization = levels.String()
+		if fe.HasOccupancy {
+			db, sat := ingest.OccupancyLevelDB(fe.Occupancy)
+			stats.OccupancyLevelDB = ptr(db)
+			if sat {
+				notes = append(notes, "the low-bit samples' magnitude occupancy is saturated: the level reported is a lower bound")
+			}
+		}
+	}
+	silent := fault != nil && (fault.Kind == FaultDead || fault.Kind == FaultStuck)
+	if fault != nil && measured.Unmeasured == "" && fault.Kind != FaultGap {
+		measured.Unmeasured = "the front end failed: " + fault.Detail
+	}
+	if silent {
+		notes = append(notes, "no interference analysis: the front end delivered no signal ("+fault.Kind+")")
+		tr.events = nil
 	}
 	if hasCenter {
 		inverted := stats.SpectrumInverted != nil && *stats.SpectrumInverted
@@ -268,8 +298,8 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 
 	// C/N0 against the site's satellites: a drop raises a cn0_drop event,
 	// linked to the spectral events that explain it.
-	if drop, ok := cn0Drop(stats.Satellites, &base, cfg.CN0DropDB); ok && st.gnssSkipped == "" {
-		drop.Capture, drop.SampleStart, drop.SampleCount = name, 0, c.Samples
+	if drop, ok := cn0DropFrom(measured, &base, cfg.CN0DropDB); ok && st.gnssSkipped == "" && !silent {
+		drop.Capture, drop.SampleStart, drop.SampleCount = name, 0, c.FileSamples
 		drop.Start, drop.End = Time{c.SampleTime(0)}, Time{c.SampleTime(c.Samples)}
 		drop.BandwidthHz = fs
 		drop.PowerDBFS = stats.PowerDBFS
@@ -291,7 +321,7 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 		res.Events = append(res.Events, drop)
 	}
 
-	if learnCN0(res.Events) && len(stats.Satellites) > 0 {
+	if learnCN0(res.Events) && len(stats.Satellites) > 0 && measured.Unmeasured == "" && fault == nil {
 		cn0 := map[int]float64{}
 		for _, s := range stats.Satellites {
 			cn0[s.PRN] = s.CN0DBHz
@@ -304,7 +334,7 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 	// The baseline learns the passband from every cell no event occupied
 	// (floorLearner), so that a site whose captures all carry a spur or a
 	// beacon still learns, and no interference is learned as normal.
-	if psd, blocks, power := b.learner.mean(); blocks > 0 {
+	if psd, blocks, power := b.learner.mean(); blocks > 0 && fault == nil {
 		skip := b.ref.skip
 		for k := range skip {
 			skip[k] = b.learner.cnt[k] == 0 || b.in.Excluded[k]
@@ -317,8 +347,16 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 		}
 	}
 
-	rec := CaptureRecord{Capture: name, SHA256: sha, Format: c.Format.String(), SampleRate: fs,
-		Samples: c.Samples, Status: StatusOK, Events: len(res.Events), Stats: &stats}
+	rec := CaptureRecord{Capture: name, SHA256: sha, Format: c.Format.String(), SampleRate: c.FileSampleRate,
+		Samples: c.FileSamples, Status: StatusOK, Events: len(res.Events), Stats: &stats, Fault: fault}
+	if c.Decimation > 1 {
+		rec.AnalysisRateHz = ptr(fs)
+	}
+	if c.IF.IFHz != 0 {
+		rec.IFHz = ptr(c.IF.IFHz)
+		rec.LOSide = c.IF.Side.String()
+	}
+	rec.Notes = append(append(rec.Notes, measured.Notes...), notes...)
 	if hasCenter {
 		rec.CenterHz = ptr(center)
 	}
@@ -398,6 +436,27 @@ func (s *meterSide) join() {
 func (s *meterSide) stop() {
 	s.aborted.Store(true)
 	s.join()
+}
+
+// frontEndFault turns the front-end check of a capture (and a sample drop
+// the satellites saw, at analysed sample drop) into the record's fault:
+// nil when none.
+func frontEndFault(fe ingest.FrontEnd, drop *int64, c *ingest.Capture) *Fault {
+	switch fe.Fault.Kind {
+	case ingest.FaultDead:
+		return &Fault{Kind: FaultDead, Detail: fe.Fault.Detail}
+	case ingest.FaultStuck:
+		return &Fault{Kind: FaultStuck, Detail: fe.Fault.Detail}
+	case ingest.FaultUnnormalised:
+		return &Fault{Kind: FaultUnnormalised, Detail: fe.Fault.Detail}
+	case ingest.FaultGap:
+		return &Fault{Kind: FaultGap, Detail: fe.Fault.Detail}
+	}
+	if drop != nil {
+		return &Fault{Kind: FaultGap, Detail: fmt.Sprintf("every satellite tracked lost lock at once near sample %d (%.3f s): a sample drop in the recording",
+			c.FileSample(*drop), float64(*drop)/c.SampleRate)}
+	}
+	return nil
 }
 
 // learnCN0 reports whether a capture with these events may teach the
@@ -529,7 +588,8 @@ type bank struct {
 	ref       *NoiseReference
 	learner   floorLearner
 	occupied  []bool
-	lowBit    bool // the capture's samples take a low-bit quantizer's few levels
+	lowBit    bool    // the capture's samples take a low-bit quantizer's few levels
+	lowT      float32 // and this magnitude threshold, when symmetric
 	findings  []Finding
 	center    float64
 	hasCenter bool
@@ -554,7 +614,7 @@ func (p *Pipeline) bankFor(cfg Config, fs float64) *bank {
 
 // reset prepares the bank for a new capture over the input's baseline.
 func (b *bank) reset(base *Baseline, center float64, hasCenter bool) {
-	b.center, b.hasCenter, b.lowBit = center, hasCenter, false
+	b.center, b.hasCenter, b.lowBit, b.lowT = center, hasCenter, false, 0
 	fs := b.eng.fs
 	var prev []float32
 	if b.tr != nil {
@@ -576,6 +636,7 @@ func (b *bank) block(blk ingest.Block, obs BlockObserver) {
 	in := &b.in
 	in.F, in.Samples, in.Cfg = f, blk.Samples, &b.cfg
 	in.Compressed = b.lowBit || float64(blk.Clipped) > compressedClip*float64(len(blk.Samples))
+	in.LowBitThreshold = b.lowT
 	b.sk.Compute(in)
 	b.ref.apply(in, &b.thr)
 	fnd := b.findings[:0]

@@ -5,7 +5,10 @@ import (
 	"math/cmplx"
 	"sort"
 
+	"gonum.org/v1/gonum/mathext"
 	"gonum.org/v1/gonum/stat/distuv"
+
+	"quietband/ingest"
 
 	"quietband/detect/fft"
 )
@@ -59,6 +62,9 @@ type Pulse struct {
 	sbOut             []complex64
 	sbTaper           []float32
 	lens, lensScratch []float64
+	moments           [2]float64 // the block's E|x|² and E|x|⁴
+	lowT              float32    // a low-bit quantizer's magnitude threshold (0: not low-bit)
+	binom             map[[2]int]int
 	carriers          []float64 // each pulse's carrier offset
 	mixture           []float64 // the carriers of a wideband train of several emitters
 	// burstChirp's scratch.
@@ -109,8 +115,25 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 	}
 	d.trains = d.trains[:0]
 	d.mixture = d.mixture[:0]
+	d.moments = [2]float64{in.F.Power, in.F.Moment4}
+	d.lowT = in.LowBitThreshold
 	wide, okWide := d.train(x, fs, in.NoisePower/in.Rise, in.F.Start, 1, continued, in.Cfg, true)
 	regions := d.regions(in)
+	// A sweep found in this block passes through every sub-band of its
+	// span: those are its own (its footprint), not worth a search.
+	kept := regions[:0]
+	for _, r := range regions {
+		swept := false
+		for i := range out {
+			if c := &out[i]; c.Class == ClassSwept && (r[0]+r[1])/2 >= c.LowHz && (r[0]+r[1])/2 <= c.HighHz {
+				swept = true
+			}
+		}
+		if !swept {
+			kept = append(kept, r)
+		}
+	}
+	regions = kept
 	if okWide && len(d.mixture) > 0 {
 		// Several emitters in the wideband train: each carrier becomes a
 		// sub-band to search, and the mixture is dropped.
@@ -198,51 +221,58 @@ func (d *Pulse) train(x []complex64, fs, noise float64, start int64, dec int, co
 	// six standard deviations, 2/√K each, for any train this detector can
 	// measure). Band-limited noise keeps it at 2 while its slow envelope
 	// would cross a per-sample threshold.
-	var p2, p4 float64
-	for _, v := range x {
-		pw := float64(real(v))*float64(real(v)) + float64(imag(v))*float64(imag(v))
-		p2 += pw
-		p4 += pw * pw
+	// (The wideband block's moments come from the spectrum engine's
+	// pass.)
+	p2, p4 := d.moments[0], d.moments[1]
+	if !wideband {
+		p2, p4 = 0, 0
+		for _, v := range x {
+			pw := float64(real(v))*float64(real(v)) + float64(imag(v))*float64(imag(v))
+			p2 += pw
+			p4 += pw * pw
+		}
+		if len(x) > 0 {
+			p2 /= float64(len(x))
+			p4 /= float64(len(x))
+		}
 	}
 	if len(x) == 0 || p2 <= 0 {
 		return Finding{}, false
 	}
-	p2 /= float64(len(x))
-	p4 /= float64(len(x))
 	if p4/(p2*p2) < 2+12/math.Sqrt(float64(len(x))) {
 		return Finding{}, false
 	}
-	l := max(2, int(math.Round(1e-6*fs)))
-	if cap(d.env) < len(x) {
-		d.env = make([]float64, len(x))
+	var l int
+	var ns, thr, thrLow float64
+	lowBit := wideband && d.lowT > 0
+	if lowBit {
+		var ok bool
+		if l, ns, thr, thrLow, ok = d.lowBitEnvelope(x, fs, cfg.PulsePfa); !ok {
+			return Finding{}, false
+		}
+	} else {
+		l = max(2, int(math.Round(1e-6*fs)))
+		if cap(d.env) < len(x) {
+			d.env = make([]float64, len(x))
+		}
+		env := d.env[:len(x)]
+		for i, v := range x {
+			env[i] = float64(real(v))*float64(real(v)) + float64(imag(v))*float64(imag(v))
+		}
+		// The L-sample running sums, once for the reference and the runs:
+		// sums[j] = Σ env[j … j+L−1].
+		if len(env) < l {
+			return Finding{}, false
+		}
+		d.runningSums(env, l)
+		var leff float64
+		ns, leff = d.reference(d.sums[:len(env)-l+1], l, noise)
+		gamma := d.threshold(leff, cfg.PulsePfa)
+		thr = gamma * ns * float64(l) // on the running sum
+		thrLow = (1 + gamma) / 2 * ns * float64(l)
 	}
 	env := d.env[:len(x)]
-	for i, v := range x {
-		env[i] = float64(real(v))*float64(real(v)) + float64(imag(v))*float64(imag(v))
-	}
-	// The L-sample running sums, once for the reference and the runs:
-	// sums[j] = Σ env[j … j+L−1].
-	if len(env) < l {
-		return Finding{}, false
-	}
-	if cap(d.sums) < len(env) {
-		d.sums = make([]float64, len(env))
-	}
 	sums := d.sums[:len(env)-l+1]
-	var run float64
-	for i := range env {
-		run += env[i]
-		if i >= l {
-			run -= env[i-l]
-		}
-		if i >= l-1 {
-			sums[i-l+1] = run
-		}
-	}
-	ns, leff := d.reference(sums, l, noise)
-	gamma := d.threshold(leff, cfg.PulsePfa)
-	thr := gamma * ns * float64(l) // on the running sum
-	thrLow := (1 + gamma) / 2 * ns * float64(l)
 	// Runs of the L-sample running sum above the threshold.
 	d.starts, d.ends = d.starts[:0], d.ends[:0]
 	inRun := false
@@ -380,12 +410,16 @@ func (d *Pulse) train(x []complex64, fs, noise float64, start int64, dec int, co
 		return Finding{}, false
 	}
 	at := func(i int) int64 { return start + int64(i*dec) }
+	jn, bound := peak/ns, false
+	if lowBit {
+		jn, bound = d.lowBitJN(peak, ns)
+	}
 	if wideband {
 		if sw, ok := d.burstChirp(x, n, fs); ok {
 			// Each "pulse" is a sweep crossing the band: a sweep wider
 			// than the recorder's band, seen as bursts at its period.
 			return Finding{Detector: d.Name(), Class: ClassSwept, LowHz: sw.LowHz, HighHz: sw.HighHz,
-				OffsetHz: (sw.LowHz + sw.HighHz) / 2, JN: peak / ns, Sweep: &sw,
+				OffsetHz: (sw.LowHz + sw.HighHz) / 2, JN: jn, JNLowerBound: bound, Sweep: &sw,
 				Start: at(d.starts[0]), End: at(d.ends[n-1])}, true
 		}
 	}
@@ -430,7 +464,7 @@ func (d *Pulse) train(x []complex64, fs, noise float64, start int64, dec int, co
 		pp.Channels = nil
 	}
 	return Finding{Detector: d.Name(), Class: ClassPulsed, LowHz: lo, HighHz: hi,
-		OffsetHz: off, JN: peak / ns, Pulse: pp,
+		OffsetHz: off, JN: jn, JNLowerBound: bound, Pulse: pp,
 		Start: at(d.starts[0]), End: at(d.ends[n-1]),
 		sidelobes: lobes, sidelobeStep: step, pulseRate: rate}, true
 }
@@ -1284,4 +1318,128 @@ func (d *Pulse) channels(n int, width, fs float64) (ch []float64, mixture bool) 
 		}
 	}
 	return ch, false
+}
+
+// runningSums fills d.sums with the l-sample running sums of env:
+// sums[j] = Σ env[j … j+l−1].
+func (d *Pulse) runningSums(env []float64, l int) {
+	if cap(d.sums) < len(env) {
+		d.sums = make([]float64, len(env))
+	}
+	sums := d.sums[:len(env)-l+1]
+	var run float64
+	for i := range env {
+		run += env[i]
+		if i >= l {
+			run -= env[i-l]
+		}
+		if i >= l-1 {
+			sums[i-l+1] = run
+		}
+	}
+}
+
+// Pulses in low-bit samples. A quantizer of two or three bits (the sign
+// and magnitude bits of a GNSS front end, REFERENCES §12.3) caps the
+// envelope: a pulse 20 dB over the noise reads barely 4 dB over it in
+// |x|², and noise alone reaches that cap in a few samples by chance, so
+// the envelope test cannot hold its false-alarm rate. What does carry
+// the pulse is the magnitude bit: each component is beyond the
+// quantizer's threshold T with probability p₀ under noise (0.317 at
+// T = σ), with probability near 1 inside a strong pulse. The statistic
+// is the count of such components over a window of W samples, Binomial
+// (2W, p₀) under noise; W is the fewest samples (at least a microsecond)
+// for which a full count is rarer than the false-alarm rate (p₀^(2W) ≤
+// Pfa/100), and the threshold is the count whose binomial tail is at
+// most PulsePfa. p₀ is read from the block: the median, over 256-sample
+// stretches, of their share of components beyond T (pulses at duty
+// cycles below a half do not move it).
+
+// lowBitEnvelope fills d.env with the magnitude-bit count of each sample
+// and d.sums with its W-sample running sums, and returns W, the count per
+// sample expected under noise (2p₀), and the high and low thresholds on
+// the running sum.
+func (d *Pulse) lowBitEnvelope(x []complex64, fs, pfa float64) (w int, ns, thr, thrLow float64, ok bool) {
+	t := d.lowT
+	if cap(d.env) < len(x) {
+		d.env = make([]float64, len(x))
+	}
+	env := d.env[:len(x)]
+	for i, v := range x {
+		var c float64
+		if re := real(v); re > t || re < -t {
+			c++
+		}
+		if im := imag(v); im > t || im < -t {
+			c++
+		}
+		env[i] = c
+	}
+	const stretch = 256
+	shares := d.lens[:0]
+	for a := 0; a+stretch <= len(env); a += stretch {
+		var c float64
+		for _, v := range env[a : a+stretch] {
+			c += v
+		}
+		shares = append(shares, c/(2*stretch))
+	}
+	d.lens = shares
+	if len(shares) == 0 {
+		return 0, 0, 0, 0, false
+	}
+	p0 := medianScratch(&d.lensScratch, shares)
+	if !(p0 > 0 && p0 < 0.9) {
+		return 0, 0, 0, 0, false // no magnitude bits, or saturated throughout
+	}
+	w = max(2, int(math.Round(1e-6*fs)))
+	for math.Pow(p0, float64(2*w)) > pfa/100 {
+		w++
+	}
+	if len(env) < 4*w {
+		return 0, 0, 0, 0, false
+	}
+	d.runningSums(env, w)
+	n := 2 * w
+	c := d.binomialThreshold(n, p0, pfa)
+	return w, 2 * p0, float64(c) - 0.5, (2*p0*float64(w) + float64(c)) / 2, true
+}
+
+// binomialThreshold is the smallest count c with P(X ≥ c) ≤ pfa for
+// X ~ Binomial(n, p): P(X ≥ c) = I_p(c, n − c + 1), the regularized
+// incomplete beta function (Abramowitz & Stegun 26.5.24, from memory).
+// Cached by n and p in thousandths.
+func (d *Pulse) binomialThreshold(n int, p, pfa float64) int {
+	if d.binom == nil {
+		d.binom = map[[2]int]int{}
+	}
+	key := [2]int{n, int(math.Round(p * 1000))}
+	if c, ok := d.binom[key]; ok {
+		return c
+	}
+	c := n
+	for k := n; k >= 1; k-- {
+		if mathext.RegIncBeta(float64(k), float64(n-k+1), p) > pfa {
+			break
+		}
+		c = k
+	}
+	d.binom[key] = c
+	return c
+}
+
+// lowBitJN turns a low-bit pulse's mean count at its top (peak over the
+// noise's ns, counts per sample) into its J/N: the in-pulse share of
+// components beyond T is p = (peak + ns)/2, and with p₀ = ns/2 the powers
+// follow from σ/T = 1/(√2·erfc⁻¹(p)) (REFERENCES §12.3), so
+// J/N = (σ_in/σ₀)² − 1. Above a share of 0.95 the quantizer is saturated
+// and the J/N is a lower bound (bound true).
+func (d *Pulse) lowBitJN(peak, ns float64) (jn float64, bound bool) {
+	p, p0 := (peak+ns)/2, ns/2
+	if p > ingest.OccupancySaturation {
+		p, bound = ingest.OccupancySaturation, true
+	}
+	s := 1 / (math.Sqrt2 * math.Erfcinv(p))
+	s0 := 1 / (math.Sqrt2 * math.Erfcinv(p0))
+	return math.Max(s*s/(s0*s0)-1, 0), bound
 }

@@ -281,7 +281,7 @@ type SatelliteResult struct {
 func MeasureSatellites(ctx context.Context, c *ingest.Capture, m SatelliteMeter, blockLen int) (SatelliteResult, error) {
 	center, hasCenter := c.CenterHz()
 	if why := m.Start(c.SampleRate, center, hasCenter); why != "" {
-		return SatelliteResult{Skipped: why}, nil
+		return SatelliteResult{Skipped: why, Notes: []string{"satellites not measured: " + strings.TrimPrefix(why, "skipped: ")}}, nil
 	}
 	r, err := c.NewReader(blockLen)
 	if err != nil {
@@ -302,8 +302,5 @@ func MeasureSatellites(ctx context.Context, c *ingest.Capture, m SatelliteMeter,
 		}
 		m.Block(b.Start, b.Samples)
 	}
-	if g, ok := m.(interface{ Measurement() SatelliteResult }); ok {
-		return g.Measurement(), nil
-	}
-	return SatelliteResult{Satellites: m.Result()}, nil
+	return m.Measurement(), nil
 }

@@ -47,6 +47,10 @@ type Swept struct {
 	slowPlan *fft.Plan
 	slowBuf  []complex64
 	slowF    []float64
+	slowW    []float64
+	// calls counts Detect's calls; trackOf is the call whose block slowF
+	// holds the track of.
+	calls, trackOf int
 }
 
 // Name implements Detector.
@@ -70,6 +74,7 @@ const minSweepCoherence = 0.2
 // Detect implements Detector.
 func (d *Swept) Detect(in *BlockInput, out []Finding) []Finding {
 	f := in.F
+	d.calls++
 	if f.Frames == 0 || len(in.Samples) < 4*f.N {
 		return out
 	}
@@ -92,11 +97,17 @@ func (d *Swept) Detect(in *BlockInput, out []Finding) []Finding {
 		if !found {
 			period, found = d.slowPeriodicity(in)
 		}
-		if !found {
-			d.last = SweepParams{}
-			return out
+		switch {
+		case found:
+			sw, ok, _ = d.fold(in.Samples, f.Fs, period)
+		default:
+			// Slower than a block: a ramp across it.
+			sw, ok = d.ramp(in)
+			if !ok {
+				d.last = SweepParams{}
+				return out
+			}
 		}
-		sw, ok, _ = d.fold(in.Samples, f.Fs, period)
 	}
 	// A "sweep" over a few bins is a carrier wobbling (a strong tone
 	// through a 2-bit quantizer folds coherently too): a sweep covers at
@@ -258,16 +269,11 @@ func (d *Swept) periodicity(in *BlockInput) (float64, bool) {
 // runs only under a constant envelope.
 func (d *Swept) slowPeriodicity(in *BlockInput) (float64, bool) {
 	f := in.F
-	x := in.Samples
-	if !constantEnvelope(f, len(x)) {
+	fm, dec, ok := d.slowTrack(in)
+	if !ok {
 		return 0, false
 	}
-	// D: about 2 µs per point, at least 4 samples.
-	dec := max(4, int(math.Round(2e-6*f.Fs)))
-	m := len(x) / dec
-	if m < 64 {
-		return 0, false
-	}
+	m := len(fm)
 	size := 1
 	for size < 2*m {
 		size *= 2
@@ -275,21 +281,10 @@ func (d *Swept) slowPeriodicity(in *BlockInput) (float64, bool) {
 	if d.slowPlan == nil || d.slowPlan.Len() != size {
 		d.slowPlan = fft.NewPlan(size)
 		d.slowBuf = make([]complex64, size)
-		d.slowF = make([]float64, m)
 	}
-	if cap(d.slowF) < m {
-		d.slowF = make([]float64, m)
-	}
-	fm := d.slowF[:m]
 	var mean float64
-	for i := 0; i < m; i++ {
-		var z complex64
-		for n := max(i*dec, 1); n < (i+1)*dec; n++ {
-			a, b := x[n], x[n-1]
-			z += a * complex(real(b), -imag(b))
-		}
-		fm[i] = float64(fastAtan2(imag(z), real(z)))
-		mean += fm[i]
+	for _, v := range fm {
+		mean += v
 	}
 	mean /= float64(m)
 	clear(d.slowBuf)
@@ -337,6 +332,132 @@ func (d *Swept) slowPeriodicity(in *BlockInput) (float64, bool) {
 		delta = 0.5 * (a - c) / den
 	}
 	return (float64(at) + delta) * float64(dec) / f.Fs, true
+}
+
+// slowTrack is the block's frequency track for slowPeriodicity and ramp:
+// f_m = arg Z_m (radians per sample) of the lag product summed over D
+// samples (about 2 µs), with its weight |Z_m| in d.slowW, and D. It needs a
+// constant envelope.
+func (d *Swept) slowTrack(in *BlockInput) ([]float64, int, bool) {
+	f := in.F
+	x := in.Samples
+	if !constantEnvelope(f, len(x)) {
+		return nil, 0, false
+	}
+	dec := max(4, int(math.Round(2e-6*f.Fs)))
+	m := len(x) / dec
+	if m < 64 {
+		return nil, 0, false
+	}
+	if d.trackOf == d.calls && len(d.slowF) >= m {
+		return d.slowF[:m], dec, true // this block's, computed already
+	}
+	d.trackOf = d.calls
+	if cap(d.slowF) < m {
+		d.slowF = make([]float64, m)
+		d.slowW = make([]float64, m)
+	}
+	fm, wm := d.slowF[:m], d.slowW[:m]
+	for i := 0; i < m; i++ {
+		var z complex64
+		for n := max(i*dec, 1); n < (i+1)*dec; n++ {
+			a, b := x[n], x[n-1]
+			z += a * complex(real(b), -imag(b))
+		}
+		fm[i] = float64(fastAtan2(imag(z), real(z)))
+		wm[i] = math.Sqrt(float64(real(z)*real(z) + imag(z)*imag(z)))
+	}
+	return fm, dec, true
+}
+
+// ramp finds a sweep slower than a block: a frequency track (slowTrack)
+// that ramps in a straight line across the block, flying back at most
+// once or twice (a sawtooth's flyback is a jump of more than a third of
+// the band). The pieces between flybacks are fitted by weighted least
+// squares, and the longest must fit a line (R² ≥ 0.95) over at least a
+// quarter of the block and cover at least minSweepSpan of the band. Its
+// period is the time between two flybacks when the block holds two;
+// otherwise it is left to the event (Swept's event gathers the flybacks
+// of its blocks; see SweepParams.FlybackAt).
+func (d *Swept) ramp(in *BlockInput) (SweepParams, bool) {
+	f := in.F
+	fm, dec, ok := d.slowTrack(in)
+	if !ok {
+		return SweepParams{}, false
+	}
+	wm := d.slowW[:len(fm)]
+	toHz := f.Fs / (2 * math.Pi)
+	var jumps [3]int
+	nj := 0
+	for i := 1; i < len(fm); i++ {
+		if math.Abs(fm[i]-fm[i-1])*toHz > f.Fs/3 {
+			if nj == len(jumps) {
+				return SweepParams{}, false
+			}
+			jumps[nj] = i
+			nj++
+		}
+	}
+	bounds := append([]int{0}, jumps[:nj]...)
+	bounds = append(bounds, len(fm))
+	best, bestN := SweepParams{}, 0
+	lo, hi := math.Inf(1), math.Inf(-1)
+	for k := 0; k+1 < len(bounds); k++ {
+		a, b := bounds[k]+1, bounds[k+1]-1
+		if b-a < 8 {
+			continue
+		}
+		var sw, sx, sy, sxx, sxy, syy float64
+		for i := a; i < b; i++ {
+			w, t, y := wm[i], float64(i), fm[i]*toHz
+			sw += w
+			sx += w * t
+			sy += w * y
+			sxx += w * t * t
+			sxy += w * t * y
+			syy += w * y * y
+		}
+		den := sw*sxx - sx*sx
+		vy := sw*syy - sy*sy
+		if den <= 0 || vy <= 0 {
+			continue
+		}
+		slope := (sw*sxy - sx*sy) / den // Hz per track point
+		r2 := (sw*sxy - sx*sy) * (sw*sxy - sx*sy) / (den * vy)
+		icpt := (sy - slope*sx) / sw
+		y0, y1 := icpt+slope*float64(a), icpt+slope*float64(b)
+		if r2 >= 0.95 {
+			lo, hi = math.Min(lo, math.Min(y0, y1)), math.Max(hi, math.Max(y0, y1))
+		}
+		if n := b - a; n > bestN && r2 >= 0.95 {
+			bestN = n
+			best = SweepParams{RateHzS: slope * f.Fs / float64(dec), Coherent: r2, Fit: r2}
+		}
+	}
+	if bestN < len(fm)/4 || hi-lo < minSweepSpan*f.Fs {
+		return SweepParams{}, false
+	}
+	best.LowHz, best.HighHz = lo, hi
+	best.SpanHz = hi - lo
+	best.Shape = "up"
+	if best.RateHzS < 0 {
+		best.Shape = "down"
+	}
+	if nj >= 2 {
+		best.PeriodS = float64((jumps[1]-jumps[0])*dec) / f.Fs
+	}
+	for i := 0; i < nj; i++ {
+		best.FlybackAt = append(best.FlybackAt, f.Start+int64(jumps[i]*dec))
+	}
+	// Power while present, as the fold measures it: |Z_m| over D.
+	var pw float64
+	for _, w := range wm {
+		pw += w
+	}
+	best.Power = pw / float64(len(wm)*dec)
+	best.Duty = 1
+	best.Slow = true
+	return best, true
 }
 
 // hannLagWeights returns c(τ) = Σ_m w[m]·w[m−τ] / Σ_m w[m]², m from τ to
