@@ -99,8 +99,8 @@ type Finding struct {
 	sidelobes    []float32
 	sidelobeStep float64
 	pulseRate    float64
-	// keyed, for a CW finding, says that a tone was switched on or off
-	// inside the block (its on/off transients spread over many bins).
+	// keyed, for a CW or wideband finding, says that the emitter was
+	// switched on or off inside the block (its transients spread).
 	keyed bool
 	// JNLowerBound says JN is only a lower bound (a low-bit quantizer was
 	// saturated by the emitter).
@@ -122,8 +122,10 @@ type SweepParams struct {
 	SpanHz float64
 	Beyond bool
 	// Power is the sweep's power while present (full scale 1) and Duty
-	// the share of its period it is present in the band, from the fold.
+	// the share of its period it is present in the band, from the fold;
+	// Even says the fold's magnitude is even where it is present.
 	Power, Duty float64
+	Even        bool
 	// Fit is the correlation of the folded profile with its shape's
 	// template (1: a clean ramp or triangle).
 	Fit float64

@@ -39,6 +39,7 @@ var footprints = map[string]footprintFunc{
 	ClassSwept:           sweptFootprint,
 	ClassPulsed:          pulseFootprint,
 	ClassNarrowbandNoise: bandFootprint,
+	ClassWidebandNoise:   widebandFootprint,
 }
 
 // explainable are the classes a footprint may absorb: what a stronger
@@ -173,6 +174,10 @@ func (t *tracker) explainBlock(fs []Finding, g *grid) {
 				return
 			}
 			if explains(c, x, g) {
+				if trace != nil {
+					trace("block: %s %.0f Hz J/N %.1f dB explained by %s %.0f Hz J/N %.1f dB (footprint %v, compressed %v, tones %d)", x.Class, x.OffsetHz, dB(x.JN), c.Class, c.OffsetHz, dB(c.JN),
+						footprints[c.Class] != nil && footprints[c.Class](c, x, g), compressedFootprint(c, x, g), len(c.Tones))
+				}
 				gone = true
 			}
 		}
@@ -191,6 +196,9 @@ func (t *tracker) explainBlock(fs []Finding, g *grid) {
 		}
 	}
 }
+
+// trace, when set (by tests), is told every finding a footprint absorbs.
+var trace func(format string, args ...any)
 
 // explainEvents drops, at the end of a capture, the events that another
 // event accounts for where both were present (within a block of each
@@ -215,6 +223,12 @@ func (t *tracker) explainEvents() {
 				continue
 			}
 			c := s.rep
+			if s.class == ClassWidebandNoise || s.class == ClassCW {
+				// Its switching: e is present within a block of s's start
+				// or end.
+				c.keyed = c.keyed || overlaps(float64(e.start), float64(e.end), float64(s.start-slack), float64(s.start+slack)) ||
+					overlaps(float64(e.start), float64(e.end), float64(s.end-slack), float64(s.end+slack))
+			}
 			if x.Class == ClassCW {
 				if !explainTones(&x, &c, g) {
 					x.Class = ""

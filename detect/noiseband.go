@@ -101,8 +101,9 @@ func edge(in *BlockInput, k, dir int, level float64) float64 {
 // inside it no higher than its own envelope's peaks: the power of
 // Gaussian noise exceeds 20 times its mean with probability e^−20 ≈ 2·10⁻⁹
 // (its power is exponential), so a pulse whose peak J/N stands at most 25×
-// the band's J/N is the band's own fluctuation. A tone inside a band is
-// another emitter and stays.
+// the band's J/N is the band's own fluctuation; and peaks of that
+// fluctuation standing in single bins. A tone inside a band standing
+// well above its density is another emitter and stays.
 func bandFootprint(c, x *Finding, g *grid) bool {
 	class, lo, hi, jn := x.Class, x.LowHz, x.HighHz, x.JN
 	inside := lo >= c.LowHz-2*g.bin && hi <= c.HighHz+2*g.bin
@@ -111,6 +112,13 @@ func bandFootprint(c, x *Finding, g *grid) bool {
 		return inside && jn <= c.JN
 	case ClassPulsed:
 		return overlaps(lo, hi, c.LowHz-2*g.bin, c.HighHz+2*g.bin) && jn <= 25*c.JN
+	case ClassCW:
+		// A peak of the band's own fluctuation: one bin's mean over the
+		// frames may stand several of its standard deviations above the
+		// band's density; a tone that is another emitter stands at least
+		// twice the band's power in the bins a tone covers.
+		w := float64(2*maxToneHalfWidth+1) * g.bin
+		return inside && jn <= 2*c.JN*w/math.Max(c.HighHz-c.LowHz, w)
 	}
 	return false
 }

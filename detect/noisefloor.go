@@ -50,5 +50,34 @@ func (d NoiseFloor) Detect(in *BlockInput, out []Finding) []Finding {
 	}
 	fs := in.F.Fs
 	return append(out, Finding{Detector: d.Name(), Class: ClassWidebandNoise, LowHz: -fs / 2, HighHz: fs / 2,
-		JN: in.LevelRise - 1, FloorRiseDB: rise})
+		JN: in.LevelRise - 1, FloorRiseDB: rise, keyed: steps(in.F)})
+}
+
+// steps reports whether a block's power steps within it: the mean frame
+// power of its first and last halves differ by more than 1.5 dB (a noise
+// jammer switched on or off inside the block).
+func steps(f *Features) bool {
+	h := f.Frames / 2
+	if h == 0 {
+		return false
+	}
+	var a, b float64
+	for i := 0; i < h; i++ {
+		a += f.FramePower[i]
+		b += f.FramePower[f.Frames-1-i]
+	}
+	if a <= 0 || b <= 0 {
+		return false
+	}
+	return math.Abs(10*math.Log10(a/b)) > 1.5
+}
+
+// widebandFootprint is what a noise jammer accounts for besides itself,
+// in the blocks where it switches on or off: there the bins' powers are
+// means over frames of two levels, more spread than a stationary floor's
+// (Gamma(M)) threshold allows, and single bins or short runs cross it;
+// such findings standing 20 dB or more below the jammer are its own.
+func widebandFootprint(c, x *Finding, g *grid) bool {
+	return c.keyed && (x.Class == ClassCW || x.Class == ClassNarrowbandNoise || x.Class == ClassPulsed) &&
+		x.JN <= c.JN/100
 }

@@ -24,10 +24,12 @@ import (
 // Without a baseline (the first captures of a site, a single-file replay),
 // the passband is fitted to the block itself (Passband): robust to
 // interference, never a flat median floor that a real front end's
-// passband would rise above. The fit is made on a capture's first block
-// and every ownRefit blocks after; the blocks between take its shape at
+// passband would rise above. The fit is made on the capture's first block
+// that no emitter spreading over the band (a sweep, a pulse train, a
+// wideband rise) occupies, and kept: the blocks after take its shape at
 // their own level, as they would a baseline's (a passband does not change
 // within a capture, and an emitter that appears later is not absorbed).
+// Until then every block is fitted on its own.
 //
 // The excess-power threshold on the ratio (BlockInput.BinThreshold) is the
 // (1 − BinPfa) quantile of Gamma(M, 1/M), or of F(2M, 2E) when the floor
@@ -45,14 +47,15 @@ type NoiseReference struct {
 	skip   []bool
 	qcache map[int]float64
 	// own is the passband fitted to this capture (no baseline), ownAge
-	// the blocks since.
+	// the blocks since (−1: none yet).
 	own    []float64
 	ownAge int
+	// busy says an emitter that spreads over the band (a sweep, a pulse
+	// train, a wideband rise) was on in the last block: its fit is no
+	// passband to keep.
+	busy bool
 }
 
-// ownRefit is how often, in blocks, the passband of a capture without a
-// baseline is fitted again.
-const ownRefit = 8
 
 // referenceQuantile is the lower quantile of the bins' ratios that
 // measures the noise level.
@@ -118,7 +121,7 @@ func (r *NoiseReference) apply(in *BlockInput, thr *thresholdCache) {
 	}
 	floorFrames := 0.0
 	shape, level := r.shape, r.level
-	if shape == nil && r.ownAge >= 0 && r.ownAge < ownRefit && f.Frames > 0 {
+	if shape == nil && r.ownAge >= 0 && f.Frames > 0 {
 		shape, level = r.own, r.ownLevel()
 	}
 	if shape != nil && f.Frames > 0 {
@@ -152,7 +155,7 @@ func (r *NoiseReference) apply(in *BlockInput, thr *thresholdCache) {
 			fit = f.PSD // nothing usable at all: compare the block with itself
 		}
 		copy(in.Floor, fit)
-		if ok && f.Frames >= minFrames {
+		if ok && f.Frames >= minFrames && !r.busy {
 			r.own = append(r.own[:0], fit...)
 			r.ownAge = 0
 		}

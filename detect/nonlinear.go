@@ -19,7 +19,7 @@ import "math"
 // frequencies of the emitter's tones (orders up to 9), or, for a sweep,
 // pulse train or noise band (and for the clipping bursts of a tone, which
 // lift the floor and look like weak pulses), when it stands at least
-// compressedSpreadDB below it.
+// compressedSpreadDB below it (compressedBurstDB for a tone's bursts).
 
 // compressedClip is the share of clipped samples from which a block is
 // taken as compressed.
@@ -32,7 +32,12 @@ const compressedMinJN = 1
 
 // compressedSpreadDB is how far below a strong non-tone emitter a finding
 // of a compressed block must stand to be taken for its spread products.
-const compressedSpreadDB = 10
+const compressedSpreadDB = 10.0
+
+// compressedBurstDB is how far below a clipping tone its clipping bursts
+// stand when they look like pulses (they hold the noise's peaks beyond
+// full scale, a small part of the tone's power).
+const compressedBurstDB = 15.0
 
 // maxProductOrder is the highest order of product predicted.
 const maxProductOrder = 9
@@ -48,11 +53,14 @@ func compressedFootprint(c, x *Finding, g *grid) bool {
 		return spread
 	}
 	switch x.Class {
-	case ClassWidebandNoise, ClassPulsed:
+	case ClassWidebandNoise:
 		// A tone at full scale clips on its noise's peaks: bursts over
-		// the whole band, which lift the floor and look like weak
-		// pulses.
+		// the whole band, which lift the floor …
 		return spread
+	case ClassPulsed:
+		// … and look like weak pulses: far weaker than the tone (a
+		// pulse train the tone does not account for stands closer).
+		return x.JN <= c.JN*math.Pow(10, -compressedBurstDB/10)
 	case ClassSwept:
 		// A tone's products are steady tones.
 		return false

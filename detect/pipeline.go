@@ -660,6 +660,7 @@ func (b *bank) block(blk ingest.Block, obs BlockObserver) {
 	b.tr.block(in, fnd)
 	b.st.add(in, blk.Clipped)
 	whole := b.tr.occupied(b.occupied)
+	b.ref.busy = whole
 	if f.Frames == b.cfg.Frames {
 		b.learner.add(f, b.occupied, whole)
 	} else {

@@ -70,7 +70,7 @@ type Pulse struct {
 	// burstChirp's scratch.
 	slopes    []float64
 	regionBuf [][2]float64
-	regionPow []float64
+	taken     []bool
 	chirpAt   []float64
 	upCenters []float64
 }
@@ -143,9 +143,11 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 		}
 		okWide = false
 	}
+	// A region the wideband train's own spectrum accounts for (its main
+	// lobe, or sidelobes as strong as the region's excess) is that train.
 	unexplained := 0
 	for _, r := range regions {
-		if !okWide || !wide.covers(r) {
+		if !okWide || !(wide.covers(r) || d.regionExplained(in, &wide, r)) {
 			unexplained++
 		}
 	}
@@ -239,7 +241,9 @@ func (d *Pulse) train(x []complex64, fs, noise float64, start int64, dec int, co
 	if len(x) == 0 || p2 <= 0 {
 		return Finding{}, false
 	}
-	if p4/(p2*p2) < 2+12/math.Sqrt(float64(len(x))) {
+	// (Low-bit samples have their own statistic: their levels make even
+	// noise's ratio far from 2.)
+	if !(wideband && d.lowT > 0) && p4/(p2*p2) < 2+12/math.Sqrt(float64(len(x))) {
 		return Finding{}, false
 	}
 	var l int
@@ -418,6 +422,7 @@ func (d *Pulse) train(x []complex64, fs, noise float64, start int64, dec int, co
 		if sw, ok := d.burstChirp(x, n, fs); ok {
 			// Each "pulse" is a sweep crossing the band: a sweep wider
 			// than the recorder's band, seen as bursts at its period.
+			sw.Even = true
 			return Finding{Detector: d.Name(), Class: ClassSwept, LowHz: sw.LowHz, HighHz: sw.HighHz,
 				OffsetHz: (sw.LowHz + sw.HighHz) / 2, JN: jn, JNLowerBound: bound, Sweep: &sw,
 				Start: at(d.starts[0]), End: at(d.ends[n-1])}, true
@@ -994,6 +999,25 @@ func (d *Pulse) burstChirp(x []complex64, n int, fs float64) (SweepParams, bool)
 	return sw, true
 }
 
+// regionExplained reports whether pulse train c's average spectrum
+// accounts for the excess power SK-flagged region r holds (see
+// pulseFootprint).
+func (d *Pulse) regionExplained(in *BlockInput, c *Finding, r [2]float64) bool {
+	if c.Class != ClassPulsed {
+		return false
+	}
+	f := in.F
+	bin := f.Fs / float64(f.N)
+	m := d.margin(in)
+	lo, hi := f.Bin(r[0]+m), f.Bin(r[1]-m)
+	if hi < lo {
+		lo, hi = hi, lo
+	}
+	jn := in.bandPower(lo, hi) / in.NoisePower
+	x := Finding{Class: ClassNarrowbandNoise, LowHz: f.Offset(lo), HighHz: f.Offset(hi), JN: jn}
+	return pulseFootprint(c, &x, &grid{bin: bin, fs: f.Fs})
+}
+
 // margin is how far a sub-band reaches beyond the bins SK flagged: a
 // pulse's spectrum spreads beyond its strongest bins (a 3.5 µs DME pulse's
 // to about ±300 kHz at −17 dB), and a sub-band filter much narrower than
@@ -1005,52 +1029,67 @@ func (d *Pulse) margin(in *BlockInput) float64 {
 // maxRegions bounds the sub-bands searched per block.
 const maxRegions = 6
 
-// regions groups the bins SK flags above its upper threshold into
-// sub-bands (runs of at least two bins, joined across gaps of up to four),
-// widened by a margin, the strongest first, at most maxRegions.
+// regions finds the sub-bands where pulses are: around the bins SK flags
+// above its upper threshold (energy in some frames only), strongest
+// first. From the SK-high bin of most excess power not yet taken, the run
+// of SK-high bins around it (gaps of up to four bins bridged, at most a
+// fifth of the band each way) widened by margin is one region; at most
+// maxRegions. Where a strong emitter drives a low-bit quantizer, a pulse
+// changes the whole band's statistics and SK flags bins everywhere: the
+// strongest of them, the pulse's own, still lead.
 func (d *Pulse) regions(in *BlockInput) [][2]float64 {
 	f := in.F
 	margin := d.margin(in)
 	out := d.regionBuf[:0]
-	pow := d.regionPow[:0]
-	for k := 0; k < f.N; {
-		if in.SKFlag[k] <= 0 {
-			k++
-			continue
+	if cap(d.taken) < f.N {
+		d.taken = make([]bool, f.N)
+	}
+	taken := d.taken[:f.N]
+	clear(taken)
+	reach := f.N / 5
+	for len(out) < maxRegions {
+		best, at := 0.0, -1
+		for k := 1; k+1 < f.N; k++ {
+			if in.SKFlag[k] <= 0 || taken[k] {
+				continue
+			}
+			if p := in.excess(k-1) + in.excess(k) + in.excess(k+1); p > best {
+				best, at = p, k
+			}
 		}
-		j, last, gap := k, k, 0
-		for j < f.N && gap <= 4 {
-			if in.SKFlag[j] > 0 {
-				last, gap = j, 0
+		if at < 0 {
+			break
+		}
+		lo, hi := at, at
+		for gap := 0; lo > 0 && at-lo < reach && gap <= 4; {
+			lo--
+			if in.SKFlag[lo] > 0 {
+				gap = 0
 			} else {
 				gap++
 			}
-			j++
 		}
-		if last > k {
-			lo, hi := f.Offset(k)-margin, f.Offset(last)+margin
-			if n := len(out); n > 0 && lo <= out[n-1][1] {
-				out[n-1][1] = hi
-				pow[n-1] += in.bandPower(k, last)
+		for gap := 0; hi < f.N-1 && hi-at < reach && gap <= 4; {
+			hi++
+			if in.SKFlag[hi] > 0 {
+				gap = 0
 			} else {
-				out = append(out, [2]float64{lo, hi})
-				pow = append(pow, in.bandPower(k, last))
+				gap++
 			}
 		}
-		k = last + 1
-	}
-	// The strongest maxRegions.
-	for len(out) > maxRegions {
-		w := 0
-		for i := range pow {
-			if pow[i] < pow[w] {
-				w = i
+		flagged := 0
+		for k := lo; k <= hi; k++ {
+			taken[k] = true
+			if in.SKFlag[k] > 0 {
+				flagged++
 			}
 		}
-		out = append(out[:w], out[w+1:]...)
-		pow = append(pow[:w], pow[w+1:]...)
+		if flagged < 2 {
+			continue // a lone bin: noise
+		}
+		out = addRegion(out, [2]float64{f.Offset(lo) - margin, f.Offset(hi) + margin})
 	}
-	d.regionBuf, d.regionPow = out, pow
+	d.regionBuf = out
 	return out
 }
 

@@ -56,9 +56,25 @@ type Swept struct {
 // Name implements Detector.
 func (*Swept) Name() string { return "swept" }
 
+// maxSweepUnevenness bounds the coefficient of variation of a sweep's
+// folded magnitude where it is present: a constant envelope sweeping
+// folds evenly (the spread is the noise's and the passband's: a front
+// end rolling off by 6 dB halves the amplitude at the edges), two tones
+// beating do not.
+const maxSweepUnevenness = 0.5
+
 // minSweepSpan is the narrowest sweep reported, as a share of the band
 // (chirp jammers sweep megahertz; REFERENCES §5).
 const minSweepSpan = 0.05
+
+// minSweepFit is the correlation any sweep's folded frequency profile
+// must reach with its shape's template, and minSweepPeriod its shortest
+// period: two tones beat with a period of 1/Δf, which folds coherently but
+// neither ramps nor lasts the microseconds a jammer's sweep takes.
+const (
+	minSweepFit    = 0.7
+	minSweepPeriod = 2e-6
+)
 
 // minNarrowSweepFit is the correlation a sweep narrower than a fifth of
 // the band must reach between its folded frequency profile and its shape's
@@ -113,6 +129,7 @@ func (d *Swept) Detect(in *BlockInput, out []Finding) []Finding {
 	// through a 2-bit quantizer folds coherently too): a sweep covers at
 	// least minSweepSpan of the band.
 	if !ok || sw.Coherent < minSweepCoherence || sw.HighHz-sw.LowHz < minSweepSpan*f.Fs ||
+		sw.Fit < minSweepFit || sw.PeriodS < minSweepPeriod && !sw.Slow ||
 		sw.HighHz-sw.LowHz < 0.2*f.Fs && sw.Fit < minNarrowSweepFit {
 		d.last = SweepParams{}
 		return out
@@ -127,6 +144,10 @@ func (d *Swept) Detect(in *BlockInput, out []Finding) []Finding {
 			hi = k
 			nb++
 		}
+	}
+	if !sw.Even {
+		d.last = SweepParams{}
+		return out // tones beating, not a sweep
 	}
 	wide := sw.HighHz-sw.LowHz >= 0.3*f.Fs && sw.Coherent >= 2*minSweepCoherence
 	if (lo < 0 || nb < f.N/20) && !wide {
@@ -457,6 +478,7 @@ func (d *Swept) ramp(in *BlockInput) (SweepParams, bool) {
 	best.Power = pw / float64(len(wm)*dec)
 	best.Duty = 1
 	best.Slow = true
+	best.Even = true
 	return best, true
 }
 
@@ -611,6 +633,17 @@ func (d *Swept) foldFrom(x []complex64, fs, period float64, span int, step float
 		if on > 0 {
 			sw.Power = sum / float64(on) / (float64(len(x)) / float64(bins))
 			sw.Duty = float64(on) / float64(bins)
+			// A chirp's folded magnitude is even where it is present (a
+			// constant envelope sweeping); two beating tones' swings with
+			// their beat.
+			mean := sum / float64(on)
+			var v float64
+			for _, z := range z {
+				if a := cmplx.Abs(z); a >= top/4 {
+					v += (a - mean) * (a - mean)
+				}
+			}
+			sw.Even = math.Sqrt(v/float64(on)) <= maxSweepUnevenness*mean
 		}
 	}
 	if ok && sw.SpanHz > 0.95*fs {
@@ -850,13 +883,21 @@ func sweptFootprint(c, x *Finding, g *grid) bool {
 	sl, sh := c.LowHz-2*g.bin, c.HighHz+2*g.bin
 	if class == ClassPulsed {
 		// The sweep's passes through a sub-band look like pulses there,
-		// at the sweep's own power.
-		return overlaps(x.OffsetHz, x.OffsetHz, sl, sh) && jn <= 2*c.JN
+		// at about the sweep's own power (4×: the pass's peak over the
+		// sweep's mean in a shaped band).
+		return overlaps(x.OffsetHz, x.OffsetHz, sl, sh) && jn <= 4*c.JN
 	}
 	if overlaps(lo, hi, sl, sh) {
 		return true
 	}
+	// The distance to the nearer edge, the band's ends wrapping round (a
+	// skirt beyond −fs/2 comes back in at +fs/2: aliasing).
 	d := math.Max(sl-hi, lo-sh)
+	for _, wrap := range [2]float64{-g.fs, g.fs} {
+		if dd := math.Max(sl+wrap-hi, lo-sh-wrap); dd >= 0 && dd < d {
+			d = dd
+		}
+	}
 	span := math.Max(c.HighHz-c.LowHz, g.bin)
 	mu := math.Abs(c.Sweep.RateHzS)
 	r := 2 * mu / (4 * math.Pi * math.Pi * d * d)
