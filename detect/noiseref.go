@@ -56,7 +56,6 @@ type NoiseReference struct {
 	busy bool
 }
 
-
 // referenceQuantile is the lower quantile of the bins' ratios that
 // measures the noise level.
 const referenceQuantile = 0.15
