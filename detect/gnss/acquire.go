@@ -204,6 +204,16 @@ type prnState struct {
 	bestNbr  [3]float64 // S/σ̂² at bestCell−1, bestCell, bestCell+1 in the best row
 	// candidate[d]: screened row d passed the screen and is computed exactly.
 	candidate []bool
+
+	// For the second-peak search (peaks.go): the rows whose maximum
+	// passed γ (keepHot), and the block correlations around the best
+	// cell (prof, K·profLen, centred on lag cell profC of row profDop,
+	// whose noise is profSig).
+	hot     []hotRow
+	prof    []complex64
+	profDop int
+	profC   int
+	profSig float64
 }
 
 // Acquirer searches snapshots for GPS L1 C/A signals by parallel code-phase
@@ -269,6 +279,12 @@ type Acquirer struct {
 	exhaustive bool
 	// keepCrossCorr (tests only) disables rejectCrossCorrelation.
 	keepCrossCorr bool
+
+	// Second peaks of the last search (see Correlations); gammaNear is
+	// the threshold of an early path (nearPath).
+	corr      []Correlation
+	gammaNear float64
+	shape     corrTable // the correlation shape, built on first use (corrShape)
 }
 
 // NewAcquirer returns an Acquirer for complex-baseband snapshots sampled at
@@ -330,6 +346,7 @@ func NewAcquirer(cfg AcqConfig, fs, centerHz float64) (*Acquirer, error) {
 	a.pfaCell = cfg.Pfa / nCells
 	a.gamma = DetectionThreshold(a.nBlock, a.pfaCell)
 	a.gammaScreen = float64(a.nBlock) + screenFraction*(a.gamma-float64(a.nBlock))
+	a.gammaNear = DetectionThreshold(a.nBlock, cfg.Pfa/nearCells)
 
 	// Anchor rows (base 0, whole bins) and the half-bin rows between
 	// adjacent ones.
@@ -387,6 +404,8 @@ func NewAcquirer(cfg AcqConfig, fs, centerHz float64) (*Acquirer, error) {
 		p.prn = prn
 		p.code, _ = gpsca.Code(prn) // validated in withDefaults
 		p.candidate = make([]bool, len(a.dops))
+		p.hot = make([]hotRow, 0, len(a.dops))
+		p.prof = make([]complex64, a.nBlock*profLen)
 		gpsca.Sample(chips, &p.code, fs, gpsca.ChipRate, 0)
 		clear(rep)
 		clear(count)
@@ -546,6 +565,7 @@ func (a *Acquirer) AcquireAround(dst []Acquired, x []complex64, centerHz, halfWi
 		p := &a.prns[i]
 		p.best = -1
 		clear(p.candidate)
+		p.hot = p.hot[:0]
 	}
 	// Anchor rows, exact, and the screens of the half-bin rows between them.
 	a.transform(a.base0)
@@ -576,8 +596,14 @@ func (a *Acquirer) AcquireAround(dst []Acquired, x []complex64, centerHz, halfWi
 			dst = append(dst, r)
 		}
 	}
+	// Second peaks first: they need the data grid, which the
+	// cross-correlation tests overwrite.
+	a.correlations(dst, x)
 	if !a.keepCrossCorr {
 		dst = a.rejectCrossCorrelation(dst)
+		a.corr = slices.DeleteFunc(a.corr, func(c Correlation) bool {
+			return !slices.ContainsFunc(dst, func(r Acquired) bool { return r.PRN == c.PRN })
+		})
 	}
 	slices.SortFunc(dst, func(u, v Acquired) int { return u.PRN - v.PRN })
 	return dst, nil
@@ -943,6 +969,7 @@ func (a *Acquirer) refineRow(p *prnState, d int, row []float64, z []complex64) {
 		return
 	}
 	sigma2 := row[bestC] / v
+	a.keepHot(p, d, row, v, bestC, sigma2)
 	m := lagsPerMs - 1
 	fd := a.dops[d]
 	lo := a.oddPower(z, fd, (bestC-1)&m) / sigma2 // cell 2·bestC − 1
@@ -957,6 +984,8 @@ func (a *Acquirer) refineRow(p *prnState, d int, row []float64, z []complex64) {
 	// Ties go to the lower Doppler bin whatever order the bins are searched in.
 	if nbr[1] > p.best || nbr[1] == p.best && d < p.bestDop {
 		p.best, p.bestDop, p.bestCell, p.bestNbr = nbr[1], d, cell, nbr
+		a.keepProfile(p.prof, d, bestC, z)
+		p.profDop, p.profC, p.profSig = d, bestC, sigma2
 	}
 }
 

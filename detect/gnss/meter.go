@@ -58,6 +58,31 @@ type Measurement struct {
 	// clock range (±(DopplerMaxHz + ClockMaxHz)) rather than the narrow
 	// window around the site's known clock offset.
 	WideSearch bool
+	// Correlations are the acquired PRNs that showed a second
+	// correlation peak (Acquirer.Correlations: a spoofer's or a meacon's
+	// copy beside the authentic signal), with Dopplers in the upright
+	// orientation; nil when none did.
+	Correlations []Correlation
+	// InBandPowerDB is the power of the acquisition snapshot within
+	// ±1.023 MHz of L1 (the C/A main lobe), before mitigation, in dB of
+	// full scale (Mitigator.SetBand); HasInBand is false when it was not
+	// measured.
+	InBandPowerDB float64
+	HasInBand     bool
+	// CodeRates are the tracked satellites' code Doppler against their
+	// carrier Doppler over the pull-in (REFERENCES §11.4).
+	CodeRates []CodeRate
+}
+
+// CodeRate is one satellite's code Doppler measured over the tracking
+// loops' pull-in minus the carrier-aided one, f_D/1540 chips/s
+// (ChannelState.CodeRateErr): 0 within its standard error for a signal
+// whose code and carrier come from one oscillator (REFERENCES §11.4).
+type CodeRate struct {
+	PRN int
+	// ErrChipsS is the mismatch in chips/s, SigmaChipsS its standard
+	// error from the regression's residuals.
+	ErrChipsS, SigmaChipsS float64
 }
 
 // MeterConfig configures a Meter. Zero fields take their defaults.
@@ -138,6 +163,7 @@ type Meter struct {
 	acquired []Acquired // recorded frame
 	powerDB  float64    // snapshot power, dB (of full scale 1)
 	mitStats MitigationStats
+	corr     []Correlation // second peaks of the acquisition (Acquirer.Correlations)
 	wide     bool
 	mitTrack bool // track on mitigated samples (see mitigatedTracking)
 	tr       *Tracker
@@ -171,6 +197,7 @@ func NewMeter(cfg MeterConfig) *Meter { return &Meter{cfg: cfg} }
 func (m *Meter) Start(fs, centerHz float64) error {
 	m.fill, m.seen, m.acqDone, m.allZero = 0, 0, false, false
 	m.acquired, m.mitStats, m.wide, m.mitTrack = m.acquired[:0], MitigationStats{}, false, false
+	m.corr = m.corr[:0]
 	m.tr, m.trStart, m.trInv, m.decided, m.invKnown, m.restarts, m.resulted = nil, 0, false, false, false, 0, false
 	if m.acq != nil && m.fs == fs && m.fc == centerHz {
 		return nil
@@ -281,6 +308,13 @@ func (m *Meter) acquire() {
 		return
 	}
 	m.powerDB = dB(p / float64(len(m.snap)))
+	// The in-band power around L1 (REFERENCES §11.1), where L1 lies in
+	// the recording: mirrored when the site's spectrum is inverted.
+	off := m.acq.offsetHz
+	if m.orientation() {
+		off = -off
+	}
+	m.mit.SetBand(off-gpsca.ChipRate, off+gpsca.ChipRate)
 	m.mitStats = m.mit.Mitigate(m.clean, m.snap)
 	m.mitTrack = m.mitStats.ExcisedFraction >= mitigatedExcised || m.mitStats.BlankedFraction >= mitigatedBlanked
 	var err error
@@ -298,6 +332,7 @@ func (m *Meter) acquire() {
 		m.acquired = m.acquired[:0]
 		return
 	}
+	m.corr = append(m.corr[:0], m.acq.Correlations()...)
 	inv := m.orientation()
 	sats := make([]Acquired, len(m.acquired))
 	for i, a := range m.acquired {
@@ -454,6 +489,9 @@ func (m *Meter) Result() Measurement {
 	}
 	dur := float64(m.seen) / m.fs
 	r.Mitigation, r.WideSearch = m.mitStats, m.wide
+	if m.mitStats.HasBand && m.mitStats.BandPower > 0 {
+		r.InBandPowerDB, r.HasInBand = dB(m.mitStats.BandPower), true
+	}
 	switch {
 	case !m.acqDone:
 		r.Unmeasured = fmt.Sprintf("the capture (%.1f ms) is shorter than the %d ms acquisition snapshot: satellites not measured",
@@ -571,6 +609,25 @@ func (m *Meter) Result() Measurement {
 	if f, ok := ClockOffset(r.Satellites); ok {
 		r.ClockOffsetHz, r.HasClock = f, true
 	}
+	// Second peaks, in the orientation the satellites are reported in.
+	for _, c := range m.corr {
+		c.Second = ptrTo(*c.Second)
+		if m.trInv {
+			c.First.DopplerHz, c.Second.DopplerHz = -c.First.DopplerHz, -c.Second.DopplerHz
+			prof := make([]ProfileSegment, len(c.Profile))
+			for i, s := range c.Profile {
+				s.DopplerHz = -s.DopplerHz
+				prof[i] = s
+			}
+			c.Profile = prof
+		}
+		r.Correlations = append(r.Correlations, c)
+	}
+	for _, c := range chans {
+		if _, ok := tracked[c.PRN]; ok && c.CodeRateVar > 0 && slices.ContainsFunc(r.Satellites, func(s Measured) bool { return s.PRN == c.PRN }) {
+			r.CodeRates = append(r.CodeRates, CodeRate{PRN: c.PRN, ErrChipsS: c.CodeRateErr, SigmaChipsS: math.Sqrt(c.CodeRateVar)})
+		}
+	}
 	if !m.resulted {
 		m.resulted = true
 		m.learnSite(r)
@@ -625,3 +682,5 @@ func ClockOffset(sats []Measured) (float64, bool) {
 	}
 	return (f[n/2-1] + f[n/2]) / 2, true
 }
+
+func ptrTo[T any](v T) *T { return &v }

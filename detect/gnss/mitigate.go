@@ -48,6 +48,11 @@ type Mitigator struct {
 	pow, sel    []float64
 	frames      []float64 // per-frame bin powers of the passband estimate
 	stats       MitigationStats
+	// bandLo, bandHi (Hz from the centre) bound the band whose power
+	// the passband estimate measures (SetBand); bandSet tells that one
+	// was set.
+	bandLo, bandHi float64
+	bandSet        bool
 }
 
 // MitigationStats says what Mitigate removed from one snapshot.
@@ -62,6 +67,13 @@ type MitigationStats struct {
 	// strong constant-envelope or wideband interference that excision did
 	// not remove).
 	NotImpulsive bool
+	// BandPower is the snapshot's mean power per sample within the band
+	// given to SetBand, before any mitigation (full-scale units: white
+	// noise of variance σ² over the whole capture band gives σ² times
+	// the band's fraction of it); HasBand is false when no band was set
+	// or the snapshot was too short to measure it.
+	BandPower float64
+	HasBand   bool
 }
 
 // Interfered reports whether the snapshot carried interference that
@@ -138,6 +150,13 @@ func NewMitigator(fs float64) *Mitigator {
 		guard:   int(math.Ceil(fs * 1e-6)),
 	}
 }
+
+// SetBand sets the band, lo to hi Hz from the capture's centre, whose
+// power Mitigate measures on the snapshot as it is (MitigationStats.BandPower):
+// the in-band power of REFERENCES §11.1, which must be taken in a ~2 MHz
+// band around L1 rather than over a wide capture, where the GNSS signals'
+// share is diluted.
+func (m *Mitigator) SetBand(lo, hi float64) { m.bandLo, m.bandHi, m.bandSet = lo, hi, true }
 
 // Mitigate writes the mitigated copy of x into dst (len(dst) ≥ len(x); dst
 // and x must not overlap) and returns what it removed.
@@ -241,17 +260,37 @@ func (m *Mitigator) passband(x []complex64) (lines, transient bool) {
 		}
 	}
 	// Per-bin maximum and median over the frames, in centred order (bin
-	// c − n/2).
+	// c − n/2), and the power in the band set by SetBand: the bins whose
+	// centre lies in it, their mean over the frames divided by n·Σw²
+	// (white noise of variance σ² gives E|X_k|² = σ²·Σw² in every bin).
 	med := e.pow
+	var band float64
 	for k := range n {
 		col := fr[k*nf : (k+1)*nf]
-		hi := 0.0
+		hi, sum := 0.0, 0.0
 		for _, v := range col {
 			hi = max(hi, v)
+			sum += v
+		}
+		if m.bandSet {
+			f := float64(k) * m.fs / float64(n)
+			if k >= h {
+				f -= m.fs
+			}
+			if f >= m.bandLo && f < m.bandHi {
+				band += sum / float64(nf)
+			}
 		}
 		md := median(col)
 		med[(k+h)&(n-1)] = md
 		transient = transient || hi > transientFactor*md
+	}
+	if m.bandSet {
+		var w2 float64
+		for _, w := range e.win {
+			w2 += float64(w) * float64(w)
+		}
+		m.stats.BandPower, m.stats.HasBand = band/(float64(n)*w2), true
 	}
 	// Running quantile, in centred order, into sh.
 	sh := e.sel

@@ -16,6 +16,10 @@ type satSpec struct {
 	carrier   float64 // carrier phase at sample 0, rad
 	powerW    float64 // if > 0, the carrier power C = A² (overrides cn0)
 	bitChips  float64 // chips of the current data bit already elapsed at sample 0 (codePhase + 1023·j)
+	// bits, if set, are the data bits (±1) instead of random ones: copies
+	// of one signal (a meacon, a matched-power spoofer, multipath) carry
+	// the same data.
+	bits []float64
 }
 
 // capture is a synthetic complex-baseband recording.
@@ -57,9 +61,12 @@ func addSat(rng *rand.Rand, x []complex64, fs, centerHz, sigma2 float64, st satS
 	fc := gpsca.L1 - centerHz + st.dopplerHz
 	const bitChips = 20 * gpsca.CodeLength
 	nBits := int((st.bitChips+float64(len(x))*rate/fs)/bitChips) + 2
-	bits := make([]float64, nBits)
-	for i := range bits {
-		bits[i] = float64(1 - 2*rng.IntN(2))
+	bits := st.bits
+	if bits == nil {
+		bits = make([]float64, nBits)
+		for i := range bits {
+			bits[i] = float64(1 - 2*rng.IntN(2))
+		}
 	}
 	w := 2 * math.Pi * fc / fs
 	step := complex(math.Cos(w), math.Sin(w))
