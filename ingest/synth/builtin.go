@@ -8,7 +8,8 @@ import (
 // The built-in scenarios are invented: the sites, the vehicles and the
 // emitters are ours, made up to exercise every detector. Sites: Kestrel
 // Quay (an ideal front end), Wrenfold Mast, Saltmire Beacon, Tarnhollow
-// Ridge, Brackenlow Yard and Fellgate Hut (front ends of their own).
+// Ridge, Brackenlow Yard and Fellgate Hut (front ends of their own), and
+// Harrowmere Pier (spoofers, a meacon and multipath).
 
 // siteSky is the sky over the invented Kestrel Quay pilot station: eight
 // satellites with fixed Doppler and code phase.
@@ -148,6 +149,35 @@ var builtins = map[string]func() Scenario{
 			Captures: []Capture{{Name: "brackenlow-1"},
 				{Name: "brackenlow-2", OffsetS: 60, Emitters: []Emitter{keyed, {Kind: KindCW, Label: "amplifier tone", OffsetHz: 300e3, JNDB: 6}}},
 				{Name: "brackenlow-3", OffsetS: 120, Emitters: []Emitter{sweep}}}}
+	},
+	"spoofing": func() Scenario {
+		return Scenario{Name: "spoofing", Site: "harrowmere-pier", Format: "ci16_le", SampleRate: 4e6, CenterHz: 1575.42e6,
+			NoiseDBFS: -30, Seed: 36,
+			Description: "a pier where ships pass: a clear morning with a reflecting crane, then a counterfeit sky at 50 dB-Hz, a matched-power spoofer 3 dB over every satellite, and a meacon re-radiating the band 1.5 µs late and 4 dB up",
+			Sky:         RandomSky(10, 41),
+			Captures: []Capture{{Name: "harrowmere-1"}, {Name: "harrowmere-2", OffsetS: 60},
+				{Name: "harrowmere-3", OffsetS: 120, Multipath: &Multipath{}},
+				{Name: "harrowmere-4", OffsetS: 180, Spoofers: []Spoofer{{Kind: SpoofCounterfeit, Label: "counterfeit sky", CN0DBHz: 50}}},
+				{Name: "harrowmere-5", OffsetS: 240, Spoofers: []Spoofer{{Kind: SpoofMatchedPower, Label: "matched-power spoofer", PowerDB: 3}}},
+				{Name: "harrowmere-6", OffsetS: 300, Spoofers: []Spoofer{{Kind: SpoofMeaconing, Label: "meacon", DelayS: 1.5e-6, PowerDB: 4}}},
+				{Name: "harrowmere-7", OffsetS: 360}}}
+	},
+	"jam-then-spoof": func() Scenario {
+		jam := Emitter{Kind: KindWidebandNoise, Label: "noise jammer", FloorRiseDB: 15}
+		fake := Spoofer{Kind: SpoofCounterfeit, Label: "counterfeit sky", CN0DBHz: 48}
+		late := jam
+		late.EndS = 0.1
+		lateFake := fake
+		lateFake.StartS = 0.1
+		return Scenario{Name: "jam-then-spoof", Site: "harrowmere-pier", Format: "ci16_le", SampleRate: 4e6, CenterHz: 1575.42e6,
+			NoiseDBFS: -30, Seed: 37,
+			Description: "a noise jammer takes the satellites away, then stops as a counterfeit sky at 48 dB-Hz takes their place: the receivers nearby reacquire the false signals",
+			Sky:         RandomSky(9, 43),
+			Captures: []Capture{{Name: "jts-1"}, {Name: "jts-2", OffsetS: 60},
+				{Name: "jts-3", OffsetS: 120, Emitters: []Emitter{jam}},
+				{Name: "jts-4", OffsetS: 180, Emitters: []Emitter{late}, Spoofers: []Spoofer{lateFake}},
+				{Name: "jts-5", OffsetS: 240, Spoofers: []Spoofer{fake}},
+				{Name: "jts-6", OffsetS: 300, Spoofers: []Spoofer{fake}}}}
 	},
 	"recorder-faults": func() Scenario {
 		return Scenario{Name: "recorder-faults", Site: "fellgate-hut", Format: "cf32_le", SampleRate: 4.092e6, CenterHz: 1575.42e6,

@@ -110,6 +110,11 @@ type Capture struct {
 	// part given here (passband, quantization, sample_drops, ...) replaces
 	// the scenario's, the others are kept.
 	FrontEnd *FrontEnd `yaml:"front_end,omitempty" json:"front_end,omitempty"`
+	// Spoofers are sources of false GPS signals (counterfeit,
+	// matched_power, meaconing; see Spoofer).
+	Spoofers []Spoofer `yaml:"spoofers,omitempty" json:"spoofers,omitempty"`
+	// Multipath gives every satellite a reflected copy (see Multipath).
+	Multipath *Multipath `yaml:"multipath,omitempty" json:"multipath,omitempty"`
 }
 
 // Satellite is one GPS L1 C/A signal.
@@ -337,6 +342,16 @@ func (s *Scenario) Normalize() error {
 				return fmt.Errorf("capture %s: emitters[%d] (%s): %w", c.Name, j, c.Emitters[j].Kind, err)
 			}
 		}
+		for j := range c.Spoofers {
+			if err := c.Spoofers[j].normalize(c.DurationS, c.Satellites); err != nil {
+				return fmt.Errorf("capture %s: spoofers[%d] (%s): %w", c.Name, j, c.Spoofers[j].Kind, err)
+			}
+		}
+		if c.Multipath != nil {
+			if err := c.Multipath.normalize(); err != nil {
+				return fmt.Errorf("capture %s: multipath: %w", c.Name, err)
+			}
+		}
 	}
 	return nil
 }
@@ -560,6 +575,10 @@ func (s *Scenario) ScaleDuration(d float64) {
 		}
 		f := d / old
 		c.DurationS = d
+		for j := range c.Spoofers {
+			c.Spoofers[j].StartS *= f
+			c.Spoofers[j].EndS *= f
+		}
 		for j := range c.Emitters {
 			e := &c.Emitters[j]
 			e.StartS *= f

@@ -474,6 +474,24 @@ func TestBuiltins(t *testing.T) {
 						want += frac * undb(jn) * floor
 					}
 				}
+				// Spoofers' signals and a meacon's re-radiated noise
+				// while on, multipath copies throughout.
+				for _, sp := range tr.Spoofers {
+					frac := float64(sp.EndSample-sp.StartSample) / float64(tr.Samples)
+					for _, sig := range sp.Signals {
+						want += frac * undb(sig.CN0DBHz) * sigma2 / tr.SampleRate * floor / sigma2
+					}
+					if sp.NoiseRiseDB > 0 {
+						want += frac * (undb(sp.NoiseRiseDB) - 1) * floor
+					}
+				}
+				for _, mp := range tr.Multipath {
+					for _, sat := range tr.Satellites {
+						if sat.PRN == mp.PRN {
+							want += undb(sat.CN0DBHz-mp.WeakerDB) * sigma2 / tr.SampleRate * floor / sigma2
+						}
+					}
+				}
 				for _, f := range tr.Faults {
 					switch f.Kind {
 					case FaultGap:

@@ -37,6 +37,10 @@ type Truth struct {
 	FrontEnd *TruthFrontEnd `json:"front_end,omitempty"`
 	// FrontEndSpurs are the front end's own tones: not emitters.
 	FrontEndSpurs []Tone `json:"front_end_spurs,omitempty"`
+	// Spoofers are the capture's sources of false signals, with every
+	// signal they sent; Multipath its satellites' reflected copies.
+	Spoofers  []TruthSpoofer `json:"spoofers,omitempty"`
+	Multipath []TruthPath    `json:"multipath,omitempty"`
 	// Faults are the recorder's faults in this capture, in capture samples.
 	Faults []TruthFault `json:"faults,omitempty"`
 	// For real samples at an IF (RealIF): the file's rate (twice
@@ -301,7 +305,7 @@ func usesNewOptions(c Capture, fs float64) bool {
 			return true
 		}
 	}
-	return false
+	return len(c.Spoofers) > 0 || c.Multipath != nil
 }
 
 // buildSources makes the sources of capture i, each with its own seeded
@@ -341,6 +345,7 @@ func buildSources(s *Scenario, i int, n int64, ch *chain, fe *FrontEnd, truth *T
 		all = span{-pre, streamLen + pre}
 	}
 	srcs := []source{newGaussian(rng(), sigma2, all)}
+	var auth []authentic // for the copies of spoofers and multipath
 	for _, sat := range c.Satellites {
 		code, err := gpsca.Code(sat.PRN)
 		if err != nil {
@@ -372,6 +377,7 @@ func buildSources(s *Scenario, i int, n int64, ch *chain, fe *FrontEnd, truth *T
 				bits[k] = int8(1 - 2*r.IntN(2))
 			}
 			srcs = append(srcs, newMovingSatellite(amp, code, bits, sat, fs, ck, 2*math.Pi*r.Float64()))
+			auth = append(auth, authentic{sat: sat, bits: bits, cn0: cn0})
 			sc := 1 + ck.eps
 			dop := inv * (ck.carrier(gpsca.L1+sat.DopplerHz) + s.CenterHz - gpsca.L1)
 			if ck.eps == 0 {
@@ -444,6 +450,9 @@ func buildSources(s *Scenario, i int, n int64, ch *chain, fe *FrontEnd, truth *T
 			apparentEmitter(&te, fs, ck, inv, pb)
 		}
 		truth.Emitters = append(truth.Emitters, te)
+	}
+	if len(c.Spoofers) > 0 || c.Multipath != nil {
+		srcs = append(srcs, spoofSources(c, auth, fs, sigma2, ck, newRNG, all, streamLen, n, capIdx, truth)...)
 	}
 	if fe != nil {
 		truth.FrontEnd, truth.FrontEndSpurs, truth.Faults = describeFrontEnd(s, i, fe, ch, n)
