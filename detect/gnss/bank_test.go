@@ -81,7 +81,8 @@ var bankLimits = map[string][2]float64{
 // TestInterferenceBank runs the Meter over captures with five satellites
 // (38–50 dB-Hz) and one interferer of the bank at J/N 10 to 40 dB. No PRN
 // that is not in the capture may be reported, at any level (the false-PRN
-// requirement); satellites of 40 dB-Hz and more must be found up to the
+// requirement), nor three PRNs with a second correlation peak (what a
+// spoofing event needs); satellites of 40 dB-Hz and more must be found up to the
 // class's limits in bankLimits (the stated J/N limits); when none is found
 // under interference a note must say the satellites are lost. The default
 // run takes 40 dB and the limits of every class, two captures each; with
@@ -102,7 +103,7 @@ func TestInterferenceBank(t *testing.T) {
 			}
 			t.Run(fmt.Sprintf("%s/%gdB", in.name, jn), func(t *testing.T) {
 				rng := rand.New(rand.NewPCG(81, uint64(jn)))
-				found, strong := 0, 0
+				found, strong, pairs := 0, 0, 0
 				for range captures {
 					sats := skyWithClock(rng, []float64{38, 40, 43, 46, 50}, 0)
 					// A clean capture of the site first, as a monitor has.
@@ -129,8 +130,15 @@ func TestInterferenceBank(t *testing.T) {
 					if len(r.Satellites) == 0 && !slices.ContainsFunc(r.Notes, func(n string) bool { return strings.Contains(n, "lost, not absent") }) {
 						t.Errorf("no satellite and no lost note: %q", r.Notes)
 					}
+					// No copy in the sky: a second correlation peak is
+					// a false one. Three PRNs with one would make a
+					// spoofing event (detect.Spoofing).
+					pairs += len(r.Correlations)
+					if len(r.Correlations) >= 3 {
+						t.Errorf("%d PRNs with a second peak under interference: %+v", len(r.Correlations), r.Correlations)
+					}
 				}
-				t.Logf("found %d of %d satellites ≥ 40 dB-Hz", found, strong)
+				t.Logf("found %d of %d satellites ≥ 40 dB-Hz; %d PRNs with a (false) second peak", found, strong, pairs)
 				if jn >= lim[0] && jn <= lim[1] && float64(found) < 0.75*float64(strong) {
 					t.Errorf("found %d of %d satellites ≥ 40 dB-Hz within the class's limits (J/N %g–%g dB)", found, strong, lim[0], lim[1])
 				}

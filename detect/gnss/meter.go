@@ -609,8 +609,28 @@ func (m *Meter) Result() Measurement {
 	if f, ok := ClockOffset(r.Satellites); ok {
 		r.ClockOffsetHz, r.HasClock = f, true
 	}
-	// Second peaks, in the orientation the satellites are reported in.
+	// Second peaks of the satellites reported, in the orientation they
+	// are reported in. A detection that tracking dropped (a false one
+	// under strong interference) has no say. When mitigation reshaped the
+	// snapshot, the correlations are not the sky's alone: short-time
+	// excision that follows a periodic sweep, or blanking of a pulse
+	// train, gates the signals with the interferer's period and puts a
+	// copy of every correlation peak at that lag (a 100 µs sweep:
+	// 102.3 chips, the same on every PRN), and a wide band cut out of the
+	// C/A main lobe makes the peak ring; so no second peak is reported
+	// then, and a note says why. (A few per cent excised does neither: a
+	// sky of strong satellites or spoofers loses that much, measured.)
+	ms := m.mitStats
+	mitigated := ms.ExcisedFraction > pairsExcisedMax || ms.BlankedFraction > pairsBlankedMax || ms.NotImpulsive
+	dropped := false
 	for _, c := range m.corr {
+		if !slices.ContainsFunc(r.Satellites, func(s Measured) bool { return s.PRN == c.PRN }) {
+			continue
+		}
+		if mitigated {
+			dropped = true
+			continue
+		}
 		c.Second = ptrTo(*c.Second)
 		if m.trInv {
 			c.First.DopplerHz, c.Second.DopplerHz = -c.First.DopplerHz, -c.Second.DopplerHz
@@ -622,6 +642,9 @@ func (m *Meter) Result() Measurement {
 			c.Profile = prof
 		}
 		r.Correlations = append(r.Correlations, c)
+	}
+	if dropped {
+		r.Notes = append(r.Notes, "second correlation peaks not reported: interference mitigation acted on the acquisition snapshot and puts copies of every peak at the interferer's period")
 	}
 	for _, c := range chans {
 		if _, ok := tracked[c.PRN]; ok && c.CodeRateVar > 0 && slices.ContainsFunc(r.Satellites, func(s Measured) bool { return s.PRN == c.PRN }) {
@@ -654,6 +677,20 @@ func (m *Meter) learnSite(r Measurement) {
 		m.site.clockKnown, m.site.clockHz, m.site.count = true, f, len(r.Satellites)
 	}
 }
+
+// Mitigation beyond which second peaks are not reported (see Result):
+// excision of 20 % of the snapshot's power (a sweep or noise band at
+// J/N −6 dB or more; skies of ten satellites at 40–53 dB-Hz with eight
+// to ten spoofed copies lost up to 6 %, measured at 4 and 10 MS/s; an
+// interferer weaker than −6 dB gates the signals by less, and its copies
+// of the peaks stay below the detection threshold); blanking of 0.1 % of
+// the samples (a Gaussian sample exceeds the blanking threshold with
+// probability 2·10⁻⁶, so noise alone blanks a guard of 1 µs or two per
+// snapshot: 0.02 % at 10 MS/s).
+const (
+	pairsExcisedMax = 0.2
+	pairsBlankedMax = 0.001
+)
 
 // lostRiseDB is the band power rise (dB) over the site's, with no
 // satellite measured, that makes the satellites "lost": 3 dB is
