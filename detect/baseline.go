@@ -37,6 +37,13 @@ type Baseline struct {
 	CN0        map[int]float64 `json:"cn0_dbhz,omitempty"` // per PRN
 	CN0Mean    float64         `json:"cn0_mean_dbhz,omitempty"`
 	CN0Samples int             `json:"cn0_captures,omitempty"`
+	// The site history the spoofing indicators compare with (see
+	// Baselines.LearnSky): the in-band power around L1 of clean captures
+	// (dBFS, averaged like the rest over InBandCaptures captures), and
+	// which PRNs the site has seen at which sidereal time of day.
+	InBandPowerDBFS float64     `json:"in_band_power_dbfs,omitempty"`
+	InBandCaptures  int         `json:"in_band_captures,omitempty"`
+	Sky             *SkyHistory `json:"sky,omitempty"`
 }
 
 // BaselineKey names the input a baseline belongs to.
@@ -143,6 +150,7 @@ func (s *Baselines) snapshot(key string) Baseline {
 			c.CN0[k] = v
 		}
 	}
+	c.Sky = b.Sky.clone()
 	return c
 }
 

@@ -13,10 +13,13 @@ const (
 	ClassWidebandNoise   = "wideband_noise"
 	ClassNarrowbandNoise = "narrowband_noise"
 	ClassCN0Drop         = "cn0_drop"
+	// ClassSpoofing: the satellites of the capture are not what they seem
+	// (counterfeit signals or a meacon; see Spoofing).
+	ClassSpoofing = "spoofing"
 )
 
 // Classes lists the event classes in a stable order.
-var Classes = []string{ClassCW, ClassSwept, ClassPulsed, ClassWidebandNoise, ClassNarrowbandNoise, ClassCN0Drop}
+var Classes = []string{ClassCW, ClassSwept, ClassPulsed, ClassWidebandNoise, ClassNarrowbandNoise, ClassCN0Drop, ClassSpoofing}
 
 // Event is one detected interference within one capture: the body of a
 // `kind: "event"` record of the event log. Field names are the log's
@@ -79,6 +82,52 @@ type Params struct {
 	CN0DBHz        *float64  `json:"cn0_dbhz,omitempty"`
 	PRNs           []int     `json:"prns,omitempty"`
 	SatellitesLost []int     `json:"satellites_lost,omitempty"`
+	// spoofing (DESIGN.md): Kind is counterfeit or meaconing; Indicators
+	// each indicator that fired with its value (see Spoofing);
+	// PowerOverAuthenticDB the false signals' power over the authentic
+	// ones; DelayChips a meacon's common delay; Peaks, for the analyst's
+	// report, each PRN's two correlation peaks and the correlation power
+	// around them.
+	Kind                 string             `json:"kind,omitempty"`
+	Indicators           map[string]float64 `json:"indicators,omitempty"`
+	PowerOverAuthenticDB *float64           `json:"power_over_authentic_db,omitempty"`
+	DelayChips           *float64           `json:"delay_chips,omitempty"`
+	Peaks                []PeakPair         `json:"peaks,omitempty"`
+}
+
+// PeakPair is one PRN of a spoofing event: its two correlation peaks
+// (the first the stronger) and the correlation power against code phase
+// around them.
+type PeakPair struct {
+	PRN    int      `json:"prn"`
+	First  PeakInfo `json:"first"`
+	Second PeakInfo `json:"second"`
+	// DelayChips is the second peak's arrival delay after the first
+	// (chips, negative: earlier); SecondDB its power over the first's.
+	DelayChips float64 `json:"delay_chips"`
+	SecondDB   float64 `json:"second_db"`
+	// Profile: the correlation power over the noise (dB) against arrival
+	// delay relative to the first peak, one segment per Doppler row.
+	Profile []ProfileSegment `json:"profile"`
+}
+
+// PeakInfo is one correlation peak.
+type PeakInfo struct {
+	CodePhaseChips float64 `json:"code_phase_chips"`
+	DopplerHz      float64 `json:"doppler_hz"`
+	// SNRDB is the peak's signal power over the noise of one 1 ms
+	// correlation, 10·log10(C/N0·T) (add 30 for dB-Hz).
+	SNRDB float64 `json:"snr_db"`
+}
+
+// ProfileSegment is the correlation power around a peak in one Doppler
+// row: PowerDB[i] at StartChips + i·StepChips of arrival delay relative
+// to the first peak.
+type ProfileSegment struct {
+	DopplerHz  float64   `json:"doppler_hz"`
+	StartChips float64   `json:"start_chips"`
+	StepChips  float64   `json:"step_chips"`
+	PowerDB    []float32 `json:"power_db"`
 }
 
 // ToneParam is one tone of a cw event.

@@ -117,6 +117,11 @@ func (m *GNSSMeter) Measurement() SatelliteResult {
 		if g.HasDrop {
 			r.DropSample = ptr(g.DropSample)
 		}
+		r.Correlations = g.Correlations
+		if g.HasInBand {
+			r.InBandPowerDBFS = ptr(g.InBandPowerDB)
+		}
+		r.CodeRates = g.CodeRates
 	}
 	m.cached = &r
 	return r
@@ -272,6 +277,18 @@ type SatelliteResult struct {
 	// tracked satellite lost lock at once: a sample drop or gap in the
 	// recording (REFERENCES §12.7), for a "gap" fault.
 	DropSample *int64
+	// Correlations are the PRNs whose acquisition showed a second
+	// correlation peak, with both peaks and the correlation profile
+	// around them (gnss.Acquirer.Correlations): what Spoofing reads.
+	// Nil when no PRN had one.
+	Correlations []gnss.Correlation
+	// InBandPowerDBFS is the power within ±1.023 MHz of L1 of the
+	// acquisition snapshot before mitigation (dBFS; REFERENCES §11.1: the
+	// band where a spoofer's power shows), nil when not measured.
+	InBandPowerDBFS *float64
+	// CodeRates are the tracked satellites' code Doppler against their
+	// carrier Doppler (REFERENCES §11.4), for Spoofing.
+	CodeRates []gnss.CodeRate
 }
 
 // MeasureSatellites reads a capture on its own and measures its
