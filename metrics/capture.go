@@ -73,6 +73,7 @@ func (s *Set) ObserveCapture(c Capture) {
 		}
 	}
 
+	s.observeSpoofing(c.Input, c.Events)
 	if st := c.Record.Stats; st != nil {
 		s.power.WithLabelValues(c.Input).Set(st.PowerDBFS)
 		s.noiseFloor.WithLabelValues(c.Input).Set(st.NoiseFloorDBFS)
@@ -143,4 +144,56 @@ func OpenAtEnd(events []detect.Event, samples, block int64) map[string]float64 {
 		}
 	}
 	return out
+}
+
+// SpoofingKinds are the kinds of a spoofing event (params.kind), the
+// values of quietband_spoofing_active's kind label.
+var SpoofingKinds = []string{"counterfeit", "meaconing"}
+
+// chipRate is the C/A chip rate, 1.023 MHz (IS-GPS-200): a meacon's
+// delay in chips over it is seconds.
+const chipRate = 1.023e6
+
+// observeSpoofing sets the spoofing series of an input from the events
+// of its latest analysed capture: a spoofing event (there is at most one
+// per capture) sets its kind active, the number of its PRNs, its power
+// over the authentic signals and, for a meacon, its delay; a capture
+// without one clears them.
+func (s *Set) observeSpoofing(input string, events []detect.Event) {
+	var ev *detect.Event
+	for i := range events {
+		if events[i].Class == detect.ClassSpoofing {
+			ev = &events[i]
+			break
+		}
+	}
+	kind := ""
+	if ev != nil {
+		kind = ev.Params.Kind
+	}
+	for _, k := range SpoofingKinds {
+		s.spoofActive.WithLabelValues(input, k).Set(b2f(k == kind))
+	}
+	if ev != nil && !slices.Contains(SpoofingKinds, kind) {
+		// A kind newer than this list: still bounded (kinds are only
+		// ever added by a code change).
+		s.spoofActive.WithLabelValues(input, kind).Set(1)
+	}
+	if ev == nil {
+		s.spoofPRNs.WithLabelValues(input).Set(0)
+		s.spoofOver.DeleteLabelValues(input)
+		s.spoofDelay.DeleteLabelValues(input)
+		return
+	}
+	s.spoofPRNs.WithLabelValues(input).Set(float64(len(ev.Params.PRNs)))
+	if v := ev.Params.PowerOverAuthenticDB; v != nil {
+		s.spoofOver.WithLabelValues(input).Set(*v)
+	} else {
+		s.spoofOver.DeleteLabelValues(input)
+	}
+	if d := ev.Params.DelayChips; d != nil {
+		s.spoofDelay.WithLabelValues(input).Set(*d / chipRate)
+	} else {
+		s.spoofDelay.DeleteLabelValues(input)
+	}
 }

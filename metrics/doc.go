@@ -28,6 +28,17 @@
 // largest J/N among the open events of the class and is absent while
 // nothing of the class is open.
 //
+// # Spoofing
+//
+// Spoofing is an event class like the others (interference_active, jn_db
+// and events_total carry class="spoofing"). Beside them,
+// quietband_spoofing_active{input,kind} says which kind (counterfeit,
+// meaconing) the latest capture's spoofing event is,
+// quietband_spoofing_prns{input} how many satellites it names (0 without
+// one), quietband_spoofing_power_over_authentic_db{input} how much
+// stronger the false signals are, and quietband_spoofing_delay_seconds
+// a meacon's delay (the last two absent while there is nothing to say).
+//
 // Averaging dB gauges over labels is not the mean power; the HELP texts
 // say so where it matters.
 package metrics

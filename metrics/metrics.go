@@ -49,17 +49,22 @@ type Options struct {
 type Set struct {
 	reg *prometheus.Registry
 
-	active      *prometheus.GaugeVec // input, class
-	jn          *prometheus.GaugeVec // input, class
-	power       *prometheus.GaugeVec // input
-	noiseFloor  *prometheus.GaugeVec
-	agc         *prometheus.GaugeVec
-	skMax       *prometheus.GaugeVec
-	clip        *prometheus.GaugeVec
-	cn0         *prometheus.GaugeVec // input, prn
-	cn0Mean     *prometheus.GaugeVec
-	satellites  *prometheus.GaugeVec
-	startTime   *prometheus.GaugeVec
+	active     *prometheus.GaugeVec // input, class
+	jn         *prometheus.GaugeVec // input, class
+	power      *prometheus.GaugeVec // input
+	noiseFloor *prometheus.GaugeVec
+	agc        *prometheus.GaugeVec
+	skMax      *prometheus.GaugeVec
+	clip       *prometheus.GaugeVec
+	cn0        *prometheus.GaugeVec // input, prn
+	cn0Mean    *prometheus.GaugeVec
+	satellites *prometheus.GaugeVec
+	startTime  *prometheus.GaugeVec
+	// Spoofing: per input and kind, the latest capture's spoofing event.
+	spoofActive *prometheus.GaugeVec   // input, kind
+	spoofPRNs   *prometheus.GaugeVec   // input
+	spoofOver   *prometheus.GaugeVec   // input
+	spoofDelay  *prometheus.GaugeVec   // input
 	events      *prometheus.CounterVec // class
 	captures    *prometheus.CounterVec // result
 	samples     prometheus.Counter
@@ -98,6 +103,13 @@ func New(opt Options) *Set {
 	s.cn0Mean = gauge("cn0_mean_dbhz", "Mean of the C/N0 values in dB-Hz of the (up to) four strongest satellites of the latest capture.", "input")
 	s.satellites = gauge("satellites_acquired", "Satellites acquired in the latest capture.", "input")
 	s.startTime = gauge("capture_start_timestamp_seconds", "Start time of the latest analysed capture (its first sample), Unix seconds.", "input")
+	s.spoofActive = gauge("spoofing_active",
+		"1 while the input's latest analysed capture has a spoofing event of the kind (counterfeit: false signals; meaconing: the band re-radiated), else 0.", "input", "kind")
+	s.spoofPRNs = gauge("spoofing_prns", "Satellites (PRNs) named by the spoofing event of the input's latest analysed capture; 0 when it has none.", "input")
+	s.spoofOver = gauge("spoofing_power_over_authentic_db",
+		"Power of the false signals over the authentic ones in the input's latest spoofing capture, dB (mean over its PRNs); absent while none.", "input")
+	s.spoofDelay = gauge("spoofing_delay_seconds",
+		"Delay of a meacon's re-radiated copies after the authentic signals in the input's latest capture, seconds; absent unless meaconing.", "input")
 
 	counter := func(name, help string, labels ...string) *prometheus.CounterVec {
 		c := prometheus.NewCounterVec(prometheus.CounterOpts{Namespace: Namespace, Name: name, Help: help}, labels)
@@ -158,6 +170,10 @@ func New(opt Options) *Set {
 		for _, c := range detect.Classes {
 			s.active.WithLabelValues(in, c).Set(0)
 		}
+		for _, k := range SpoofingKinds {
+			s.spoofActive.WithLabelValues(in, k).Set(0)
+		}
+		s.spoofPRNs.WithLabelValues(in).Set(0)
 	}
 	return s
 }

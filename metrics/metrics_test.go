@@ -144,6 +144,7 @@ quietband_events_total{class="cn0_drop"} 0
 quietband_events_total{class="cw"} 2
 quietband_events_total{class="narrowband_noise"} 0
 quietband_events_total{class="pulsed"} 0
+quietband_events_total{class="spoofing"} 0
 quietband_events_total{class="swept"} 1
 quietband_events_total{class="wideband_noise"} 1
 # HELP quietband_samples_total Complex samples analysed.
@@ -238,6 +239,70 @@ func TestInterferenceFollowsCaptures(t *testing.T) {
 		if want := int(st.want); n != want {
 			t.Fatalf("step %d: %d jn_db series, want %d", i, n, want)
 		}
+	}
+}
+
+// TestSpoofingMetrics: the spoofing series follow the input's latest
+// analysed capture (values worked out from the events fed in: a meacon
+// 1.5345 chips late is 1.5345/1.023 MHz = 1.5 µs, IS-GPS-200's chip rate),
+// are cleared by a capture without a spoofing event, and pass the linter.
+func TestSpoofingMetrics(t *testing.T) {
+	s := newTestSet(t, false)
+	spoof := func(kind string, prns []int, over float64, delay *float64) detect.Event {
+		e := event(detect.ClassSpoofing, 0, 100000, over)
+		e.Params.Kind, e.Params.PRNs, e.Params.PowerOverAuthenticDB, e.Params.DelayChips = kind, prns, &over, delay
+		return e
+	}
+	obs := func(input string, evs ...detect.Event) {
+		s.ObserveCapture(Capture{Input: input, Record: okRecord("x.ci8", 45), Events: evs, BlockSamples: block, Satellites: true, At: time.Now()})
+	}
+	obs("roof", spoof("meaconing", []int{3, 7, 11}, 4, ptr(1.5345)))
+	obs("mast", spoof("counterfeit", []int{1, 2, 3, 4, 5}, 6.5, nil))
+	want := `
+# HELP quietband_spoofing_active 1 while the input's latest analysed capture has a spoofing event of the kind (counterfeit: false signals; meaconing: the band re-radiated), else 0.
+# TYPE quietband_spoofing_active gauge
+quietband_spoofing_active{input="mast",kind="counterfeit"} 1
+quietband_spoofing_active{input="mast",kind="meaconing"} 0
+quietband_spoofing_active{input="roof",kind="counterfeit"} 0
+quietband_spoofing_active{input="roof",kind="meaconing"} 1
+# HELP quietband_spoofing_prns Satellites (PRNs) named by the spoofing event of the input's latest analysed capture; 0 when it has none.
+# TYPE quietband_spoofing_prns gauge
+quietband_spoofing_prns{input="mast"} 5
+quietband_spoofing_prns{input="roof"} 3
+# HELP quietband_spoofing_power_over_authentic_db Power of the false signals over the authentic ones in the input's latest spoofing capture, dB (mean over its PRNs); absent while none.
+# TYPE quietband_spoofing_power_over_authentic_db gauge
+quietband_spoofing_power_over_authentic_db{input="mast"} 6.5
+quietband_spoofing_power_over_authentic_db{input="roof"} 4
+# HELP quietband_spoofing_delay_seconds Delay of a meacon's re-radiated copies after the authentic signals in the input's latest capture, seconds; absent unless meaconing.
+# TYPE quietband_spoofing_delay_seconds gauge
+quietband_spoofing_delay_seconds{input="roof"} 1.5e-06
+# HELP quietband_interference_active 1 while an interference of the class is open at the end of the input's latest analysed capture, else 0.
+# TYPE quietband_interference_active gauge
+`
+	var b strings.Builder
+	b.WriteString(want)
+	for _, in := range []string{"mast", "roof"} {
+		for _, c := range detect.Classes {
+			fmt.Fprintf(&b, "quietband_interference_active{class=%q,input=%q} %d\n", c, in, map[bool]int{true: 1}[c == detect.ClassSpoofing])
+		}
+	}
+	names := []string{"quietband_spoofing_active", "quietband_spoofing_prns", "quietband_spoofing_power_over_authentic_db",
+		"quietband_spoofing_delay_seconds", "quietband_interference_active"}
+	if err := testutil.GatherAndCompare(s.Registry(), strings.NewReader(b.String()), names...); err != nil {
+		t.Error(err)
+	}
+	if problems, err := testutil.GatherAndLint(s.Registry()); err != nil || len(problems) > 0 {
+		t.Errorf("lint: %v %v", problems, err)
+	}
+	obs("roof")
+	if got := testutil.ToFloat64(s.spoofActive.WithLabelValues("roof", "meaconing")); got != 0 {
+		t.Errorf("roof meaconing active %v after a clean capture", got)
+	}
+	if n := testutil.CollectAndCount(s.spoofDelay); n != 0 {
+		t.Errorf("%d delay series after the clean capture, want 0", n)
+	}
+	if got := testutil.ToFloat64(s.spoofPRNs.WithLabelValues("roof")); got != 0 {
+		t.Errorf("roof spoofing PRNs %v after a clean capture", got)
 	}
 }
 
