@@ -14,6 +14,7 @@ import (
 	"os"
 	"path/filepath"
 	"sort"
+	"strconv"
 	"strings"
 	"sync"
 	"time"
@@ -290,6 +291,37 @@ func (r *Report) pictures(sec *section, meta *captureMeta, base string, rec dete
 		meta.Pictures = append(meta.Pictures, l)
 		sec.Pictures = append(sec.Pictures, picture{File: file, Width: k.w, Height: k.h, Alt: k.alt, Caption: k.caption})
 	}
+	// A spoofing event's satellites: the correlation against code phase
+	// with both peaks marked, one picture per PRN.
+	for _, e := range events {
+		if e.Class != detect.ClassSpoofing {
+			continue
+		}
+		for n, pp := range e.Params.Peaks {
+			if n == maxCorrelationPictures {
+				sec.Notes = append(sec.Notes, fmt.Sprintf("Correlation pictures of the first %d of %d PRNs only.", n, len(e.Params.Peaks)))
+				break
+			}
+			file := fmt.Sprintf("%s-correlation-prn%02d.png", base, pp.PRN)
+			l, err := r.writePicture(file, func(w io.Writer) (Layout, error) {
+				return WriteCorrelation(w, pp, fmt.Sprintf("PRN %d · %s · %s", pp.PRN, e.Params.Kind, rec.Capture))
+			})
+			if err != nil {
+				var pe pictureError
+				if errors.As(err, &pe) {
+					sec.Notes = append(sec.Notes, "No correlation picture for PRN "+fmt.Sprint(pp.PRN)+": "+pe.Error()+".")
+					continue
+				}
+				return err
+			}
+			l.File = file
+			meta.Pictures = append(meta.Pictures, l)
+			sec.Pictures = append(sec.Pictures, picture{File: file, Width: CorrelationWidth, Height: CorrelationHeight,
+				Alt: fmt.Sprintf("correlation of PRN %d in %s", pp.PRN, rec.Capture),
+				Caption: fmt.Sprintf("PRN %d (%s): correlation power against arrival delay from its strongest peak; the marks are the two peaks, the second %+.2f chips and %.1f dB from the first.",
+					pp.PRN, e.Params.Kind, pp.DelayChips, pp.SecondDB)})
+		}
+	}
 	return nil
 }
 
@@ -422,6 +454,24 @@ func Detail(e detect.Event) string {
 	case detect.ClassCN0Drop:
 		return fmt.Sprintf("C/N0 %s dB-Hz, %s dB below the baseline %s, PRNs %v", num(p.CN0DBHz, 1, "%.1f"),
 			num(p.DropDB, 1, "%.1f"), num(p.BaselineDBHz, 1, "%.1f"), p.PRNs)
+	case detect.ClassSpoofing:
+		s := fmt.Sprintf("%s, PRNs %v, %s dB over the authentic signals", p.Kind, p.PRNs, num(p.PowerOverAuthenticDB, 1, "%.1f"))
+		if p.DelayChips != nil {
+			s += ", delay " + num(p.DelayChips, 1, "%.3f") + " chips"
+		}
+		keys := make([]string, 0, len(p.Indicators))
+		for k := range p.Indicators {
+			keys = append(keys, k)
+		}
+		sort.Strings(keys)
+		for i, k := range keys {
+			sep := "; "
+			if i > 0 {
+				sep = ", "
+			}
+			s += sep + k + " " + strconv.FormatFloat(p.Indicators[k], 'g', 4, 64)
+		}
+		return s
 	}
 	return ""
 }
