@@ -17,7 +17,9 @@
 // events as labelled boxes (sample_start … sample_start+sample_count by
 // offset ± bandwidth/2), the PSD against the site baseline, spectral
 // kurtosis with its thresholds, the power envelope with pulse arrivals,
-// and a site timeline over all captures. Close writes index.html (one
+// and a site timeline over all captures; for a spoofing event, one
+// picture per PRN of the correlation power against code phase with both
+// peaks marked (WriteCorrelation). Close writes index.html (one
 // html/template page with its CSS and a small self-check script inline,
 // allowed by a Content-Security-Policy that names their hashes and lets
 // the page load nothing but its own images) and report.json, which gives
@@ -33,7 +35,7 @@
 //	capture        capture name relative to the watched root (as in the event log)
 //	id             event id
 //	episode        episode id (shared across captures by one interference)
-//	class          cw, swept, pulsed, wideband_noise, narrowband_noise or cn0_drop
+//	class          cw, swept, pulsed, wideband_noise, narrowband_noise, cn0_drop or spoofing
 //	start, end     RFC 3339 UTC with nine fractional digits; empty if unknown
 //	duration_s     end − start in seconds; empty if unknown
 //	sample_start   first sample of the event in the capture
