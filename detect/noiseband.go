@@ -117,8 +117,10 @@ func bandFootprint(c, x *Finding, g *grid) bool {
 		// frames may stand several of its standard deviations above the
 		// band's density; a tone that is another emitter stands at least
 		// twice the band's power in the bins a tone covers.
+		// (A "band" not much wider than a tone is that tone, keyed or
+		// drifting: it explains nothing.)
 		w := float64(2*maxToneHalfWidth+1) * g.bin
-		return inside && jn <= 2*c.JN*w/math.Max(c.HighHz-c.LowHz, w)
+		return inside && c.HighHz-c.LowHz > 4*w && jn <= 2*c.JN*w/(c.HighHz-c.LowHz)
 	}
 	return false
 }
