@@ -269,6 +269,25 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 		inverted := stats.SpectrumInverted != nil && *stats.SpectrumInverted
 		tr.explainSatelliteLines(stats.Satellites, L1-center, inverted)
 	}
+	// A power rise the satellites did not feel is the recorder's gain
+	// (REFERENCES §11.2): a wideband_noise finding is then not reported,
+	// and the record says why.
+	power := NewPowerStats(&stats, measured, fs)
+	if pc, ok := ClassifyPowerCN0(measured, &base, power); ok && pc.Class == PowerCN0GainChange && !silent {
+		kept := tr.events[:0]
+		dropped := 0
+		for _, ev := range tr.events {
+			if ev.class == ClassWidebandNoise {
+				dropped++
+				continue
+			}
+			kept = append(kept, ev)
+		}
+		tr.events = kept
+		if dropped > 0 {
+			notes = append(notes, fmt.Sprintf("in-band power %+.1f dB over the site's with the satellites' C/N0 %+.1f dB: read as a gain change of the front end, not wideband noise", pc.PowerRiseDB, pc.CN0ChangeDB))
+		}
+	}
 	prev := p.state.episodes[key]
 	var stillOpen []openEpisode
 	episodes := map[*trackedEvent]string{}
@@ -321,7 +340,27 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 		res.Events = append(res.Events, drop)
 	}
 
+	// Spoofing and meaconing, from the satellites themselves.
+	if ev, ok := Spoofing(measured, &base, power, c.Start(), cfg); ok && st.gnssSkipped == "" && !silent {
+		ev.Capture, ev.SampleStart, ev.SampleCount = name, 0, c.FileSamples
+		ev.Start, ev.End = Time{c.SampleTime(0)}, Time{c.SampleTime(c.Samples)}
+		ev.PowerDBFS = stats.PowerDBFS
+		if hasCenter {
+			ev.CenterHz = ptr(center)
+		}
+		ev.ID = eventID(sha, ev.Class, 0, 0, fp)
+		ev.Episode = ev.ID
+		for _, o := range prev {
+			if o.class == ClassSpoofing && !o.end.IsZero() && ev.Start.Sub(o.end) <= episodeGap {
+				ev.Episode = o.id
+			}
+		}
+		p.state.episodes[key] = append(p.state.episodes[key], openEpisode{id: ev.Episode, class: ClassSpoofing, end: ev.End.Time})
+		res.Events = append(res.Events, ev)
+	}
+
 	if learnCN0(res.Events) && len(stats.Satellites) > 0 && measured.Unmeasured == "" && fault == nil {
+		p.state.Baselines.LearnSky(key, measured, power, c.Start(), cfg)
 		cn0 := map[int]float64{}
 		for _, s := range stats.Satellites {
 			cn0[s.PRN] = s.CN0DBHz
@@ -465,7 +504,7 @@ func frontEndFault(fe ingest.FrontEnd, drop *int64, c *ingest.Capture) *Fault {
 // present (a weak spur that is always there does not stop learning).
 func learnCN0(evs []Event) bool {
 	for _, e := range evs {
-		if e.Class == ClassCN0Drop || e.Class == ClassWidebandNoise {
+		if e.Class == ClassCN0Drop || e.Class == ClassWidebandNoise || e.Class == ClassSpoofing {
 			return false
 		}
 		if e.Impact != nil && e.Impact.CN0DegradationDB > 1 {

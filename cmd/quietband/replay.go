@@ -13,6 +13,7 @@ import (
 	"text/tabwriter"
 	"time"
 
+	"quietband/cmd/quietband/internal/report"
 	"quietband/detect"
 	"quietband/ingest"
 	"quietband/metrics/eventlog"
@@ -310,32 +311,9 @@ func printEvents(w io.Writer, events []detect.Event) {
 	tw.Flush()
 }
 
-// detail is the class-specific part of a table row.
-func detail(e detect.Event) string {
-	p := e.Params
-	switch e.Class {
-	case detect.ClassCW:
-		s := make([]string, 0, len(p.Tones))
-		for _, t := range p.Tones {
-			s = append(s, fmt.Sprintf("%+.3f kHz %.1f dB", t.OffsetHz/1e3, t.JNDB))
-		}
-		return fmt.Sprintf("%d tone(s): %s", len(p.Tones), strings.Join(s, ", "))
-	case detect.ClassSwept:
-		return fmt.Sprintf("%s sweep, period %.2f µs, %.3f..%.3f MHz, %.3g Hz/s", p.Shape, *p.SweepPeriodS*1e6,
-			*p.SweepLowHz/1e6, *p.SweepHighHz/1e6, *p.SweepRateHzPerS)
-	case detect.ClassPulsed:
-		s := fmt.Sprintf("%d pulses, width %.2f µs, PRI %.1f µs, duty %.2f %%", *p.Pulses, *p.PulseWidthS*1e6, *p.PRIS*1e6, *p.DutyCycle*100)
-		if p.PairSpacingS != nil {
-			s += fmt.Sprintf(", pairs %.1f µs apart", *p.PairSpacingS*1e6)
-		}
-		return s
-	case detect.ClassWidebandNoise, detect.ClassNarrowbandNoise:
-		return fmt.Sprintf("floor rise %.2f dB", *p.FloorRiseDB)
-	case detect.ClassCN0Drop:
-		return fmt.Sprintf("C/N0 %.1f dB-Hz, %.1f dB below baseline %.1f, PRNs %v", *p.CN0DBHz, *p.DropDB, *p.BaselineDBHz, p.PRNs)
-	}
-	return ""
-}
+// detail is the class-specific part of a table row: the report's
+// words, one renderer for the table, the report and the CSV.
+func detail(e detect.Event) string { return report.Detail(e) }
 
 func printSummary(w io.Writer, s *replaySummary) {
 	var classes []string

@@ -202,7 +202,7 @@ func TestDemo(t *testing.T) {
 		t.Fatalf("demo exit %d\n%s", code, out)
 	}
 	for _, want := range []string{"quay-0603.sigmf-meta  swept", "quay-0604.sigmf-meta  cw", "quay-0605.sigmf-meta  pulsed",
-		"quay-0606.sigmf-meta  wideband_noise", "cn0_drop", "8 capture(s), 0 bad"} {
+		"quay-0606.sigmf-meta  wideband_noise", "cn0_drop", "quay-0608.sigmf-meta  spoofing", "9 capture(s), 0 bad"} {
 		if !strings.Contains(out, want) {
 			t.Errorf("demo output lacks %q", want)
 		}

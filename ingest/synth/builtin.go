@@ -196,7 +196,9 @@ var builtins = map[string]func() Scenario{
 
 // Demo is the scenario of `quietband demo`: the clean morning at Kestrel
 // Quay, then a van with a chirp jammer passes, a mast-head amplifier spurs,
-// a pulsed emitter keys up, and a noise jammer raises the floor.
+// a pulsed emitter keys up, a noise jammer raises the floor, and, once the
+// sky is clear again, a spoofer on a passing boat counterfeits the
+// satellites.
 func Demo() Scenario {
 	return quayScenario("demo", "Kestrel Quay pilot station, one morning",
 		Capture{Name: "quay-0600"},
@@ -211,6 +213,7 @@ func Demo() Scenario {
 		Capture{Name: "quay-0606", Emitters: []Emitter{{Kind: KindWidebandNoise, Label: "noise jammer",
 			FloorRiseDB: 6}}},
 		Capture{Name: "quay-0607"},
+		Capture{Name: "quay-0608", Spoofers: []Spoofer{{Kind: SpoofCounterfeit, Label: "spoofer on a passing boat", CN0DBHz: 48}}},
 	)
 }
 

@@ -78,6 +78,11 @@ func TestUnchangedWithoutNewOptions(t *testing.T) {
 		if b, ok := strings.CutPrefix(name, "builtin/"); ok {
 			scenarios[name] = func() (*Scenario, error) {
 				s, err := Builtin(b)
+				if b == "demo" {
+					// The demo gained a ninth capture (a spoofer)
+					// after; its first eight stay as they were.
+					s.Captures = s.Captures[:8]
+				}
 				return &s, err
 			}
 		}
