@@ -5,6 +5,7 @@ import (
 	"math"
 	"path/filepath"
 	"slices"
+	"strings"
 	"testing"
 
 	"quietband/ingest"
@@ -117,6 +118,59 @@ func TestDemoScenarioAgainstTruth(t *testing.T) {
 			near("peak J/N dB", ev.JNDB, em.JNDB, 1)
 		case synth.KindWidebandNoise:
 			near("floor rise", *ev.Params.FloorRiseDB, em.FloorRiseDB, 0.3)
+		}
+	}
+}
+
+// TestPipelineGainChangeAndBlockedSky runs the whole pipeline (satellites
+// measured) over a site that learns three clean captures, then sees its
+// recorder's gain raised 3 dB, then its sky blocked by 8 dB. The power
+// against C/N0 matrix (REFERENCES §11.2) reads the first as a gain change:
+// no wideband_noise event, and a note saying why; the second as an
+// obstruction: cn0_drop and no interference event. A 6 dB noise jammer
+// after them still raises wideband_noise (the veto is not a blanket one).
+func TestPipelineGainChangeAndBlockedSky(t *testing.T) {
+	sky := synth.Demo().Captures[0].Satellites
+	caps := []synth.Capture{{Name: "a"}, {Name: "b", OffsetS: 60}, {Name: "c", OffsetS: 120}, {Name: "d", OffsetS: 150},
+		{Name: "gain", OffsetS: 180, FrontEnd: &synth.FrontEnd{GainDB: ptr(3.0)}},
+		{Name: "blocked", OffsetS: 240, AttenuationDB: 8},
+		{Name: "jammer", OffsetS: 300, Emitters: []synth.Emitter{{Kind: synth.KindWidebandNoise, FloorRiseDB: 6}}}}
+	for i := range caps {
+		caps[i].Satellites = sky
+	}
+	s := synth.Scenario{Name: "gain-blocked", Site: "test", Format: "ci16_le", SampleRate: 4e6, NoiseDBFS: -30, Seed: 61, Captures: caps}
+	p := NewPipeline(Config{}, nil)
+	p.GNSS = &GNSSMeter{}
+	_, results := processWith(t, s, p)
+	classes := func(r *Result) map[string]int {
+		m := map[string]int{}
+		for _, e := range r.Events {
+			m[e.Class]++
+		}
+		return m
+	}
+	for i, c := range caps {
+		got := classes(results[i])
+		switch c.Name {
+		case "gain":
+			if len(got) != 0 {
+				t.Errorf("gain change raised %v", got)
+			}
+			if !slices.ContainsFunc(results[i].Record.Notes, func(n string) bool { return strings.Contains(n, "gain change") }) {
+				t.Errorf("gain change: no note saying so: %q", results[i].Record.Notes)
+			}
+		case "blocked":
+			if got[ClassCN0Drop] != 1 || len(got) != 1 {
+				t.Errorf("blocked sky raised %v, want one cn0_drop and nothing else", got)
+			}
+		case "jammer":
+			if got[ClassWidebandNoise] != 1 {
+				t.Errorf("noise jammer raised %v, want wideband_noise", got)
+			}
+		default:
+			if len(got) != 0 {
+				t.Errorf("clean capture %s raised %v", c.Name, got)
+			}
 		}
 	}
 }
