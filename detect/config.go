@@ -40,9 +40,14 @@ type Config struct {
 	// nominal GPS L1 C/A receiver used for impact predictions. Default
 	// 2.046 MHz.
 	ReceiverBandwidthHz float64 `yaml:"receiver_bandwidth_hz" json:"receiver_bandwidth_hz"`
-	// Masks are known emitters to ignore, as offsets from the capture
-	// centre or absolute RF when Absolute is set.
+	// Masks are frequency ranges to ignore altogether (nothing in them is
+	// reported), as offsets from the capture centre or absolute RF when
+	// Absolute is set.
 	Masks []Mask `yaml:"masks" json:"masks,omitempty"`
+	// KnownEmitters are emitters the site accepts: their events are
+	// reported and logged with known: true and raise no alert (see
+	// KnownEmitter).
+	KnownEmitters []KnownEmitter `yaml:"known_emitters" json:"known_emitters,omitempty"`
 	// BaselineWeight is the weight of a new clean capture in the baseline
 	// average once the baseline holds BaselineWarmup captures. Default 0.1.
 	BaselineWeight float64 `yaml:"baseline_weight" json:"baseline_weight"`
@@ -139,6 +144,11 @@ func (c Config) Validate() error {
 	for i, m := range c.Masks {
 		if !(m.HighHz > m.LowHz) {
 			return fmt.Errorf("masks[%d]: high_hz must be above low_hz", i)
+		}
+	}
+	for i, k := range c.KnownEmitters {
+		if err := k.validate(); err != nil {
+			return fmt.Errorf("known_emitters[%d]: %w", i, err)
 		}
 	}
 	return nil

@@ -45,6 +45,11 @@ type Event struct {
 	// one in time and that the classifier links to it (a cn0_drop and the
 	// interference that explains it).
 	Related []string `json:"related,omitempty"`
+	// Known says that the site's configuration lists this emitter as
+	// known (Config.KnownEmitters): it is logged as always and raises no
+	// alert. KnownAs is the entry's label, when it has one.
+	Known   bool   `json:"known,omitempty"`
+	KnownAs string `json:"known_as,omitempty"`
 }
 
 // Params holds the class-specific parameters; only those of the event's

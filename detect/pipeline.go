@@ -311,6 +311,7 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 		if ev.openAtEnd {
 			stillOpen = append(stillOpen, openEpisode{id: e.Episode, class: e.Class, lo: ev.lo, hi: ev.hi, end: e.End.Time})
 		}
+		e.KnownAs, e.Known = knownAs(&e, cfg.KnownEmitters, center, hasCenter)
 		res.Events = append(res.Events, e)
 	}
 	p.state.episodes[key] = stillOpen

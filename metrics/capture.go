@@ -54,7 +54,23 @@ func (s *Set) ObserveCapture(c Capture) {
 		s.startTime.WithLabelValues(c.Input).Set(float64(c.Record.Start.UnixNano()) / 1e9)
 	}
 
-	open := OpenAtEnd(c.Events, c.Record.Samples, c.BlockSamples)
+	// Events of emitters the site lists as known are logged as always and
+	// raise no alert: they count in known_emitter_active, not in
+	// interference_active.
+	var news, known []detect.Event
+	for _, e := range c.Events {
+		if e.Known {
+			known = append(known, e)
+		} else {
+			news = append(news, e)
+		}
+	}
+	knownOpen := OpenAtEnd(known, c.Record.Samples, c.BlockSamples)
+	for _, class := range detect.Classes {
+		_, ok := knownOpen[class]
+		s.knownActive.WithLabelValues(c.Input, class).Set(b2f(ok))
+	}
+	open := OpenAtEnd(news, c.Record.Samples, c.BlockSamples)
 	for _, class := range detect.Classes {
 		jn, ok := open[class]
 		s.active.WithLabelValues(c.Input, class).Set(b2f(ok))

@@ -49,17 +49,18 @@ type Options struct {
 type Set struct {
 	reg *prometheus.Registry
 
-	active     *prometheus.GaugeVec // input, class
-	jn         *prometheus.GaugeVec // input, class
-	power      *prometheus.GaugeVec // input
-	noiseFloor *prometheus.GaugeVec
-	agc        *prometheus.GaugeVec
-	skMax      *prometheus.GaugeVec
-	clip       *prometheus.GaugeVec
-	cn0        *prometheus.GaugeVec // input, prn
-	cn0Mean    *prometheus.GaugeVec
-	satellites *prometheus.GaugeVec
-	startTime  *prometheus.GaugeVec
+	active      *prometheus.GaugeVec // input, class
+	knownActive *prometheus.GaugeVec // input, class
+	jn          *prometheus.GaugeVec // input, class
+	power       *prometheus.GaugeVec // input
+	noiseFloor  *prometheus.GaugeVec
+	agc         *prometheus.GaugeVec
+	skMax       *prometheus.GaugeVec
+	clip        *prometheus.GaugeVec
+	cn0         *prometheus.GaugeVec // input, prn
+	cn0Mean     *prometheus.GaugeVec
+	satellites  *prometheus.GaugeVec
+	startTime   *prometheus.GaugeVec
 	// Spoofing: per input and kind, the latest capture's spoofing event.
 	spoofActive *prometheus.GaugeVec   // input, kind
 	spoofPRNs   *prometheus.GaugeVec   // input
@@ -92,6 +93,8 @@ func New(opt Options) *Set {
 	}
 	s.active = gauge("interference_active",
 		"1 while an interference of the class is open at the end of the input's latest analysed capture, else 0.", "input", "class")
+	s.knownActive = gauge("known_emitter_active",
+		"1 while an emitter the site's configuration lists as known (detect known_emitters) is open at the end of the input's latest analysed capture, else 0; such events raise no interference_active.", "input", "class")
 	s.jn = gauge("jn_db",
 		"J/N of the open interference of the class (largest if several): interference over noise power in the capture bandwidth, in dB; absent while none is open.", "input", "class")
 	s.power = gauge("power_dbfs", "Mean power of the latest capture, dB relative to full scale.", "input")
@@ -169,6 +172,7 @@ func New(opt Options) *Set {
 	for _, in := range opt.Inputs {
 		for _, c := range detect.Classes {
 			s.active.WithLabelValues(in, c).Set(0)
+			s.knownActive.WithLabelValues(in, c).Set(0)
 		}
 		for _, k := range SpoofingKinds {
 			s.spoofActive.WithLabelValues(in, k).Set(0)

@@ -7,6 +7,7 @@ import (
 	"testing"
 	"time"
 
+	"github.com/prometheus/client_golang/prometheus"
 	"github.com/prometheus/client_golang/prometheus/testutil"
 
 	"quietband/detect"
@@ -420,5 +421,33 @@ func BenchmarkObserveCapture(b *testing.B) {
 		BlockSamples: block, Bytes: 200000, Duration: time.Second, Elapsed: time.Second / 5, Satellites: true, At: time.Now()}
 	for b.Loop() {
 		s.ObserveCapture(c)
+	}
+}
+
+// TestKnownEmitterRaisesNoAlert: an event of an emitter the site lists as
+// known (DESIGN: `known` … raises no alert) sets known_emitter_active, not
+// interference_active; a new emitter of the same class beside it does.
+func TestKnownEmitterRaisesNoAlert(t *testing.T) {
+	s := newTestSet(t, false)
+	spur := event(detect.ClassCW, 0, 100000, -10)
+	spur.Known, spur.KnownAs = true, "mast-head amplifier spur"
+	s.ObserveCapture(Capture{Input: "roof", Record: okRecord("a.ci8"), Events: []detect.Event{spur}, BlockSamples: block})
+	get := func(name, class string) float64 {
+		var g *prometheus.GaugeVec
+		switch name {
+		case "known":
+			g = s.knownActive
+		default:
+			g = s.active
+		}
+		return testutil.ToFloat64(g.WithLabelValues("roof", class))
+	}
+	if get("active", detect.ClassCW) != 0 || get("known", detect.ClassCW) != 1 {
+		t.Errorf("known spur: interference_active %v, known_emitter_active %v; want 0 and 1", get("active", detect.ClassCW), get("known", detect.ClassCW))
+	}
+	jammer := event(detect.ClassCW, 0, 100000, 20)
+	s.ObserveCapture(Capture{Input: "roof", Record: okRecord("b.ci8"), Events: []detect.Event{spur, jammer}, BlockSamples: block})
+	if get("active", detect.ClassCW) != 1 || get("known", detect.ClassCW) != 1 {
+		t.Errorf("known spur and a new tone: interference_active %v, known_emitter_active %v; want 1 and 1", get("active", detect.ClassCW), get("known", detect.ClassCW))
 	}
 }
