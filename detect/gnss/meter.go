@@ -175,15 +175,39 @@ type Meter struct {
 	resulted bool
 
 	// The site (carried from capture to capture while fs and fc stay).
-	site struct {
-		clockKnown bool
-		clockHz    float64 // recorded frame (acquisition search centre)
-		count      int     // satellites acquired then
-		powerDB    float64 // snapshot power when satellites were last measured
-		hasPower   bool
-		invKnown   bool
-		inv        bool
+	site Site
+}
+
+// Site is what a Meter has learned of one input's site from its earlier
+// captures: the receiver clock offset that centres the next search (and
+// how many satellites it was measured on), the snapshot power when
+// satellites were last measured, and the spectrum orientation. It is
+// opaque: a caller that measures several inputs with one Meter keeps each
+// input's Site (Meter.Site after the capture's Result) and gives it back
+// before the input's next capture (Meter.SetSite after Start). The zero
+// Site knows nothing.
+type Site struct {
+	fs, fc     float64 // rate and centre it was learned at
+	clockKnown bool
+	clockHz    float64 // recorded frame (acquisition search centre)
+	count      int     // satellites acquired then
+	powerDB    float64 // snapshot power when satellites were last measured
+	hasPower   bool
+	invKnown   bool
+	inv        bool
+}
+
+// Site returns what the Meter knows of the site of its current input.
+func (m *Meter) Site() Site { return m.site }
+
+// SetSite makes s what the Meter knows of the site; call it after Start.
+// A Site learned at another rate or centre than the current capture's, or
+// the zero Site, leaves the Meter knowing nothing.
+func (m *Meter) SetSite(s Site) {
+	if m.acq == nil || s.fs != m.fs || s.fc != m.fc {
+		s = Site{fs: m.fs, fc: m.fc}
 	}
+	m.site = s
 }
 
 // NewMeter returns a Meter with configuration cfg.
@@ -211,7 +235,7 @@ func (m *Meter) Start(fs, centerHz float64) error {
 	m.mit = NewMitigator(fs)
 	m.snap = make([]complex64, a.SnapshotLen())
 	m.clean = make([]complex64, a.SnapshotLen())
-	m.site.clockKnown, m.site.invKnown, m.site.hasPower = false, false, false
+	m.site = Site{fs: fs, fc: centerHz}
 	return nil
 }
 

@@ -233,3 +233,41 @@ func TestMeterShortCaptures(t *testing.T) {
 		})
 	}
 }
+
+// TestMeterSite: what a Meter learned of a site (Site) centres the next
+// search only where it is given back (SetSite): the zero Site, or one
+// learned at another rate, leaves the whole clock range to search (the
+// search window of TestMeterClockOffset: wide while the offset is
+// unknown, narrow around it afterwards).
+func TestMeterSite(t *testing.T) {
+	const fs = 4e6
+	rng := rand.New(rand.NewPCG(73, 1))
+	sats := skyWithClock(rng, []float64{43, 46, 49}, 8000)
+	c := synthesize(rng, fs, gpsca.L1, 1, int(0.15*fs), sats)
+	m := NewMeter(MeterConfig{})
+	if r := measure(t, m, fs, c.x, 65536); !r.WideSearch || !r.HasClock {
+		t.Fatalf("first capture: wide search %v, clock %v", r.WideSearch, r.HasClock)
+	}
+	learned := m.Site()
+	other := NewMeter(MeterConfig{})
+	measure(t, other, 2*fs, make([]complex64, int(0.02*fs)), 65536)
+	elsewhere := other.Site()
+	for _, tc := range []struct {
+		name string
+		site Site
+		wide bool
+	}{{"given back", learned, false}, {"zero", Site{}, true}, {"another rate", elsewhere, true}} {
+		if err := m.Start(fs, gpsca.L1); err != nil {
+			t.Fatal(err)
+		}
+		m.SetSite(tc.site)
+		for i := 0; i < len(c.x); i += 65536 {
+			m.Block(int64(i), c.x[i:min(i+65536, len(c.x))])
+		}
+		r := m.Result()
+		if r.WideSearch != tc.wide {
+			t.Errorf("%s: wide search %v, want %v", tc.name, r.WideSearch, tc.wide)
+		}
+		checkSats(t, tc.name, r, sats)
+	}
+}
