@@ -30,7 +30,8 @@ func goroutineID() uint64 {
 }
 
 // spyMeter is a GNSSMeter that records on which goroutines Start and Block
-// run, and counts the blocks it is given.
+// run, and counts the blocks it is given. The pipeline calls Start on the
+// spectral pass's goroutine.
 type spyMeter struct {
 	GNSSMeter
 	mu      sync.Mutex
@@ -39,11 +40,11 @@ type spyMeter struct {
 	blocks  int
 }
 
-func (m *spyMeter) Start(fs, center float64, has bool) string {
+func (m *spyMeter) Start(site string, fs, center float64, has bool) string {
 	m.mu.Lock()
 	m.startG, m.blockGs = goroutineID(), map[uint64]bool{}
 	m.mu.Unlock()
-	return m.GNSSMeter.Start(fs, center, has)
+	return m.GNSSMeter.Start(site, fs, center, has)
 }
 
 func (m *spyMeter) Block(start int64, x []complex64) {
@@ -91,12 +92,13 @@ func withProcs(n int, f func()) {
 // TestConcurrentMeterMatchesInline processes the same captures (with
 // satellites, clean and with a CW, a chirp jammer and wideband noise; and
 // raw captures without a centre frequency, whose satellites are skipped)
-// three ways: the meter inline on one CPU, inline by GNSSInline on
-// two, and on its own goroutine on two. Events, capture records
-// (satellites included) and block counts must be identical, and the meter
-// must have run where intended. The satellites found in clean captures
-// must be the synthesizer's (the truth: PRNs 4, 9, 17, 28), and each
-// jammed capture must raise an event of its emitter's class.
+// in every placement of the meter: SatellitesAuto on one CPU (in the
+// pass) and on two (its own read), SatellitesInPass on two,
+// SatellitesOwnRead on one. Events, capture records (satellites included)
+// and block counts must be identical, and the meter must have run where
+// intended. The satellites found in clean captures must be the
+// synthesizer's (the truth: PRNs 4, 9, 17, 28), and each jammed capture
+// must raise an event of its emitter's class.
 func TestConcurrentMeterMatchesInline(t *testing.T) {
 	const fs, dur = 4e6, 0.25
 	caps := func(em ...[]synth.Emitter) []synth.Capture {
@@ -117,9 +119,8 @@ func TestConcurrentMeterMatchesInline(t *testing.T) {
 		skipped bool
 	}{
 		// Clean captures teach the baselines (spectral and C/N0) between
-		// the jammed ones. ci16_le has the meter decode the raw bytes
-		// itself (where the vector decoder runs), cf32_le hands it the
-		// Reader's samples (KeepBlocks).
+		// the jammed ones; two sample formats (the own read decodes the
+		// file itself: the vector decoder for ci16_le).
 		{"jammers", "ci16_le", caps(nil, nil, cw, nil, chirp, wide), false, false},
 		{"jammers cf32", "cf32_le", caps(nil, cw, chirp), false, false},
 		{"raw, no centre", "ci16_le", caps(nil, nil), true, true},
@@ -130,17 +131,18 @@ func TestConcurrentMeterMatchesInline(t *testing.T) {
 			s.Seed, s.Captures, s.Raw = 31, tc.caps, tc.raw
 			captures := openAll(t, s, ingest.RawSettings{SampleRate: fs})
 			type way struct {
-				name   string
-				procs  int
-				inline bool
-				own    bool // the meter runs on its own goroutine
+				name  string
+				procs int
+				where SatellitePlacement
+				own   bool // the meter runs on its own goroutine
 			}
-			ways := []way{{"one CPU", 1, false, false}, {"GNSSInline", 2, true, false}, {"own goroutine", 2, false, true}}
+			ways := []way{{"auto, one CPU", 1, SatellitesAuto, false}, {"auto, two CPUs", 2, SatellitesAuto, true},
+				{"in pass, two CPUs", 2, SatellitesInPass, false}, {"own read, one CPU", 1, SatellitesOwnRead, true}}
 			var results [][]*Result
 			for _, w := range ways {
 				m := &spyMeter{}
 				p := NewPipeline(Config{}, nil)
-				p.GNSS, p.GNSSInline = m, w.inline
+				p.GNSS, p.SatellitePlacement = m, w.where
 				var rs []*Result
 				withProcs(w.procs, func() {
 					for i, c := range captures {
@@ -211,14 +213,14 @@ func (o *cancelAfter) Block(*BlockInput, []Finding) {
 	}
 }
 
-// meterGoroutines counts the goroutines startMeterSide started (running
-// or about to), from a dump of every goroutine's stack.
+// meterGoroutines counts the goroutines startSatellites started for an
+// own read (running or about to), from a dump of every goroutine's stack.
 func meterGoroutines() int {
 	buf := make([]byte, 1<<20)
 	for {
 		n := runtime.Stack(buf, true)
 		if n < len(buf) {
-			return bytes.Count(buf[:n], []byte("created by quietband/detect.startMeterSide"))
+			return bytes.Count(buf[:n], []byte("created by quietband/detect.startSatellites"))
 		}
 		buf = make([]byte, 2*len(buf))
 	}
@@ -226,7 +228,7 @@ func meterGoroutines() int {
 
 // TestConcurrentMeterStops: a cancelled context or a read error mid-way
 // (the data file cut after Open) ends the pass with the error; the meter's
-// goroutine has ended by the time the call returns (no Block call after
+// own read (SatellitesAuto on two CPUs) has ended by the time the call returns (no Block call after
 // it, no goroutine of the meter left) and the pipeline measures
 // the next capture as if nothing had happened.
 func TestConcurrentMeterStops(t *testing.T) {
@@ -268,7 +270,7 @@ func TestConcurrentMeterStops(t *testing.T) {
 		for _, tc := range cases {
 			t.Run(tc.name, func(t *testing.T) {
 				ref := NewPipeline(Config{}, nil)
-				ref.GNSS, ref.GNSSInline = &GNSSMeter{}, true
+				ref.GNSS, ref.SatellitePlacement = &GNSSMeter{}, SatellitesInPass
 				want, err := ref.Process(context.Background(), captures[1], "b")
 				if err != nil {
 					t.Fatal(err)
@@ -317,8 +319,9 @@ func TestConcurrentMeterStops(t *testing.T) {
 // BenchmarkProcessMeasured is the whole pipeline on one 1 s capture at
 // 10 MS/s ci16_le with the four satellites of sky(): read, hashes,
 // spectral bank and satellites (acquisition and C/N0). Run with -cpu 1,2:
-// one CPU measures the satellites inline, more on a goroutine of their
-// own. rt is the real-time factor (capture seconds per second).
+// one CPU measures the satellites in the pass, more on a read of their
+// own (SatellitesAuto). rt is the real-time factor (capture seconds per
+// second).
 func BenchmarkProcessMeasured(b *testing.B) {
 	const fs = 10e6
 	c := writeOne(b, baseScenario(fs, "ci16_le", 1))

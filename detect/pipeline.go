@@ -9,9 +9,6 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"runtime"
-	"strings"
-	"sync/atomic"
 	"time"
 
 	"quietband/ingest"
@@ -30,15 +27,17 @@ const Version = "quietband-detect/1"
 type Pipeline struct {
 	cfg   Config
 	state *State
-	// GNSS, when set, measures the satellites of each capture; see
-	// SatelliteMeter. With more than one CPU (GOMAXPROCS) it runs on a
-	// goroutine of its own beside the spectral pass, fed the same blocks
-	// of the same single read in the same order, so that its result is
-	// the one it would give inline.
+	// GNSS, when set, measures the satellites of each capture (see
+	// SatelliteMeter), where SatellitePlacement says; the meter keeps
+	// what it learns apart per baseline key.
 	GNSS SatelliteMeter
-	// GNSSInline, when set, keeps the GNSS meter on the spectral pass's
-	// goroutine whatever the number of CPUs (one goroutine of analysis per
-	// capture, for callers that run several pipelines at once).
+	// SatellitePlacement says where GNSS runs: in the spectral pass or on
+	// a read of its own beside it (SatellitesAuto: by GOMAXPROCS). The
+	// records are the same either way.
+	SatellitePlacement SatellitePlacement
+	// GNSSInline is SatellitePlacement = SatellitesInPass.
+	//
+	// Deprecated: set SatellitePlacement (kept for tests not yet moved).
 	GNSSInline bool
 	banks      map[string]*bank
 
@@ -54,18 +53,6 @@ type BlockObserver interface {
 	Begin(c *ingest.Capture, blockLen, fftSize int)
 	// Block sees one block: its features, references, SK and findings.
 	Block(in *BlockInput, findings []Finding)
-}
-
-// SatelliteMeter measures satellites in a capture (acquisition on a
-// snapshot, then C/N0 over the blocks). The pipeline feeds it every block.
-type SatelliteMeter interface {
-	// Start prepares for a capture; skip is a reason to measure nothing.
-	Start(fs, centerHz float64, hasCenter bool) (skip string)
-	// Block takes the next block of samples.
-	Block(start int64, x []complex64)
-	// Measurement returns what was measured: the satellites, the
-	// receiver's clock offset, the spectrum orientation, notes.
-	Measurement() SatelliteResult
 }
 
 // Result is the outcome of one capture.
@@ -119,16 +106,9 @@ func (p *Pipeline) Fingerprint(fs float64) string {
 
 // Process analyses one capture. name is the capture's name relative to the
 // watched root (it goes into the records). A read error mid-way returns the
-// error; nothing is learned from such a capture.
+// error; nothing is learned from such a capture. The GNSS meter, if any,
+// measures the satellites during the pass (see SatellitePlacement).
 func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) (*Result, error) {
-	return p.ProcessMeasured(ctx, c, name, nil)
-}
-
-// ProcessMeasured is Process with the satellites already measured (by
-// MeasureSatellites, perhaps still running: sats is called once, after
-// the spectral pass, and may wait for it); with sats nil, the pipeline's
-// own GNSS meter, if any, measures them during the pass.
-func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name string, sats func() (SatelliteResult, error)) (*Result, error) {
 	t0 := time.Now()
 	fs := c.SampleRate
 	cfg := p.cfg.Defaults(fs)
@@ -152,34 +132,14 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 		p.Observer.Begin(c, blockLen, cfg.FFTSize)
 	}
 	st, tr, in := &b.st, b.tr, &b.in
-	meter := p.GNSS
-	if sats != nil {
-		meter = nil
-	} else if meter != nil {
-		if why := meter.Start(fs, center, hasCenter); why != "" {
-			st.gnssSkipped = why
-		}
+	where := p.SatellitePlacement
+	if p.GNSSInline {
+		where = SatellitesInPass
 	}
-	inline := meter != nil && st.gnssSkipped == ""
-	var side *meterSide
-	if inline && !p.GNSSInline && runtime.GOMAXPROCS(0) > 1 {
-		inline = false
-		q := meterQueue(blockLen)
-		var decode *decodeFor
-		if c.Format.CheapDecode() {
-			// The meter decodes the raw bytes itself, into a buffer of its
-			// own: half the bytes cross between the CPUs, and neither side
-			// writes memory the other has in its cache.
-			r.KeepRaw(q + 2)
-			decode = &decodeFor{format: c.Format, buf: make([]complex64, blockLen)}
-		} else {
-			r.KeepBlocks(q + 2)
-		}
-		side = startMeterSide(meter, q, decode)
-		// On every early return: stop the meter and wait for it, so that
-		// no goroutine outlives the call or reads a block after it.
-		defer side.stop()
-	}
+	sats := startSatellites(ctx, c, p.GNSS, key, blockLen, where)
+	// On every early return: abandon the satellites' own read and wait
+	// for it, so that no goroutine outlives the call.
+	defer sats.stop()
 	for {
 		if err := ctx.Err(); err != nil {
 			return nil, err
@@ -191,37 +151,19 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 		if err != nil {
 			return nil, err
 		}
-		if side != nil {
-			side.blocks <- blk
-		}
 		if blk.Start == 0 {
 			lv := r.Levels()
 			b.lowBit = lv.LowBit()
 			b.lowT, _ = lv.Threshold()
 		}
 		b.block(blk, p.Observer)
-		if inline {
-			meter.Block(blk.Start, blk.Samples)
-		}
-	}
-	if side != nil {
-		side.join()
+		sats.block(blk)
 	}
 	sha := r.SHA256()
 	tr.finish()
-	var measured SatelliteResult
-	switch {
-	case sats != nil:
-		m, err := sats()
-		if err != nil {
-			return nil, err
-		}
-		measured = m
-	case meter != nil && st.gnssSkipped == "":
-		measured = meter.Measurement()
-	case st.gnssSkipped != "":
-		measured.Skipped = st.gnssSkipped
-		measured.Notes = []string{"satellites not measured: " + strings.TrimPrefix(st.gnssSkipped, "skipped: ")}
+	measured, err := sats.result()
+	if err != nil {
+		return nil, err
 	}
 	st.gnssSkipped = measured.Skipped
 
@@ -406,76 +348,6 @@ func (p *Pipeline) ProcessMeasured(ctx context.Context, c *ingest.Capture, name 
 	res.Record = rec
 	res.Elapsed = time.Since(t0)
 	return res, nil
-}
-
-// meterQueue is how many blocks the satellite meter, on its own
-// goroutine, may lag behind the spectral pass before the spectral pass
-// waits for it. The Reader keeps meterQueue+2 sample buffers: when the
-// spectral pass has handed block j over, the meter holds at most blocks
-// j−q … j (q queued, one in hand), and the next Next refills the buffer of
-// block j+1−(q+2), which is older. The queue lets the spectral pass go on
-// while the meter acquires on the first 10 ms, which takes about as long
-// as the spectral pass over 40 blocks: up to 24 blocks, within
-// meterQueueBytes of samples. Measured (BenchmarkReplayModes
-// sha512=false, inline and beside alternately at -cpu 2, three runs each
-// on a shared machine): beside over inline 1.18× with a queue of 2 blocks,
-// 1.33× with 24.
-func meterQueue(blockLen int) int {
-	return max(2, min(24, meterQueueBytes/(8*max(blockLen, 1))))
-}
-
-// meterQueueBytes bounds the samples queued for the meter: 16 MiB, 16
-// blocks of 1 MiB at 10 MS/s, 8 of 2 MiB at 20 MS/s.
-const meterQueueBytes = 16 << 20
-
-// meterSide runs a SatelliteMeter on a goroutine of its own, fed blocks in
-// order through a bounded channel.
-type meterSide struct {
-	blocks  chan ingest.Block
-	done    chan struct{}
-	aborted atomic.Bool
-	closed  bool
-}
-
-// decodeFor, when set, makes the meter's goroutine decode each block's
-// raw bytes itself into buf.
-type decodeFor struct {
-	format ingest.Format
-	buf    []complex64
-}
-
-func startMeterSide(m SatelliteMeter, queue int, dec *decodeFor) *meterSide {
-	s := &meterSide{blocks: make(chan ingest.Block, queue), done: make(chan struct{})}
-	go func() {
-		defer close(s.done)
-		for blk := range s.blocks {
-			if s.aborted.Load() {
-				continue
-			}
-			x := blk.Samples
-			if dec != nil {
-				x = dec.buf[:len(blk.Raw)/dec.format.SampleBytes()]
-				dec.format.Decode(x, blk.Raw)
-			}
-			m.Block(blk.Start, x)
-		}
-	}()
-	return s
-}
-
-// join waits for the meter to take every block sent.
-func (s *meterSide) join() {
-	if !s.closed {
-		s.closed = true
-		close(s.blocks)
-	}
-	<-s.done
-}
-
-// stop makes the meter skip the blocks still queued and waits for it.
-func (s *meterSide) stop() {
-	s.aborted.Store(true)
-	s.join()
 }
 
 // frontEndFault turns the front-end check of a capture (and a sample drop

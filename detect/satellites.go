@@ -3,8 +3,10 @@ package detect
 import (
 	"context"
 	"errors"
+	"fmt"
 	"io"
 	"math"
+	"runtime"
 	"sort"
 	"strings"
 
@@ -19,14 +21,17 @@ import (
 // while the site's clock offset is unknown and around it afterwards; then
 // C/N0 tracking of the acquired satellites over every block, in the
 // spectrum orientation the satellites show (package gnss documents each
-// step). It keeps the site's clock offset and spectrum orientation from
-// capture to capture: use one GNSSMeter per input (a fresh one per
-// capture searches the whole clock range every time, which costs about
-// 30 % more at 10 MS/s and finds the same satellites with the same
-// values on an upright input; on an inverted one it finds the orientation
-// anew and measures C/N0 on 60 fewer prompts). Memory is two
-// snapshots, and one block when the interference is strong enough that
-// tracking runs on mitigated blocks. A GNSSMeter is used by one pipeline
+// step). It keeps each site's clock offset and spectrum orientation
+// (gnss.Site) from capture to capture, apart for every site key that
+// Start is given (the pipeline gives the capture's baseline key), so that
+// one GNSSMeter serves several inputs without one's state centring
+// another's search (a meter that knew nothing would search the whole
+// clock range every time, which costs about 30 % more at 10 MS/s and
+// finds the same satellites with the same values on an upright input; on
+// an inverted one it would find the orientation anew and measure C/N0 on
+// 60 fewer prompts). Memory is two snapshots, and one block when the
+// interference is strong enough that tracking runs on mitigated blocks,
+// plus a few dozen bytes per site. A GNSSMeter is used by one pipeline
 // at a time.
 //
 // Result returns the satellites; Measurement returns everything measured
@@ -45,11 +50,13 @@ type GNSSMeter struct {
 	m      *gnss.Meter
 	skip   string
 	cached *SatelliteResult
+	site   string               // the current capture's site key
+	sites  map[string]gnss.Site // what each site taught the meter
 }
 
 // Start implements SatelliteMeter.
-func (m *GNSSMeter) Start(fs, centerHz float64, hasCenter bool) string {
-	m.cached, m.skip = nil, ""
+func (m *GNSSMeter) Start(site string, fs, centerHz float64, hasCenter bool) string {
+	m.cached, m.skip, m.site = nil, "", site
 	if !hasCenter {
 		m.skip = "skipped: the capture's centre frequency is unknown"
 		return m.skip
@@ -73,6 +80,7 @@ func (m *GNSSMeter) Start(fs, centerHz float64, hasCenter bool) string {
 		}
 		return m.skip
 	}
+	m.m.SetSite(m.sites[site])
 	return ""
 }
 
@@ -104,6 +112,10 @@ func (m *GNSSMeter) Measurement() SatelliteResult {
 		r.Notes = []string{"satellites not measured: " + strings.TrimPrefix(m.skip, "skipped: ")}
 	case m.m != nil:
 		g := m.m.Result()
+		if m.sites == nil {
+			m.sites = map[string]gnss.Site{}
+		}
+		m.sites[m.site] = m.m.Site()
 		for _, s := range g.Satellites {
 			r.Satellites = append(r.Satellites, Satellite{System: "GPS", PRN: s.PRN, CN0DBHz: s.CN0dBHz,
 				DopplerHz: s.DopplerHz, CodePhaseChips: s.CodePhaseChips, Method: s.Method})
@@ -291,15 +303,152 @@ type SatelliteResult struct {
 	CodeRates []gnss.CodeRate
 }
 
-// MeasureSatellites reads a capture on its own and measures its
-// satellites with m. It depends on nothing but the capture, so replay runs
-// it for several captures at once (one meter each) ahead of the spectral
-// pass, which must go in time order.
+// SatelliteMeter measures satellites in a capture (acquisition on a
+// snapshot, then C/N0 over the blocks), given every block in order by a
+// satelliteRun (the pipeline's) or MeasureSatellites.
+type SatelliteMeter interface {
+	// Start prepares for a capture of the given site (a key for what
+	// the meter learns of one input from capture to capture: the
+	// pipeline gives the capture's baseline key); skip is a reason to
+	// measure nothing.
+	Start(site string, fs, centerHz float64, hasCenter bool) (skip string)
+	// Block takes the next block of samples.
+	Block(start int64, x []complex64)
+	// Measurement returns what was measured: the satellites, the
+	// receiver's clock offset, the spectrum orientation, notes.
+	Measurement() SatelliteResult
+}
+
+// SatellitePlacement says where the pipeline measures a capture's
+// satellites. Either way the meter is given the same blocks (the same
+// length, start and samples) in the same order, one capture after the
+// other, so the records do not depend on it.
+type SatellitePlacement int
+
+const (
+	// SatellitesAuto is SatellitesInPass with one CPU (GOMAXPROCS 1) and
+	// SatellitesOwnRead with more.
+	SatellitesAuto SatellitePlacement = iota
+	// SatellitesInPass gives the meter each block of the spectral pass's
+	// read, on the pass's goroutine, after the detectors: one read, one
+	// goroutine of analysis per capture.
+	SatellitesInPass
+	// SatellitesOwnRead has the meter read the capture itself (a Reader
+	// of its own, without hashing or front-end check) on a goroutine of
+	// its own while the spectral pass runs; the pass waits for it after
+	// its last block. The capture is read and decoded twice (from the
+	// page cache the second time), and the two sides share no memory.
+	SatellitesOwnRead
+)
+
+func (p SatellitePlacement) String() string {
+	switch p {
+	case SatellitesAuto:
+		return "auto"
+	case SatellitesInPass:
+		return "in-pass"
+	case SatellitesOwnRead:
+		return "own-read"
+	}
+	return fmt.Sprintf("SatellitePlacement(%d)", int(p))
+}
+
+// satelliteRun is one capture's satellite measurement: the one route from
+// a capture to a SatelliteMeter, in the spectral pass (block, then result)
+// or on a read of its own (result waits for it).
+type satelliteRun struct {
+	meter  SatelliteMeter // nil: satellites not measured
+	skip   string         // the meter's reason to measure nothing
+	inPass bool
+	done   chan struct{} // closed when the own read has ended
+	cancel context.CancelFunc
+	res    SatelliteResult
+	err    error
+}
+
+// startSatellites starts measuring c's satellites with m (nil: none) for
+// site, in blocks of blockLen, where says. Call stop when done (it
+// abandons an own read still running), result for the measurement.
+func startSatellites(ctx context.Context, c *ingest.Capture, m SatelliteMeter, site string, blockLen int, where SatellitePlacement) *satelliteRun {
+	s := &satelliteRun{meter: m}
+	if m == nil {
+		return s
+	}
+	center, hasCenter := c.CenterHz()
+	if s.skip = m.Start(site, c.SampleRate, center, hasCenter); s.skip != "" {
+		return s
+	}
+	if where == SatellitesAuto {
+		where = SatellitesInPass
+		if runtime.GOMAXPROCS(0) > 1 {
+			where = SatellitesOwnRead
+		}
+	}
+	if where != SatellitesOwnRead {
+		s.inPass = true
+		return s
+	}
+	ctx, s.cancel = context.WithCancel(ctx)
+	s.done = make(chan struct{})
+	go func() {
+		defer close(s.done)
+		s.res, s.err = readSatellites(ctx, c, m, blockLen)
+	}()
+	return s
+}
+
+// block gives the meter the spectral pass's block, when it is measured
+// in the pass.
+func (s *satelliteRun) block(blk ingest.Block) {
+	if s.inPass {
+		s.meter.Block(blk.Start, blk.Samples)
+	}
+}
+
+// result returns the measurement, waiting for the own read if there is
+// one: an empty result when no meter was given, one with Skipped and a
+// note when the meter measured nothing.
+func (s *satelliteRun) result() (SatelliteResult, error) {
+	switch {
+	case s.meter == nil:
+		return SatelliteResult{}, nil
+	case s.skip != "":
+		return skippedResult(s.skip), nil
+	case s.done != nil:
+		<-s.done
+		return s.res, s.err
+	}
+	return s.meter.Measurement(), nil
+}
+
+// stop abandons the own read, if it is still running, and waits for its
+// goroutine to end: no Block call follows stop.
+func (s *satelliteRun) stop() {
+	if s.done != nil {
+		s.cancel()
+		<-s.done
+	}
+}
+
+func skippedResult(why string) SatelliteResult {
+	return SatelliteResult{Skipped: why, Notes: []string{"satellites not measured: " + strings.TrimPrefix(why, "skipped: ")}}
+}
+
+// MeasureSatellites reads a capture on its own, in blocks of blockLen,
+// and measures its satellites with m, on the calling goroutine (the
+// pipeline's SatellitesOwnRead, for callers without a pipeline). The
+// site given to m is the capture's format, rate and centre.
 func MeasureSatellites(ctx context.Context, c *ingest.Capture, m SatelliteMeter, blockLen int) (SatelliteResult, error) {
 	center, hasCenter := c.CenterHz()
-	if why := m.Start(c.SampleRate, center, hasCenter); why != "" {
-		return SatelliteResult{Skipped: why, Notes: []string{"satellites not measured: " + strings.TrimPrefix(why, "skipped: ")}}, nil
+	if why := m.Start(BaselineKey(c.Format.String(), c.SampleRate, center, hasCenter, 0), c.SampleRate, center, hasCenter); why != "" {
+		return skippedResult(why), nil
 	}
+	return readSatellites(ctx, c, m, blockLen)
+}
+
+// readSatellites gives m (started) every block of a read of c of its own
+// and returns its measurement.
+func readSatellites(ctx context.Context, c *ingest.Capture, m SatelliteMeter, blockLen int) (SatelliteResult, error) {
 	r, err := c.NewReader(blockLen)
 	if err != nil {
 		return SatelliteResult{}, err

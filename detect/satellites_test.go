@@ -6,6 +6,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"reflect"
 	"slices"
 	"strings"
 	"testing"
@@ -293,4 +294,95 @@ func TestCN0DropNotMeasured(t *testing.T) {
 // writeZeros writes n complex ci8 samples of value 0 (a dead front end).
 func writeZeros(path string, n int) error {
 	return os.WriteFile(path, make([]byte, 2*n), 0o644)
+}
+
+// measureAt measures a capture's satellites with m as a capture of site.
+func measureAt(t *testing.T, m *GNSSMeter, site string, c *ingest.Capture) SatelliteResult {
+	t.Helper()
+	center, has := c.CenterHz()
+	if why := m.Start(site, c.SampleRate, center, has); why != "" {
+		t.Fatalf("%s: meter skipped: %s", site, why)
+	}
+	r, err := readSatellites(context.Background(), c, m, 65536)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return r
+}
+
+// TestGNSSMeterSitesApart: one GNSSMeter measures two inputs of the same
+// rate, format and centre, captures interleaved (A, B, A, B), whose
+// receiver clocks differ by 16 kHz (A +9 kHz and its spectrum inverted,
+// B −7 kHz and upright; REFERENCES §12.5: a 5.7 and a 4.4 ppm
+// reference, within the ±15 kHz default search). Every capture's
+// satellites are found (the truth: sky()'s PRNs, tracked), its clock
+// offset lies within 20 Hz of the median of the satellites' upright
+// apparent Dopplers (computed: (L1 + f_D)/(1 + ε) − L1, the synthesizer's
+// model), and its orientation is its site's; and the results are those of
+// a meter per site, value for value: neither site's clock offset or
+// orientation reaches the other's search (a meter shared without site
+// keys starts B inverted after A and restarts it at 60 ms, measuring its
+// C/N0 on fewer prompts).
+func TestGNSSMeterSitesApart(t *testing.T) {
+	const fs, dur = 4e6, 0.25
+	type site struct {
+		name     string
+		clockHz  float64
+		inverted bool
+	}
+	sites := []site{{"A", 9000, true}, {"B", -7000, false}}
+	caps := map[string][]*ingest.Capture{}
+	for k, s := range sites {
+		sc := baseScenario(fs, "ci16_le", dur)
+		sc.Seed = uint64(61 + k)
+		ppm := -s.clockHz / 1575.42
+		inv := s.inverted
+		sc.FrontEnd = &synth.FrontEnd{ClockPPM: &ppm, SpectrumInverted: &inv}
+		sc.Captures = []synth.Capture{{Name: s.name + "0", DurationS: dur, Satellites: sky()},
+			{Name: s.name + "1", DurationS: dur, Satellites: sky(), OffsetS: 120}}
+		caps[s.name] = openAll(t, sc, ingest.RawSettings{})
+	}
+	shared := &GNSSMeter{}
+	own := map[string]*GNSSMeter{"A": {}, "B": {}}
+	for i := range 2 {
+		for _, s := range sites {
+			c := caps[s.name][i]
+			what := fmt.Sprintf("%s capture %d", s.name, i)
+			got := measureAt(t, shared, s.name, c)
+			want := measureAt(t, own[s.name], s.name, c)
+			if !reflect.DeepEqual(got, want) {
+				t.Errorf("%s: shared meter\n got  %+v\n want %+v (a meter of its own)", what, got, want)
+			}
+			var prns []int
+			for _, sat := range got.Satellites {
+				prns = append(prns, sat.PRN)
+				if sat.Method != MethodTracked {
+					t.Errorf("%s: PRN %d %s", what, sat.PRN, sat.Method)
+				}
+			}
+			if !slices.Equal(prns, []int{4, 9, 17, 28}) {
+				t.Errorf("%s: satellites %v, want PRNs 4 9 17 28 (the synthesized sky)", what, prns)
+			}
+			eps := -s.clockHz / 1575.42e6
+			var dop []float64
+			for _, sat := range sky() {
+				dop = append(dop, (1575.42e6+sat.DopplerHz)/(1+eps)-1575.42e6)
+			}
+			slices.Sort(dop)
+			truth := (dop[1] + dop[2]) / 2
+			if got.ClockOffsetHz == nil || math.Abs(*got.ClockOffsetHz-truth) > 20 {
+				t.Errorf("%s: clock offset %v, truth %.1f Hz", what, fmtPtr(got.ClockOffsetHz), truth)
+			}
+			if got.SpectrumInverted == nil || *got.SpectrumInverted != s.inverted {
+				t.Errorf("%s: spectrum inverted %v, want %v", what, fmtPtr(got.SpectrumInverted), s.inverted)
+			}
+		}
+	}
+}
+
+func fmtPtr[T any](p *T) string {
+	if p == nil {
+		return "nil"
+	}
+	return fmt.Sprint(*p)
 }

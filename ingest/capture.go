@@ -416,12 +416,11 @@ func unwrapPathError(err error) error {
 type Block struct {
 	Start int64 // index of Samples[0] in the capture
 	// Samples are the block's samples, owned by the Reader: valid until the
-	// next call of Next, or, after KeepBlocks(k), for the next k−1 calls
-	// (the Reader rotates among k buffers).
+	// next call of Next.
 	Samples []complex64
 	Clipped int // samples at a saturated code
 	// Raw are the block's bytes as read, owned by the Reader: valid until
-	// the next call of Next, or, after KeepRaw(k), for the next k−1 calls.
+	// the next call of Next.
 	Raw []byte
 }
 
@@ -448,8 +447,6 @@ type Reader struct {
 	noHash  bool
 	started bool // Next has been called
 	blk     []complex64
-	blks    [][]complex64 // KeepBlocks' rotation, blk among them; nil for one
-	nextBuf int           // index in blks of the buffer the next block fills
 	next    int64
 	left    int64 // samples still expected; <0 when unknown
 	sha256  hash.Hash
@@ -540,48 +537,6 @@ func (r *Reader) FrontEnd() (fe FrontEnd, ok bool) {
 // Levels); Measured is 0 before the first Next.
 func (r *Reader) Levels() Levels { return r.levels }
 
-// KeepBlocks makes the Reader rotate among k sample buffers, so that a
-// Block's Samples stay valid for the next k−1 calls of Next (a consumer on
-// another goroutine can still read a block while the caller fetches the
-// following ones). Memory for samples is k blocks. The default is k = 1.
-// Call it before the first Next; it panics if k < 1 or if Next was called.
-func (r *Reader) KeepBlocks(k int) {
-	if k < 1 {
-		panic("ingest: KeepBlocks needs k ≥ 1")
-	}
-	if r.started {
-		panic("ingest: KeepBlocks after Next")
-	}
-	if k == 1 {
-		r.blks = nil
-		return
-	}
-	r.blks = make([][]complex64, k)
-	r.blks[0] = r.blk
-	for i := 1; i < k; i++ {
-		r.blks[i] = samplePool.get(len(r.blk))
-	}
-	r.nextBuf = 0
-}
-
-// KeepRaw makes the Reader rotate among at least k raw buffers, so that a
-// Block's Raw bytes stay valid for the next k−1 calls of Next (a consumer
-// on another goroutine can decode them itself, into memory of its own,
-// while the caller fetches the following blocks). Memory for raw bytes is
-// k blocks. Call it before the first Next; it panics if k < 1 or if Next
-// was called.
-func (r *Reader) KeepRaw(k int) {
-	if k < 1 {
-		panic("ingest: KeepRaw needs k ≥ 1")
-	}
-	if r.started {
-		panic("ingest: KeepRaw after Next")
-	}
-	for len(r.bufs) < k {
-		r.bufs = append(r.bufs, rawPool.get(len(r.bufs[0])))
-	}
-}
-
 // hashDepth is how many blocks the hashing goroutines may lag behind Next;
 // the Reader then keeps hashDepth+1 raw buffers. Three rather than one:
 // when the hashing, the caller's pass and a third goroutine (the
@@ -671,7 +626,7 @@ func (r *Reader) hash(raw []byte) {
 }
 
 // rotate moves on to the next raw buffer, if there are several (for the
-// hashing goroutines, or KeepRaw's).
+// hashing goroutines).
 func (r *Reader) rotate() {
 	if len(r.bufs) > 1 {
 		r.cur = (r.cur + 1) % len(r.bufs)
@@ -748,10 +703,6 @@ func (r *Reader) Next() (Block, error) {
 		return Block{}, captureErr(r.name, "read error at byte offset %d: %w", r.next*int64(sb), err)
 	}
 	raw := r.raw[:want*sb]
-	if r.blks != nil {
-		r.blk = r.blks[r.nextBuf]
-		r.nextBuf = (r.nextBuf + 1) % len(r.blks)
-	}
 	samples := r.blk[:want]
 	clipped, bad := r.format.Decode(samples, raw)
 	r.hash(raw)
@@ -830,11 +781,6 @@ func (r *Reader) nextReal() (Block, error) {
 	}
 	v.pad(m0 + int64(want) + hbK)
 	samples := r.blk[:want]
-	if r.blks != nil {
-		r.blk = r.blks[r.nextBuf]
-		r.nextBuf = (r.nextBuf + 1) % len(r.blks)
-		samples = r.blk[:want]
-	}
 	v.output(samples, m0)
 	b := Block{Start: m0, Samples: samples, Clipped: clipped, Raw: raw}
 	r.next += int64(want)
@@ -950,11 +896,7 @@ func (r *Reader) Close() error {
 	}
 	// The buffers go back to the pools for the next Reader: no goroutine
 	// uses them any more, and the caller may not use a Block after Close.
-	if r.blks != nil {
-		for _, b := range r.blks {
-			samplePool.put(b)
-		}
-	} else if r.blk != nil {
+	if r.blk != nil {
 		samplePool.put(r.blk)
 	}
 	for _, b := range r.bufs {
@@ -963,7 +905,7 @@ func (r *Reader) Close() error {
 	if r.conv != nil {
 		r.conv.release()
 	}
-	r.blk, r.blks, r.bufs, r.raw = nil, nil, nil, nil
+	r.blk, r.bufs, r.raw = nil, nil, nil
 	if r.closer != nil {
 		return r.closer.Close()
 	}

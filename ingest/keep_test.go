@@ -4,7 +4,6 @@ import (
 	"bytes"
 	"crypto/sha256"
 	"crypto/sha512"
-	"encoding/binary"
 	"encoding/hex"
 	"errors"
 	"fmt"
@@ -17,109 +16,6 @@ import (
 	"testing"
 	"time"
 )
-
-// ci16Pattern returns n ci16_le samples of distinct codes and the values
-// they stand for: I = (7n mod 65536) − 32768, Q = −I − 1, each divided by
-// 2^15 (Q15 fixed point, the scaling of the Format documentation).
-func ci16Pattern(n int) ([]byte, []complex64) {
-	raw := make([]byte, 4*n)
-	want := make([]complex64, n)
-	for i := range n {
-		re := int16(int32(7*i%65536) - 32768)
-		im := -re - 1
-		binary.LittleEndian.PutUint16(raw[4*i:], uint16(re))
-		binary.LittleEndian.PutUint16(raw[4*i+2:], uint16(im))
-		want[i] = complex(float32(re)/32768, float32(im)/32768)
-	}
-	return raw, want
-}
-
-// TestReaderKeepBlocks: after KeepBlocks(k) every block returned still
-// holds its samples (the Q15 values of its codes) k−1 calls of Next later,
-// the k most recent blocks use k distinct buffers and block i shares its
-// buffer with block i−k (memory is k blocks, no more). With one, two and
-// three CPUs, as the raw buffers rotate differently when hashing runs on
-// its own goroutines.
-func TestReaderKeepBlocks(t *testing.T) {
-	cases := []struct {
-		k, block, n int
-	}{
-		{1, 100, 1000},
-		{2, 100, 1050}, // short last block
-		{3, 64, 1000},
-		{4, 128, 1000},
-		{6, 1000, 1000}, // more buffers than blocks
-	}
-	prev := runtime.GOMAXPROCS(0)
-	defer runtime.GOMAXPROCS(prev)
-	for _, procs := range []int{1, 2, 3} {
-		runtime.GOMAXPROCS(procs)
-		for _, tc := range cases {
-			t.Run(fmt.Sprintf("procs%d/k%d/block%d", procs, tc.k, tc.block), func(t *testing.T) {
-				raw, want := ci16Pattern(tc.n)
-				r := NewReader(bytes.NewReader(raw), "pattern.ci16", CI16LE, tc.block, int64(tc.n))
-				defer r.Close()
-				r.KeepBlocks(tc.k)
-				var blocks []Block
-				for {
-					b, err := r.Next()
-					if errors.Is(err, io.EOF) {
-						break
-					}
-					if err != nil {
-						t.Fatal(err)
-					}
-					blocks = append(blocks, b)
-					i := len(blocks) - 1
-					// Blocks i−k+1 … i are all intact.
-					for j := max(0, i-tc.k+1); j <= i; j++ {
-						bj := blocks[j]
-						for m, v := range bj.Samples {
-							if w := want[bj.Start+int64(m)]; v != w {
-								t.Fatalf("after block %d, block %d sample %d = %v, want %v", i, j, m, v, w)
-							}
-						}
-						if j < i && &bj.Samples[0] == &b.Samples[0] {
-							t.Fatalf("blocks %d and %d share a buffer with k = %d", j, i, tc.k)
-						}
-					}
-					if j := i - tc.k; j >= 0 && &blocks[j].Samples[0] != &b.Samples[0] {
-						t.Errorf("block %d does not reuse the buffer of block %d: more than k = %d buffers", i, j, tc.k)
-					}
-				}
-				if n := (tc.n + tc.block - 1) / tc.block; len(blocks) != n {
-					t.Errorf("%d blocks, want %d", len(blocks), n)
-				}
-			})
-		}
-	}
-}
-
-// TestKeepBlocksMisuse: k < 1, or a call after Next, is a programmer
-// error.
-func TestKeepBlocksMisuse(t *testing.T) {
-	raw, _ := ci16Pattern(10)
-	cases := []struct {
-		name string
-		do   func(r *Reader)
-		want string
-	}{
-		{"zero", func(r *Reader) { r.KeepBlocks(0) }, "k ≥ 1"},
-		{"after Next", func(r *Reader) { r.Next(); r.KeepBlocks(2) }, "after Next"},
-	}
-	for _, tc := range cases {
-		t.Run(tc.name, func(t *testing.T) {
-			r := NewReader(bytes.NewReader(raw), "x", CI16LE, 4, 10)
-			defer r.Close()
-			defer func() {
-				if p := recover(); p == nil || !strings.Contains(fmt.Sprint(p), tc.want) || !strings.HasPrefix(fmt.Sprint(p), "ingest:") {
-					t.Errorf("panic %v, want an ingest: panic mentioning %q", p, tc.want)
-				}
-			}()
-			tc.do(r)
-		})
-	}
-}
 
 // hashers counts the hashing goroutines (those the Reader's hash method
 // started, running or about to), from a dump of every goroutine's stack.
@@ -289,53 +185,5 @@ func TestReaderBuffersReused(t *testing.T) {
 	}
 	if got := len(p.free); got != maxPooledLengths {
 		t.Errorf("%d lengths kept, want at most %d", got, maxPooledLengths)
-	}
-}
-
-// TestReaderKeepRaw checks that after KeepRaw(k) a block's Raw bytes stay
-// those of its samples (each the little-endian ci16 code of its Q15 value)
-// for the next k−1 calls of Next, hashing or not, on one CPU or more.
-func TestReaderKeepRaw(t *testing.T) {
-	const n, block = 4096, 256
-	data := make([]byte, 4*n)
-	for i := range n {
-		binary.LittleEndian.PutUint16(data[4*i:], uint16(int16(i)))
-		binary.LittleEndian.PutUint16(data[4*i+2:], uint16(int16(-i)))
-	}
-	for _, procs := range []int{1, 2, 3} {
-		for _, skip := range []bool{false, true} {
-			for _, k := range []int{1, 2, 5} {
-				t.Run(fmt.Sprintf("procs=%d/skiphash=%v/k=%d", procs, skip, k), func(t *testing.T) {
-					defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(procs))
-					r := NewReader(bytes.NewReader(data), "raw", CI16LE, block, n)
-					defer r.Close()
-					if skip {
-						r.SkipHash()
-					}
-					r.KeepRaw(k)
-					var kept []Block
-					for {
-						blk, err := r.Next()
-						if err == io.EOF {
-							break
-						}
-						if err != nil {
-							t.Fatal(err)
-						}
-						kept = append(kept, blk)
-						// The last k blocks must still hold their own bytes.
-						for _, old := range kept[max(0, len(kept)-k):] {
-							want := data[4*old.Start : 4*(old.Start+int64(len(old.Samples)))]
-							if !bytes.Equal(old.Raw, want) {
-								t.Fatalf("block at %d: Raw changed %d blocks later", old.Start, len(kept)-1-int(old.Start)/block)
-							}
-						}
-					}
-					if !skip && r.SHA256() != fmt.Sprintf("%x", sha256.Sum256(data)) {
-						t.Error("SHA-256 of the data differs from crypto/sha256's")
-					}
-				})
-			}
-		}
 	}
 }

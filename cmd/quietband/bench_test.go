@@ -31,11 +31,11 @@ func BenchmarkReplay(b *testing.B) {
 }
 
 // BenchmarkReplayModes replays BenchmarkReplay's captures, with and
-// without a core:sha512 to check, in the three ways of measuring the
-// satellites, whatever -cpu says: inside the spectral pass (--workers 1),
-// beside it from the same read (2) and ahead of it on reads of their own
-// (aheadWorkers: two measuring goroutines). It is the measurement behind
-// aheadWorkers. rt as for BenchmarkReplay.
+// without a core:sha512 to check, in the two placements of the satellite
+// meter, whatever -cpu says: inside the spectral pass (--workers 1,
+// detect.SatellitesInPass) and on a read of its own beside it (2,
+// detect.SatellitesOwnRead). It is the measurement behind
+// satellitePlacement. rt as for BenchmarkReplay.
 func BenchmarkReplayModes(b *testing.B) {
 	dir := b.TempDir()
 	for _, sha512 := range []bool{false, true} {
@@ -48,7 +48,7 @@ func BenchmarkReplayModes(b *testing.B) {
 		for _, m := range []struct {
 			name    string
 			workers int
-		}{{"inline", 1}, {"beside", 2}, {"ahead", aheadWorkers}} {
+		}{{"in-pass", 1}, {"own-read", 2}} {
 			set := fmt.Sprintf("sha512=%v", sha512)
 			b.Run(set+"/"+m.name, func(b *testing.B) {
 				var audio float64

@@ -67,7 +67,7 @@ as quarantined, and replay goes on; the exit status is 1 if any was bad.`, errOu
 	asJSON := fs.Bool("json", false, "print the event-log records (JSON Lines) instead of the table")
 	baseline := fs.String("baseline", "", "baseline file: loaded if it exists, saved at the end")
 	quiet := fs.Bool("quiet", false, "no progress line on the terminal")
-	workers := fs.Int("workers", runtime.NumCPU(), "CPUs to analyse with: 1 measures the satellites inside the spectral pass; 2 or 3 measure them on a goroutine of their own beside it, from the same read; 4 or more measure those of the next captures ahead, on their own reads (the spectral pass and the log stay in time order; output does not depend on this)")
+	workers := fs.Int("workers", runtime.NumCPU(), "CPUs to analyse with: 1 measures the satellites inside the spectral pass; 2 or more on a read of their own beside it (the output does not depend on this)")
 	reportDir := fs.String("report", "", "write the analyst's report into this folder: index.html with PNG pictures beside it")
 	reportAll := fs.Bool("report-all", false, "with --report: draw every capture, not only those with events")
 	annotate := fs.Bool("annotate", false, "write each event as a SigMF annotation into a copy of its capture's metadata, --report folder/annotations/NAME.sigmf-meta (raw captures get none)")
@@ -166,15 +166,11 @@ func replay(ctx context.Context, o replayOptions) (*replaySummary, error) {
 		}
 	}
 	pipe := detect.NewPipeline(detect.Config{}, state)
-	// Every way feeds a meter the same blocks in the same order, so the
-	// records are the same whatever the number of workers.
-	var measured []chan measured
-	if o.workers >= aheadWorkers {
-		measured = measureAhead(ctx, jobs, pipe, o.workers-2)
-	} else {
-		pipe.GNSS = &detect.GNSSMeter{}
-		pipe.GNSSInline = o.workers <= 1
-	}
+	// One meter for every input: it keeps what it learns apart per
+	// baseline key. Either placement gives it the same blocks in the same
+	// order, so the records are the same whatever the number of workers.
+	pipe.GNSS = &detect.GNSSMeter{}
+	pipe.SatellitePlacement = satellitePlacement(o.workers)
 
 	logPath := o.logPath
 	if logPath == "" && o.json {
@@ -210,20 +206,8 @@ func replay(ctx context.Context, o replayOptions) (*replaySummary, error) {
 			fmt.Fprintf(o.errOut, "quietband replay: quarantined %s: %v\n", j.name, j.problem)
 			items = append(items, eventlog.Item{Kind: "capture", Body: quarantined(j.name, j.problem)})
 		} else {
-			var res *detect.Result
-			var err error
 			pipe.Observer = aout.observer()
-			if measured != nil {
-				// The spectral pass runs while the satellites are still
-				// being measured; it waits for them only at its end.
-				ch := measured[i]
-				res, err = pipe.ProcessMeasured(ctx, j.capture, j.name, func() (detect.SatelliteResult, error) {
-					sat := <-ch
-					return sat.result, sat.err
-				})
-			} else {
-				res, err = pipe.Process(ctx, j.capture, j.name)
-			}
+			res, err := pipe.Process(ctx, j.capture, j.name)
 			if err != nil {
 				sum.bad++
 				fmt.Fprintf(o.errOut, "quietband replay: quarantined %s: %v\n", j.name, err)
@@ -335,77 +319,21 @@ func printSummary(w io.Writer, s *replaySummary) {
 	}
 }
 
-// aheadWorkers is the fewest workers with which replay measures the
-// satellites of the next captures ahead of the spectral pass, on reads of
-// their own, rather than beside it from the same read.
-//
-// One capture keeps three goroutines busy: the spectral pass (which also
-// reads and decodes), the hashing (SHA-256 and, for SigMF with
-// core:sha512, SHA-512; two goroutines with more than two CPUs) and the
-// satellite meter beside the pass. Measuring ahead costs a second read and
-// decode of every capture, and in exchange the pass never waits for the
-// meter (neither during the acquisition at the start of a capture nor at
-// its end). Measured on two CPUs (BenchmarkReplayModes -cpu 2, 10 MS/s
-// ci16_le, eight satellites, median ms per 1 s capture over five runs):
-//
-//	                   inline  beside  ahead
-//	no core:sha512      112.7    89.2   85.8
-//	with core:sha512    110.3   110.6  115.4
-//
-// Beside and ahead are within the run-to-run spread (±5 %) of each other
-// there, so with two or three workers the satellites are measured beside
-// the pass and each capture is read once. With four CPUs or more, one
-// capture's goroutines leave cores idle: the second reads then run on
-// them and the pass goes at its own pace, no longer bound to the meter's.
-// (This machine has two CPUs; BenchmarkReplayModes with -cpu 4,8 on a
-// larger one checks that choice.) Ahead, workers−2 goroutines measure (one
-// core is the pass's, one the hashing's).
-const aheadWorkers = 4
-
-// measured is the satellite measurement of one job.
-type measured struct {
-	result detect.SatelliteResult
-	err    error
-}
-
-// measureAhead measures the satellites of the jobs on workers goroutines,
-// at most workers captures ahead of the consumer, which reads channel i
-// for job i in order. The measurement depends only on the capture, so the
-// results are the same whatever the number of workers.
-func measureAhead(ctx context.Context, jobs []job, pipe *detect.Pipeline, workers int) []chan measured {
-	out := make([]chan measured, len(jobs))
-	for i := range out {
-		out[i] = make(chan measured, 1)
+// satellitePlacement is where replay with the given number of workers
+// measures the satellites: inside the spectral pass with one, on a read of
+// their own beside it with more (a second read and decode of each capture,
+// in exchange for two goroutines that share nothing). Measured on two CPUs
+// (BenchmarkReplayModes -cpu 2, 10 MS/s ci16_le, eight satellites, ms per
+// 1 s capture): see the README's Measurements. Each capture's satellites
+// are measured while its spectral pass runs, not ahead of it: what the
+// meter learns from one capture (the site's clock offset, the spectrum
+// orientation) shapes the next capture's measurement, so captures of one
+// site are measured in time order.
+func satellitePlacement(workers int) detect.SatellitePlacement {
+	if workers <= 1 {
+		return detect.SatellitesInPass
 	}
-	next := make(chan int)
-	slots := make(chan struct{}, workers)
-	go func() {
-		defer close(next)
-		for i := range jobs {
-			select {
-			case slots <- struct{}{}:
-			case <-ctx.Done():
-				return
-			}
-			next <- i
-		}
-	}()
-	for w := 0; w < workers; w++ {
-		go func() {
-			meter := &detect.GNSSMeter{}
-			for i := range next {
-				j := jobs[i]
-				if j.problem != nil {
-					out[i] <- measured{}
-				} else {
-					r, err := detect.MeasureSatellites(ctx, j.capture, meter, pipe.BlockLen(j.capture.SampleRate))
-					out[i] <- measured{result: r, err: err}
-				}
-				<-slots
-			}
-		}()
-	}
-	return out
+	return detect.SatellitesOwnRead
 }
 
 // progressBar draws done of total as a bar of width cells with the count.

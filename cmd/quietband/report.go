@@ -285,29 +285,21 @@ func rebuildReport(ctx context.Context, logPath, root, outDir string, all bool, 
 // returns its summary, or a note saying why there is none (file gone or
 // unreadable: not an error of the report).
 func redraw(ctx context.Context, pipe *detect.Pipeline, root string, rec detect.CaptureRecord) (*report.Summary, string, error) {
-	path := filepath.Join(root, filepath.FromSlash(rec.Capture))
-	raw := ingest.RawSettings{SampleRate: rec.SampleRate}
-	if f, err := ingest.ParseFormat(rec.Format); err == nil {
-		raw.Format = f
-	}
-	if rec.CenterHz != nil {
-		raw.CenterHz, raw.HasCenter = *rec.CenterHz, true
-	}
-	if rec.Start != nil {
-		raw.Start = rec.Start.Time
-	}
-	c, err := ingest.Open(path, raw)
+	c, err := report.Reopen(root, rec)
 	if err != nil {
 		return nil, "not redrawn: " + err.Error(), nil
 	}
 	obs := report.NewObserver()
 	pipe.Observer = obs
-	defer func() { pipe.Observer = nil }()
+	// The satellites are the record's: the pictures need the spectral
+	// pass only.
 	var sats detect.SatelliteResult
 	if rec.Stats != nil {
 		sats = detect.SatelliteResult{Satellites: rec.Stats.Satellites, Skipped: rec.Stats.GNSSSkipped}
 	}
-	res, err := pipe.ProcessMeasured(ctx, c, rec.Capture, func() (detect.SatelliteResult, error) { return sats, nil })
+	pipe.GNSS, pipe.SatellitePlacement = recordedSatellites{sats}, detect.SatellitesInPass
+	defer func() { pipe.Observer, pipe.GNSS = nil, nil }()
+	res, err := pipe.Process(ctx, c, rec.Capture)
 	if err != nil {
 		if ctx.Err() != nil {
 			return nil, "", err
@@ -321,3 +313,11 @@ func redraw(ctx context.Context, pipe *detect.Pipeline, root string, rec detect.
 	}
 	return sum, "", nil
 }
+
+// recordedSatellites is a SatelliteMeter that measures nothing and gives
+// back the satellites a capture record holds.
+type recordedSatellites struct{ r detect.SatelliteResult }
+
+func (m recordedSatellites) Start(string, float64, float64, bool) string { return m.r.Skipped }
+func (recordedSatellites) Block(int64, []complex64)                      {}
+func (m recordedSatellites) Measurement() detect.SatelliteResult         { return m.r }
