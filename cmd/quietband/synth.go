@@ -3,7 +3,9 @@ package main
 import (
 	"fmt"
 	"io"
+	"math"
 	"strings"
+	"unicode/utf8"
 
 	"quietband/ingest"
 	"quietband/ingest/synth"
@@ -27,7 +29,7 @@ The scenario is a built-in one (--scenario, see --list) or a YAML file
 	list := fs.Bool("list", false, "list the built-in scenarios and exit")
 	format := fs.String("format", "", "override the sample format (SigMF datatype, e.g. ci8, cu8, ci16_le, cf32_le)")
 	rate := fs.Float64("rate", 0, "override the sample rate in samples/s (e.g. 10e6)")
-	duration := fs.Float64("duration", 0, "override every capture's duration in seconds")
+	duration := fs.Float64("duration", 0, "set every capture's duration in seconds, scaling every time within it by the same factor (emitters' start, end and on intervals, spoofers' start and end, the front end's gain steps, sample drops and gaps); 0 keeps the scenario's")
 	raw := fs.Bool("raw", false, "write raw sample files instead of SigMF pairs")
 	seed := fs.Uint64("seed", 0, "override the random seed (0 keeps the scenario's)")
 	if err := parseFlags(fs, args); err != nil {
@@ -37,10 +39,18 @@ The scenario is a built-in one (--scenario, see --list) or a YAML file
 		fmt.Fprintf(errOut, "quietband synth: unexpected arguments %q\n", fs.Args())
 		return errUsage
 	}
+	if !(*duration >= 0) || math.IsInf(*duration, 0) {
+		return fmt.Errorf("--duration %g: give a capture length in seconds (> 0), or 0 to keep the scenario's", *duration)
+	}
 	if *list {
-		for _, n := range synth.BuiltinNames() {
+		names := synth.BuiltinNames()
+		width := 0
+		for _, n := range names {
+			width = max(width, utf8.RuneCountInString(n))
+		}
+		for _, n := range names {
 			s, _ := synth.Builtin(n)
-			fmt.Fprintf(out, "%-11s %d capture(s), %s at %.3g MS/s: %s\n", n, len(s.Captures), s.Format, s.SampleRate/1e6, s.Description)
+			fmt.Fprintf(out, "%-*s  %d capture(s), %s at %.3g MS/s: %s\n", width, n, len(s.Captures), s.Format, s.SampleRate/1e6, s.Description)
 		}
 		return nil
 	}
@@ -83,16 +93,7 @@ The scenario is a built-in one (--scenario, see --list) or a YAML file
 			s.Seed = *seed
 		}
 		if *duration != 0 {
-			for i := range s.Captures {
-				s.Captures[i].DurationS = *duration
-				for j := range s.Captures[i].Emitters {
-					e := &s.Captures[i].Emitters[j]
-					e.EndS = min(e.EndS, *duration)
-					if e.StartS >= e.EndS {
-						e.StartS = 0
-					}
-				}
-			}
+			s.ScaleDuration(*duration)
 		}
 		dir := *outDir
 		if len(scenarios) > 1 {
