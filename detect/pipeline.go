@@ -112,6 +112,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) 
 	t0 := time.Now()
 	fs := c.SampleRate
 	cfg := p.cfg.Defaults(fs)
+	short := fitShort(&cfg, c.Samples)
 	if err := cfg.Validate(); err != nil {
 		return nil, err
 	}
@@ -131,7 +132,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) 
 	if p.Observer != nil {
 		p.Observer.Begin(c, blockLen, cfg.FFTSize)
 	}
-	st, tr, in := &b.st, b.tr, &b.in
+	st, tr := &b.st, b.tr
 	where := p.SatellitePlacement
 	if p.GNSSInline {
 		where = SatellitesInPass
@@ -186,6 +187,9 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) 
 		stats.Baseline = "learning"
 	}
 	var notes []string
+	if short != "" {
+		notes = append(notes, short)
+	}
 	fe, _ := r.FrontEnd()
 	fault := frontEndFault(fe, measured.DropSample, c)
 	levels := fe.Levels
@@ -233,8 +237,12 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) 
 	prev := p.state.episodes[key]
 	var stillOpen []openEpisode
 	episodes := map[*trackedEvent]string{}
+	noise := b.noise
+	if noise == 0 && b.in.Rise > 0 {
+		noise = b.in.NoisePower / b.in.Rise // no block had minFrames frames
+	}
 	for _, ev := range tr.events {
-		e := ev.toEvent(c, name, cfg, fs, center, hasCenter, in.NoisePower/in.Rise)
+		e := ev.toEvent(c, name, cfg, fs, center, hasCenter, noise)
 		e.ID = eventID(sha, e.Class, e.SampleStart, e.OffsetHz, fp)
 		e.Episode = e.ID
 		if ep, ok := episodes[ev.after]; ok && ev.after != nil {
@@ -505,6 +513,10 @@ type bank struct {
 	findings  []Finding
 	center    float64
 	hasCenter bool
+	// noise is the thermal noise power per sample of the last block with
+	// minFrames frames (the events' J/N reference): a capture's short last
+	// block has no spectral pass and no noise estimate of its own.
+	noise float64
 }
 
 func (p *Pipeline) bankFor(cfg Config, fs float64) *bank {
@@ -526,7 +538,7 @@ func (p *Pipeline) bankFor(cfg Config, fs float64) *bank {
 
 // reset prepares the bank for a new capture over the input's baseline.
 func (b *bank) reset(base *Baseline, center float64, hasCenter bool) {
-	b.center, b.hasCenter, b.lowBit, b.lowT = center, hasCenter, false, 0
+	b.center, b.hasCenter, b.lowBit, b.lowT, b.noise = center, hasCenter, false, 0, 0
 	fs := b.eng.fs
 	var prev []float32
 	if b.tr != nil {
@@ -562,6 +574,7 @@ func (b *bank) block(blk ingest.Block, obs BlockObserver) {
 		for _, d := range b.detectors {
 			fnd = d.Detect(in, fnd)
 		}
+		b.noise = in.NoisePower / in.Rise
 	} else {
 		fnd = b.pulse.Detect(in, fnd)
 	}
