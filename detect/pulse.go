@@ -61,6 +61,7 @@ type Pulse struct {
 	sbSpec, sbSeg     []complex64
 	sbOut             []complex64
 	sbTaper           []float32
+	clean             []complex64 // the block with its steady tones removed (removeTones)
 	lens, lensScratch []float64
 	moments           [2]float64 // the block's E|x|² and E|x|⁴
 	lowT              float32    // a low-bit quantizer's magnitude threshold (0: not low-bit)
@@ -181,9 +182,13 @@ func (d *Pulse) Detect(in *BlockInput, out []Finding) []Finding {
 		regions = kept
 	}
 	noise := in.NoisePower / in.Rise
+	// The steady tones of the block are removed before the sub-band
+	// search: a strong CW inside a region (or, on a clipping front end,
+	// spread into it) would otherwise fill the region's envelope.
+	xs := d.removeTones(x, fs, out, noise)
 	found, wideAgain := 0, false
 	for i, r := range regions {
-		y, fsd, dec, center, nsub, skip := d.subband(in, r)
+		y, fsd, dec, center, nsub, skip := d.subband(in, xs, r)
 		if len(y) == 0 {
 			continue
 		}
@@ -838,20 +843,25 @@ func (d *Pulse) alike(lens []float64) bool {
 
 // samePulses reports whether most (four fifths) of train b's arrivals
 // coincide with a's, to within a's pulse width or a microsecond (arrival
-// times in capture samples at rate fs).
+// times in capture samples at rate fs); with either pulse of a's pairs
+// when a's pulses come in pairs.
 func samePulses(a, b *PulseParams, fs float64) bool {
 	if a == nil || b == nil || len(b.Groups) == 0 || len(a.Groups) == 0 {
 		return false
 	}
 	tol := math.Max(a.WidthS, 1e-6)
-	// Arrival times are capture samples; a's are sorted.
+	// Arrival times are capture samples; a's are sorted. When a's pulses
+	// come in pairs, b may have been seen at either pulse of a pair.
+	pair := int64(math.Round(a.PairSpacingS * fs))
 	hit := 0
 	for _, t := range b.Groups {
-		i := sort.Search(len(a.Groups), func(i int) bool { return a.Groups[i] >= t })
 		near := math.Inf(1)
-		for _, j := range []int{i - 1, i} {
-			if j >= 0 && j < len(a.Groups) {
-				near = math.Min(near, math.Abs(float64(a.Groups[j]-t)))
+		for _, t := range []int64{t, t - pair} {
+			i := sort.Search(len(a.Groups), func(i int) bool { return a.Groups[i] >= t })
+			for _, j := range []int{i - 1, i} {
+				if j >= 0 && j < len(a.Groups) {
+					near = math.Min(near, math.Abs(float64(a.Groups[j]-t)))
+				}
 			}
 		}
 		if near <= tol*fs {
@@ -1109,10 +1119,9 @@ func (d *Pulse) regions(in *BlockInput) [][2]float64 {
 // returns the output, its rate, D, the centre, the noise power per output
 // sample expected from the noise reference over the sub-band, and the
 // block samples left out at its start.
-func (d *Pulse) subband(in *BlockInput, r [2]float64) ([]complex64, float64, int, float64, float64, int) {
+func (d *Pulse) subband(in *BlockInput, x []complex64, r [2]float64) ([]complex64, float64, int, float64, float64, int) {
 	f := in.F
 	fs := f.Fs
-	x := in.Samples
 	const segment = 4096
 	binHz := fs / segment
 	b0 := 2 * int(math.Round((r[0]+r[1])/2/binHz/2))
@@ -1481,4 +1490,126 @@ func (d *Pulse) lowBitJN(peak, ns float64) (jn float64, bound bool) {
 	s := 1 / (math.Sqrt2 * math.Erfcinv(p))
 	s0 := 1 / (math.Sqrt2 * math.Erfcinv(p0))
 	return math.Max(s*s/(s0*s0)-1, 0), bound
+}
+
+// Tone removal before the sub-band search.
+const (
+	// removeToneMinJN is the J/N (linear, over the capture band's noise)
+	// from which a CW finding's tone is removed: 3 dB.
+	removeToneMinJN = 2
+	// removeToneMax bounds the tones removed per block (the strongest).
+	removeToneMax = 4
+	// removeToneSegment is the segment over which a tone's amplitude is
+	// taken as constant: 1024 samples (256 µs at 4 MS/s), short against a
+	// keyed tone's on-time and long against a pulse.
+	removeToneSegment = 1024
+)
+
+// removeTones returns x with the strongest steady tones of the block's
+// CW findings (those of out at J/N ≥ 3 dB, at most four) subtracted, in
+// d.clean; x itself when there are none. Each tone's frequency is refined
+// from the phase advance of its correlation over successive segments of
+// L samples (the phase-difference estimator: δω = arg Σ c_{s+1}·c_s*/L,
+// unambiguous within ±fs/(2L); the CW detector gives the offset to a few
+// Hz), then its complex amplitude is taken per segment, a_s =
+// (1/L) Σ x[n]·e^{−jωn}, and a_s·e^{jωn} subtracted. Per-segment
+// amplitudes follow a keyed tone and the gain changes of a clipping front
+// end; a pulse a few µs long changes a segment's estimate by its share of
+// the segment's energy only. Cost: two passes over the block per tone.
+func (d *Pulse) removeTones(x []complex64, fs float64, out []Finding, noise float64) []complex64 {
+	var tones [removeToneMax]ToneParam
+	n := 0
+	for i := range out {
+		c := &out[i]
+		if c.Class != ClassCW {
+			continue
+		}
+		for _, t := range c.Tones {
+			if math.Pow(10, t.JNDB/10) < removeToneMinJN {
+				continue
+			}
+			if n < removeToneMax {
+				tones[n] = t
+				n++
+				continue
+			}
+			// Replace the weakest kept.
+			w := 0
+			for j := 1; j < n; j++ {
+				if tones[j].JNDB < tones[w].JNDB {
+					w = j
+				}
+			}
+			if t.JNDB > tones[w].JNDB {
+				tones[w] = t
+			}
+		}
+	}
+	if n == 0 || len(x) < 2*removeToneSegment {
+		return x
+	}
+	if cap(d.clean) < len(x) {
+		d.clean = make([]complex64, len(x))
+	}
+	y := d.clean[:len(x)]
+	copy(y, x)
+	const L = removeToneSegment
+	for _, t := range tones[:n] {
+		w := 2 * math.Pi * t.OffsetHz / fs
+		// Refine ω from the phase advance between segments.
+		var adv complex128
+		var prev complex128
+		for s0 := 0; s0+L <= len(y); s0 += L {
+			c := correlate(y[s0:s0+L], w, s0)
+			if s0 > 0 {
+				adv += c * cmplx.Conj(prev)
+			}
+			prev = c
+		}
+		w += cmplx.Phase(adv) / L
+		// Subtract the tone segment by segment (the tail joins the last
+		// segment).
+		for s0 := 0; s0 < len(y); s0 += L {
+			e := s0 + L
+			if e+L > len(y) {
+				e = len(y)
+			}
+			seg := y[s0:e]
+			a := correlate(seg, w, s0) / complex(float64(len(seg)), 0)
+			subtractTone(seg, w, s0, a)
+			if e == len(y) {
+				break
+			}
+		}
+	}
+	return y
+}
+
+// correlate returns Σ x[i]·e^{−jω(n0+i)}.
+func correlate(x []complex64, w float64, n0 int) complex128 {
+	rot := cmplx.Exp(complex(0, -w*float64(n0)))
+	step := cmplx.Exp(complex(0, -w))
+	var sum complex128
+	for i, v := range x {
+		sum += complex128(v) * rot
+		rot *= step
+		if i&255 == 255 {
+			rot /= complex(cmplx.Abs(rot), 0) // keep |rot| = 1
+		}
+	}
+	return sum
+}
+
+// subtractTone subtracts a·e^{jω(n0+i)} from x[i].
+func subtractTone(x []complex64, w float64, n0 int, a complex128) {
+	rot := a * cmplx.Exp(complex(0, w*float64(n0)))
+	step := cmplx.Exp(complex(0, w))
+	mag := cmplx.Abs(a)
+	for i := range x {
+		x[i] -= complex64(rot)
+		rot *= step
+		if i&255 == 255 && mag > 0 {
+			rot *= complex(mag/cmplx.Abs(rot), 0)
+		}
+	}
 }
