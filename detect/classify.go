@@ -114,7 +114,20 @@ func (t *tracker) block(in *BlockInput, fs []Finding) {
 		}
 	}
 	t.compressed = t.compressed || in.Compressed
-	t.grid = grid{bin: bin, fs: f.Fs, frames: max(f.Frames, 1), irr: t.cfg.ImageRejectionDB, compressed: in.Compressed}
+	tones := t.grid.tones[:0]
+	for i := range fs {
+		if fs[i].Class != ClassCW {
+			continue
+		}
+		for _, tn := range fs[i].Tones {
+			// Tones that can drive a front end into its nonlinear range
+			// (limiterProduct); weaker ones are their products.
+			if tn.JNDB >= limiterToneDB {
+				tones = append(tones, tn)
+			}
+		}
+	}
+	t.grid = grid{bin: bin, fs: f.Fs, frames: max(f.Frames, 1), irr: t.cfg.ImageRejectionDB, compressed: in.Compressed, tones: tones}
 	t.explainBlock(fs, &t.grid)
 	var classed []Finding
 	for _, x := range fs {

@@ -25,12 +25,13 @@ type footprintFunc func(c, x *Finding, g *grid) bool
 
 // grid is the spectral analysis the footprints are judged on.
 type grid struct {
-	bin        float64 // FFT bin width, Hz
-	fs         float64 // sample rate
-	frames     int     // frames per block
-	irr        float64 // image rejection, dB
-	compressed bool    // the front end is in its nonlinear range (nonlinear.go)
-	tone       Finding // explainTones' scratch: one tone as a finding
+	bin        float64     // FFT bin width, Hz
+	fs         float64     // sample rate
+	frames     int         // frames per block
+	irr        float64     // image rejection, dB
+	compressed bool        // the front end is in its nonlinear range (nonlinear.go)
+	tones      []ToneParam // the block's steady tones (its CW findings'), for limiterProduct
+	tone       Finding     // explainTones' scratch: one tone as a finding
 }
 
 // footprints lists, by class, the footprint of each kind of emitter.
@@ -63,7 +64,7 @@ func explains(c, x *Finding, g *grid) bool {
 	if fp := footprints[c.Class]; fp != nil && fp(c, x, g) {
 		return true
 	}
-	if compressedFootprint(c, x, g) {
+	if compressedFootprint(c, x, g) || limiterProduct(c, x, g) {
 		return true
 	}
 	class, lo, hi, jn := x.Class, x.LowHz, x.HighHz, x.JN

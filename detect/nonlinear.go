@@ -116,3 +116,50 @@ func abs(v int) int {
 	}
 	return v
 }
+
+// limiterToneDB is the J/N from which a tone is taken to drive a
+// compressed front end in limiterProduct: 10 dB, a tone whose peaks stand
+// above the noise's (a weaker one is itself a product).
+const limiterToneDB = 10
+
+// limiterProduct reports whether, in a compressed block, pulsed finding x
+// is what pulse train c makes of the block's steady tones: its pulses
+// arrive with c's (samePulses, either way: the gap may hold noise peaks
+// of its own besides c's pulses) and its carrier lies on a tone (a limiter
+// or clipping ADC gives the stronger signal the output: while c's pulses
+// are on, the tone's level drops, and the gap pulses at the tone's
+// frequency with c's timing; Jones 1963, from memory) or on one of their
+// intermodulation products m·f_tone + n·f_c (|m| + |n| odd, up to 5). The
+// gap may stand above c itself, c's own level being compressed too, so
+// no J/N order is asked of the gap; a product is weaker than c. c must
+// not itself lie on a tone (a gap explains nothing).
+func limiterProduct(c, x *Finding, g *grid) bool {
+	if !g.compressed || c.Class != ClassPulsed || x.Class != ClassPulsed || c.Pulse == nil || x.Pulse == nil ||
+		len(c.Pulse.Channels) > 0 || !samePulses(c.Pulse, x.Pulse, g.fs) && !samePulses(x.Pulse, c.Pulse, g.fs) {
+		return false
+	}
+	tol := math.Max((x.HighHz-x.LowHz)/4, 2*g.bin)
+	// c must be a train of its own, not a gap at a tone.
+	ctol := math.Max((c.HighHz-c.LowHz)/4, 2*g.bin)
+	for _, t := range g.tones {
+		if math.Abs(c.OffsetHz-t.OffsetHz) <= ctol {
+			return false
+		}
+	}
+	for _, t := range g.tones {
+		for m := -4; m <= 5; m++ {
+			for n := -4; n <= 4; n++ {
+				o := abs(m) + abs(n)
+				if o == 0 || o > 5 || o%2 == 0 || (n == 0 && m != 1) {
+					continue
+				}
+				f := float64(m)*t.OffsetHz + float64(n)*c.OffsetHz
+				// A product (n ≠ 0) is weaker than the train.
+				if onAlias(f, x.OffsetHz-tol, x.OffsetHz+tol, g.fs) && (n == 0 || x.JN < c.JN) {
+					return true
+				}
+			}
+		}
+	}
+	return false
+}
