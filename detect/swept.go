@@ -872,6 +872,11 @@ func fastAtan2(y, x float32) float32 {
 // A finding outside the span is explained when its density stands at most
 // 4× that (scatter of one block); a tone is one line of the skirt's comb,
 // which carries the density over one line spacing 1/T (period T).
+// sweepPassPRITol is how close a pulse train's PRI must come to a sweep's
+// period to be its passes: 3 % (the sweep's period is measured to 2 %,
+// the tolerance; a PRI over a block to well under 1 %).
+const sweepPassPRITol = 0.03
+
 func sweptFootprint(c, x *Finding, g *grid) bool {
 	class, lo, hi, jn := x.Class, x.LowHz, x.HighHz, x.JN
 	if c.Sweep == nil {
@@ -885,6 +890,17 @@ func sweptFootprint(c, x *Finding, g *grid) bool {
 		// The sweep's passes through a sub-band look like pulses there,
 		// at about the sweep's own power (4×: the pass's peak over the
 		// sweep's mean in a shaped band).
+		// Pulses that recur at the sweep's period (or half of it: a
+		// triangle passes twice) are its passes whatever their level: a
+		// low-bit or clipping front end measures a pass's peak and the
+		// sweep's mean on different scales.
+		if overlaps(x.OffsetHz, x.OffsetHz, sl, sh) && x.Pulse != nil && c.Sweep.PeriodS > 0 {
+			for _, p := range [2]float64{c.Sweep.PeriodS, c.Sweep.PeriodS / 2} {
+				if math.Abs(x.Pulse.PRIS-p) <= sweepPassPRITol*p {
+					return true
+				}
+			}
+		}
 		return overlaps(x.OffsetHz, x.OffsetHz, sl, sh) && jn <= 4*c.JN
 	}
 	if overlaps(lo, hi, sl, sh) {
