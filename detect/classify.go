@@ -401,6 +401,11 @@ func (t *tracker) refineStart(in *BlockInput, e *trackedEvent) int64 {
 func (t *tracker) startInPrevious(in *BlockInput, e *trackedEvent) int64 {
 	first := t.frameActivity(in, e, true)
 	s := changeStart(t.act)
+	if s >= len(t.act) {
+		// No frame carries the event's level (a sweep seen only as
+		// short bursts): the start found when it opened stands.
+		return e.start
+	}
 	if s == 0 {
 		// Active all through the previous block: the start found when
 		// the event opened, possibly earlier still, stands.
