@@ -316,7 +316,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) 
 		for _, s := range stats.Satellites {
 			cn0[s.PRN] = s.CN0DBHz
 		}
-		mean := StrongestMean(stats.Satellites, 4)
+		mean := StrongestMean(stats.Satellites, Strongest)
 		p.state.Baselines.update(key, func(b *Baseline) {
 			b.learnCN0(cn0, mean, cfg.BaselineWarmup, cfg.BaselineWeight)
 		})

@@ -139,9 +139,15 @@ func (m *GNSSMeter) Measurement() SatelliteResult {
 	return r
 }
 
+// Strongest is how many of a capture's strongest satellites the site's
+// C/N0 mean takes (StrongestMean): the figure the C/N0 baseline keeps,
+// the quietband_cn0_mean_dbhz metric shows and the report plots.
+const Strongest = 4
+
 // StrongestMean is the mean C/N0 (dB-Hz, a mean of the dB values) of the
-// n strongest satellites, NaN when there are none: the figure the site's
-// C/N0 baseline keeps and reports plot.
+// n strongest satellites (of all when there are fewer), NaN when there are
+// none: with n = Strongest, the figure the site's C/N0 baseline keeps,
+// the metrics expose and reports plot.
 func StrongestMean(sats []Satellite, n int) float64 {
 	v := make([]float64, 0, len(sats))
 	for _, s := range sats {
