@@ -13,10 +13,10 @@ import (
 	"text/tabwriter"
 	"time"
 
-	"quietband/cmd/quietband/internal/report"
 	"quietband/detect"
 	"quietband/ingest"
 	"quietband/metrics/eventlog"
+	"quietband/metrics/report"
 )
 
 func init() {

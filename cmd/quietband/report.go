@@ -9,10 +9,10 @@ import (
 	"path/filepath"
 	"strings"
 
-	"quietband/cmd/quietband/internal/report"
 	"quietband/detect"
 	"quietband/ingest"
 	"quietband/metrics/eventlog"
+	"quietband/metrics/report"
 )
 
 func init() {

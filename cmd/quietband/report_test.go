@@ -13,11 +13,11 @@ import (
 	"strings"
 	"testing"
 
-	"quietband/cmd/quietband/internal/report"
 	"quietband/detect"
 	"quietband/ingest"
 	"quietband/ingest/synth"
 	"quietband/metrics/eventlog"
+	"quietband/metrics/report"
 )
 
 // Truth of the report scenario (synth's own definitions: a tone at

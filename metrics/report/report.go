@@ -173,7 +173,7 @@ func (r *Report) Add(c Capture) error {
 	}
 	if st := rec.Stats; st != nil {
 		row.Power, row.Floor, row.AGC = f1(st.PowerDBFS), f1(st.NoiseFloorDBFS), signed(st.AGCDeviationDB, 2)
-		if c := StrongestCN0(st.Satellites, 4); !math.IsNaN(c) {
+		if c := detect.StrongestMean(st.Satellites, detect.Strongest); !math.IsNaN(c) {
 			row.CN0 = f1(c)
 		}
 	}

@@ -15,7 +15,7 @@ import (
 // 2-clause licence beside it) and the settings its README gives: ri8 at
 // 12 MS/s, IF 3 MHz, low-side LO, band centre 1575.42 MHz.
 var (
-	realIFRoot = filepath.Join("..", "..", "..", "..", "testdata", "realdata")
+	realIFRoot = filepath.Join("..", "..", "testdata", "realdata")
 	realIFName = "L1_20211125_004000_12MHz_I.bin"
 	realIFRaw  = ingest.RawSettings{Format: ingest.RI8, SampleRate: 12e6, CenterHz: 1575.42e6, HasCenter: true,
 		IFHz: 3e6, LOSide: ingest.LowSide}

@@ -2,6 +2,11 @@
 // capture drawn from the pipeline's own FFT pass, a self-contained HTML
 // page, a CSV of the events and SigMF annotations.
 //
+// It sits beside the event log (metrics/eventlog) because it renders what
+// the log records, the events and capture records of detect, and is
+// importable by any tool that wants to draw a capture; detect and ingest
+// do not depend on it.
+//
 // # Pictures
 //
 // An Observer (a detect.BlockObserver) watches one capture's blocks and

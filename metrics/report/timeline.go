@@ -15,11 +15,6 @@ import (
 	"quietband/detect"
 )
 
-// StrongestCN0 is detect.StrongestMean: the mean C/N0 of the n strongest
-// satellites, the quantity the pipeline tracks against the site's C/N0
-// baseline.
-func StrongestCN0(sats []detect.Satellite, n int) float64 { return detect.StrongestMean(sats, n) }
-
 // timeline is what the site timeline needs of every capture: a few
 // numbers each, however many captures there are.
 type timeline struct {
@@ -58,7 +53,7 @@ func (t *timeline) add(rec detect.CaptureRecord, events []detect.Event) {
 		t.noTime = true
 	}
 	if rec.Stats != nil {
-		c.cn0 = StrongestCN0(rec.Stats.Satellites, 4)
+		c.cn0 = detect.StrongestMean(rec.Stats.Satellites, detect.Strongest)
 		c.agc = rec.Stats.AGCDeviationDB
 	}
 	t.captures = append(t.captures, c)
