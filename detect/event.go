@@ -50,6 +50,11 @@ type Event struct {
 	// alert. KnownAs is the entry's label, when it has one.
 	Known   bool   `json:"known,omitempty"`
 	KnownAs string `json:"known_as,omitempty"`
+	// OpenAtEnd says that the interference was still present at the end
+	// of the capture (see Pipeline.Process): its episode goes on into the
+	// input's next capture, and the daemon shows it as active until a
+	// capture without it. It is not part of the record.
+	OpenAtEnd bool `json:"-"`
 }
 
 // Params holds the class-specific parameters; only those of the event's

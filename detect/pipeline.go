@@ -162,6 +162,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) 
 	}
 	sha := r.SHA256()
 	tr.finish()
+	open := b.openAtEnd()
 	measured, err := sats.result()
 	if err != nil {
 		return nil, err
@@ -258,7 +259,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) 
 				}
 			}
 		}
-		if ev.openAtEnd {
+		if e.OpenAtEnd = open[ev]; e.OpenAtEnd {
 			stillOpen = append(stillOpen, openEpisode{id: e.Episode, class: e.Class, lo: ev.lo, hi: ev.hi, end: e.End.Time})
 		}
 		e.KnownAs, e.Known = knownAs(&e, cfg.KnownEmitters, center, hasCenter)
@@ -278,6 +279,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) 
 		}
 		drop.ID = eventID(sha, drop.Class, 0, 0, fp)
 		drop.Episode = drop.ID
+		drop.OpenAtEnd = true // measured over the whole capture
 		for i := range res.Events {
 			drop.Related = append(drop.Related, res.Events[i].ID)
 			res.Events[i].Related = append(res.Events[i].Related, drop.ID)
@@ -301,6 +303,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) 
 		}
 		ev.ID = eventID(sha, ev.Class, 0, 0, fp)
 		ev.Episode = ev.ID
+		ev.OpenAtEnd = true // judged over the whole capture
 		for _, o := range prev {
 			if o.class == ClassSpoofing && !o.end.IsZero() && ev.Start.Sub(o.end) <= episodeGap {
 				ev.Episode = o.id
@@ -356,6 +359,24 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) 
 	res.Record = rec
 	res.Elapsed = time.Since(t0)
 	return res, nil
+}
+
+// openAtEnd returns the capture's events that were still present at its
+// end: those seen in its last block (the tracker's openAtEnd) and, when
+// that block was too short for a spectral pass (only pulses are sought
+// there), those held open through it that were seen in the block before,
+// pulse trains excepted (the short block would have shown them). This is
+// the one definition of "open at the end": the pipeline continues these
+// events' episodes into the input's next capture, and Event.OpenAtEnd
+// carries it to the daemon's interference-active gauges.
+func (b *bank) openAtEnd() map[*trackedEvent]bool {
+	open := map[*trackedEvent]bool{}
+	for _, ev := range b.tr.open {
+		if ev.openAtEnd || !b.spectral && ev.missed == 1 && ev.class != ClassPulsed {
+			open[ev] = true
+		}
+	}
+	return open
 }
 
 // frontEndFault turns the front-end check of a capture (and a sample drop
@@ -517,6 +538,9 @@ type bank struct {
 	// minFrames frames (the events' J/N reference): a capture's short last
 	// block has no spectral pass and no noise estimate of its own.
 	noise float64
+	// spectral says that the latest block had a spectral pass (at least
+	// minFrames frames); a capture's short last block may not.
+	spectral bool
 }
 
 func (p *Pipeline) bankFor(cfg Config, fs float64) *bank {
@@ -564,7 +588,8 @@ func (b *bank) block(blk ingest.Block, obs BlockObserver) {
 	b.sk.Compute(in)
 	b.ref.apply(in, &b.thr)
 	fnd := b.findings[:0]
-	if f.Frames >= minFrames {
+	b.spectral = f.Frames >= minFrames
+	if b.spectral {
 		// A wideband rise is interference too: the narrow detectors then
 		// measure against the raised floor, and J/N against the thermal.
 		fnd = NoiseFloor{}.Detect(in, fnd)
