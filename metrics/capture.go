@@ -1,6 +1,7 @@
 package metrics
 
 import (
+	"math"
 	"slices"
 	"strconv"
 	"time"
@@ -13,14 +14,12 @@ type Capture struct {
 	Input string
 	// Record is the capture record written to the event log.
 	Record detect.CaptureRecord
-	// Events are the events the analysis found.
-	Events []detect.Event
-	// BlockSamples is the pipeline's block length for the capture's rate,
-	// the granularity of "open at the end" (see the package doc).
-	BlockSamples int64
-	Bytes        int64         // size of the data file
-	Duration     time.Duration // signal length
-	Elapsed      time.Duration // analysis time
+	// Events are the events the analysis found; those open at the end of
+	// the capture (detect.Event.OpenAtEnd) are active.
+	Events   []detect.Event
+	Bytes    int64         // size of the data file
+	Duration time.Duration // signal length
+	Elapsed  time.Duration // analysis time
 	// Satellites tells that satellites were measured (a GNSS meter ran on
 	// the capture), so that Record.Stats.Satellites, even empty, is a
 	// measurement.
@@ -28,9 +27,6 @@ type Capture struct {
 	// At is when the analysis finished (wall clock).
 	At time.Time
 }
-
-// cn0Strongest is how many of the strongest satellites the C/N0 mean takes.
-const cn0Strongest = 4
 
 // ObserveCapture updates the metrics with an analysed or quarantined
 // capture.
@@ -65,12 +61,12 @@ func (s *Set) ObserveCapture(c Capture) {
 			news = append(news, e)
 		}
 	}
-	knownOpen := OpenAtEnd(known, c.Record.Samples, c.BlockSamples)
+	knownOpen := openAtEnd(known)
 	for _, class := range detect.Classes {
 		_, ok := knownOpen[class]
 		s.knownActive.WithLabelValues(c.Input, class).Set(b2f(ok))
 	}
-	open := OpenAtEnd(news, c.Record.Samples, c.BlockSamples)
+	open := openAtEnd(news)
 	for _, class := range detect.Classes {
 		jn, ok := open[class]
 		s.active.WithLabelValues(c.Input, class).Set(b2f(ok))
@@ -119,40 +115,19 @@ func (s *Set) observeSatellites(input string, sats []detect.Satellite) {
 	}
 	s.prns[input] = now
 	s.satellites.WithLabelValues(input).Set(float64(len(sats)))
-	if m, ok := StrongestMean(sats, cn0Strongest); ok {
+	if m := detect.StrongestMean(sats, detect.Strongest); !math.IsNaN(m) {
 		s.cn0Mean.WithLabelValues(input).Set(m)
 	} else {
 		s.cn0Mean.DeleteLabelValues(input)
 	}
 }
 
-// StrongestMean is the arithmetic mean of the n largest C/N0 values (in
-// dB-Hz) of sats, or of all of them when there are fewer; ok is false when
-// sats is empty.
-func StrongestMean(sats []detect.Satellite, n int) (mean float64, ok bool) {
-	if len(sats) == 0 {
-		return 0, false
-	}
-	v := make([]float64, len(sats))
-	for i, s := range sats {
-		v[i] = s.CN0DBHz
-	}
-	slices.Sort(v)
-	top := v[max(0, len(v)-n):]
-	var sum float64
-	for _, x := range top {
-		sum += x
-	}
-	return sum / float64(len(top)), true
-}
-
-// OpenAtEnd returns, by class, the largest J/N of the events open at the
-// end of a capture of the given number of samples: those reaching its last
-// block, sample_start + sample_count ≥ samples − block.
-func OpenAtEnd(events []detect.Event, samples, block int64) map[string]float64 {
+// openAtEnd returns, by class, the largest J/N of the events open at the
+// end of their capture (detect.Event.OpenAtEnd, the pipeline's).
+func openAtEnd(events []detect.Event) map[string]float64 {
 	out := map[string]float64{}
 	for _, e := range events {
-		if e.SampleStart+e.SampleCount < samples-block {
+		if !e.OpenAtEnd {
 			continue
 		}
 		if jn, ok := out[e.Class]; !ok || e.JNDB > jn {

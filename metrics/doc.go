@@ -16,14 +16,12 @@
 //
 // quietband_interference_active{input,class} is 1 while an interference of
 // that class is open at the end of the input's latest analysed capture, and
-// 0 otherwise. "Open at the end" is decided from the event records alone:
-// an event is open when it reaches the capture's last block,
-//
-//	sample_start + sample_count ≥ samples − block,
-//
-// where block is the pipeline's block length (frames × FFT size) for the
-// capture's rate, the granularity at which the classifier opens and closes
-// events. The next capture of the input without such an event clears it; a
+// 0 otherwise. "Open at the end" is the pipeline's one definition
+// (detect.Event.OpenAtEnd, the same on which it continues an episode into
+// the next capture): the event was seen in the capture's last block, or,
+// when that block was too short for a spectral pass, held open through it;
+// cn0_drop and spoofing, judged over the whole capture, always are. The
+// next capture of the input without such an event clears it; a
 // quarantined capture changes nothing. quietband_jn_db{input,class} is the
 // largest J/N among the open events of the class and is absent while
 // nothing of the class is open.

@@ -28,8 +28,16 @@ func okRecord(name string, sats ...float64) detect.CaptureRecord {
 		Status: detect.StatusOK, Stats: st}
 }
 
+// event is an event that ended before its capture did; openEvent one the
+// pipeline found still present at the end (detect.Event.OpenAtEnd).
 func event(class string, start, count int64, jn float64) detect.Event {
 	return detect.Event{ID: fmt.Sprintf("%s-%d", class, start), Class: class, SampleStart: start, SampleCount: count, JNDB: jn}
+}
+
+func openEvent(class string, start, count int64, jn float64) detect.Event {
+	e := event(class, start, count, jn)
+	e.OpenAtEnd = true
+	return e
 }
 
 const block = 16384
@@ -51,18 +59,18 @@ func observeSequence(s *Set) {
 	at := time.Unix(1780000000, 0)
 	s.ObserveCapture(Capture{Input: "roof", Record: okRecord("a.ci8", 46, 44, 42, 45, 40),
 		Events: []detect.Event{
-			event(detect.ClassCW, 0, 100000, 12.5),                 // whole capture: open at the end
-			event(detect.ClassCW, 60000, 100000-60000-block, 14),   // reaches exactly samples−block: open
-			event(detect.ClassSwept, 1000, 100000-1000-block-1, 9), // stops one sample short: closed
+			openEvent(detect.ClassCW, 0, 100000, 12.5),               // whole capture: open at the end
+			openEvent(detect.ClassCW, 60000, 100000-60000-block, 14), // seen in the last block: open
+			event(detect.ClassSwept, 1000, 100000-1000-block-1, 9),   // stopped before it: closed
 		},
-		BlockSamples: block, Bytes: 200000, Duration: 125 * time.Millisecond, Elapsed: 15625 * time.Microsecond,
+		Bytes: 200000, Duration: 125 * time.Millisecond, Elapsed: 15625 * time.Microsecond,
 		Satellites: true, At: at})
 	s.ObserveCapture(Capture{Input: "mast", Record: okRecord("b.ci8", 41),
-		Events:       []detect.Event{event(detect.ClassWidebandNoise, 0, 100000, 6)},
-		BlockSamples: block, Bytes: 200000, Duration: 125 * time.Millisecond, Elapsed: 62500 * time.Microsecond,
+		Events: []detect.Event{openEvent(detect.ClassWidebandNoise, 0, 100000, 6)},
+		Bytes:  200000, Duration: 125 * time.Millisecond, Elapsed: 62500 * time.Microsecond,
 		Satellites: true, At: at.Add(time.Second)})
 	s.ObserveCapture(Capture{Input: "mast", Record: okRecord("c.ci8", 39.5, 38),
-		BlockSamples: block, Bytes: 200000, Duration: 125 * time.Millisecond, Elapsed: 31250 * time.Microsecond,
+		Bytes: 200000, Duration: 125 * time.Millisecond, Elapsed: 31250 * time.Microsecond,
 		Satellites: true, At: at.Add(2 * time.Second)})
 	s.ObserveCapture(Capture{Input: "mast", Record: detect.CaptureRecord{Capture: "bad.ci8", Status: detect.StatusQuarantined,
 		Error: "bad.ci8: data file is empty (zero length)"}, At: at.Add(3 * time.Second)})
@@ -222,17 +230,17 @@ func TestInterferenceFollowsCaptures(t *testing.T) {
 		want   float64 // roof/pulsed afterwards
 	}{
 		{"roof", nil, detect.StatusOK, 0},
-		{"roof", []detect.Event{event(detect.ClassPulsed, 50000, 50000, 15)}, detect.StatusOK, 1},
+		{"roof", []detect.Event{openEvent(detect.ClassPulsed, 50000, 50000, 15)}, detect.StatusOK, 1},
 		{"roof", nil, detect.StatusQuarantined, 1},
 		{"mast", nil, detect.StatusOK, 1},
 		{"roof", []detect.Event{event(detect.ClassPulsed, 0, 20000, 15)}, detect.StatusOK, 0}, // ended early
-		{"roof", []detect.Event{event(detect.ClassPulsed, 0, 100000, 15)}, detect.StatusOK, 1},
+		{"roof", []detect.Event{openEvent(detect.ClassPulsed, 0, 100000, 15)}, detect.StatusOK, 1},
 		{"roof", nil, detect.StatusOK, 0},
 	}
 	for i, st := range steps {
 		rec := okRecord("x.ci8")
 		rec.Status = st.status
-		s.ObserveCapture(Capture{Input: st.input, Record: rec, Events: st.events, BlockSamples: block, At: time.Now()})
+		s.ObserveCapture(Capture{Input: st.input, Record: rec, Events: st.events, At: time.Now()})
 		if got := active("roof", detect.ClassPulsed); got != st.want {
 			t.Fatalf("step %d: roof pulsed active = %v, want %v", i, got, st.want)
 		}
@@ -250,12 +258,12 @@ func TestInterferenceFollowsCaptures(t *testing.T) {
 func TestSpoofingMetrics(t *testing.T) {
 	s := newTestSet(t, false)
 	spoof := func(kind string, prns []int, over float64, delay *float64) detect.Event {
-		e := event(detect.ClassSpoofing, 0, 100000, over)
+		e := openEvent(detect.ClassSpoofing, 0, 100000, over)
 		e.Params.Kind, e.Params.PRNs, e.Params.PowerOverAuthenticDB, e.Params.DelayChips = kind, prns, &over, delay
 		return e
 	}
 	obs := func(input string, evs ...detect.Event) {
-		s.ObserveCapture(Capture{Input: input, Record: okRecord("x.ci8", 45), Events: evs, BlockSamples: block, Satellites: true, At: time.Now()})
+		s.ObserveCapture(Capture{Input: input, Record: okRecord("x.ci8", 45), Events: evs, Satellites: true, At: time.Now()})
 	}
 	obs("roof", spoof("meaconing", []int{3, 7, 11}, 4, ptr(1.5345)))
 	obs("mast", spoof("counterfeit", []int{1, 2, 3, 4, 5}, 6.5, nil))
@@ -311,10 +319,10 @@ func TestSatellitesNotMeasured(t *testing.T) {
 	// Without a GNSS meter an empty satellite list is no measurement: no
 	// C/N0 or satellite series (else "0 satellites" would raise alerts).
 	s := newTestSet(t, false)
-	s.ObserveCapture(Capture{Input: "roof", Record: okRecord("a.ci8"), BlockSamples: block, At: time.Now()})
+	s.ObserveCapture(Capture{Input: "roof", Record: okRecord("a.ci8"), At: time.Now()})
 	rec := okRecord("b.ci8", 44)
 	rec.Stats.GNSSSkipped = "skipped: capture centre does not contain GPS L1"
-	s.ObserveCapture(Capture{Input: "roof", Record: rec, Satellites: true, BlockSamples: block, At: time.Now()})
+	s.ObserveCapture(Capture{Input: "roof", Record: rec, Satellites: true, At: time.Now()})
 	for _, name := range []string{"quietband_satellites_acquired", "quietband_cn0_dbhz", "quietband_cn0_mean_dbhz"} {
 		if n, _ := testutil.GatherAndCount(s.Registry(), name); n != 0 {
 			t.Errorf("%s: %d series, want none", name, n)
@@ -322,8 +330,10 @@ func TestSatellitesNotMeasured(t *testing.T) {
 	}
 }
 
-func TestStrongestMean(t *testing.T) {
-	// Arithmetic mean of the n largest values, worked by hand.
+// TestCN0Mean: quietband_cn0_mean_dbhz is the arithmetic mean of the
+// (up to) four largest C/N0 values of the latest capture (worked by hand),
+// detect.StrongestMean with detect.Strongest, and absent without any.
+func TestCN0Mean(t *testing.T) {
 	cases := []struct {
 		cn0  []float64
 		want float64
@@ -335,39 +345,18 @@ func TestStrongestMean(t *testing.T) {
 		{[]float64{46, 44, 42, 45, 40}, (46 + 45 + 44 + 42) / 4.0, true},
 		{[]float64{30, 31, 32, 33, 50, 49}, (50 + 49 + 33 + 32) / 4.0, true},
 	}
+	s := newTestSet(t, false)
 	for _, c := range cases {
-		var sats []detect.Satellite
-		for i, v := range c.cn0 {
-			sats = append(sats, detect.Satellite{PRN: i + 1, CN0DBHz: v})
+		s.ObserveCapture(Capture{Input: "roof", Record: okRecord("a.ci8", c.cn0...), Satellites: true, At: time.Now()})
+		n := testutil.CollectAndCount(s.cn0Mean)
+		if !c.ok {
+			if n != 0 {
+				t.Errorf("%v: %d cn0_mean series, want none", c.cn0, n)
+			}
+			continue
 		}
-		got, ok := StrongestMean(sats, 4)
-		if ok != c.ok || math.Abs(got-c.want) > 1e-12 {
-			t.Errorf("StrongestMean(%v) = %v, %v; want %v, %v", c.cn0, got, ok, c.want, c.ok)
-		}
-	}
-}
-
-func TestOpenAtEnd(t *testing.T) {
-	const n, blk = 100000, 1000
-	cases := []struct {
-		start, count int64
-		open         bool
-	}{
-		{0, n, true},
-		{n - blk, blk, true},          // the last block
-		{0, n - blk, true},            // ends where the last block starts
-		{0, n - blk - 1, false},       // one sample short
-		{n - 10, 10, true},            // a short event at the very end
-		{10, 10, false},               // early
-		{n - 2*blk, blk + 1, true},    // crosses into the last block
-		{n - 2*blk, blk - 1, false},   // stops before it
-		{n / 2, n / 2, true},          // second half
-		{n / 2, n/2 - blk - 1, false}, // ...cut short
-	}
-	for _, c := range cases {
-		got := OpenAtEnd([]detect.Event{event("cw", c.start, c.count, 3)}, n, blk)
-		if _, open := got["cw"]; open != c.open {
-			t.Errorf("event %d+%d in %d samples, block %d: open %v, want %v", c.start, c.count, n, blk, open, c.open)
+		if got := testutil.ToFloat64(s.cn0Mean.WithLabelValues("roof")); n != 1 || math.Abs(got-c.want) > 1e-12 {
+			t.Errorf("%v: cn0_mean %v (%d series), want %v", c.cn0, got, n, c.want)
 		}
 	}
 }
@@ -417,8 +406,8 @@ func TestRecent(t *testing.T) {
 func BenchmarkObserveCapture(b *testing.B) {
 	s := New(Options{Inputs: []string{"roof"}})
 	c := Capture{Input: "roof", Record: okRecord("a.ci8", 46, 44, 42, 45, 40, 39, 41, 43),
-		Events:       []detect.Event{event(detect.ClassCW, 0, 100000, 12), event(detect.ClassPulsed, 0, 5000, 15)},
-		BlockSamples: block, Bytes: 200000, Duration: time.Second, Elapsed: time.Second / 5, Satellites: true, At: time.Now()}
+		Events: []detect.Event{openEvent(detect.ClassCW, 0, 100000, 12), event(detect.ClassPulsed, 0, 5000, 15)},
+		Bytes:  200000, Duration: time.Second, Elapsed: time.Second / 5, Satellites: true, At: time.Now()}
 	for b.Loop() {
 		s.ObserveCapture(c)
 	}
@@ -429,9 +418,9 @@ func BenchmarkObserveCapture(b *testing.B) {
 // interference_active; a new emitter of the same class beside it does.
 func TestKnownEmitterRaisesNoAlert(t *testing.T) {
 	s := newTestSet(t, false)
-	spur := event(detect.ClassCW, 0, 100000, -10)
+	spur := openEvent(detect.ClassCW, 0, 100000, -10)
 	spur.Known, spur.KnownAs = true, "mast-head amplifier spur"
-	s.ObserveCapture(Capture{Input: "roof", Record: okRecord("a.ci8"), Events: []detect.Event{spur}, BlockSamples: block})
+	s.ObserveCapture(Capture{Input: "roof", Record: okRecord("a.ci8"), Events: []detect.Event{spur}})
 	get := func(name, class string) float64 {
 		var g *prometheus.GaugeVec
 		switch name {
@@ -445,8 +434,8 @@ func TestKnownEmitterRaisesNoAlert(t *testing.T) {
 	if get("active", detect.ClassCW) != 0 || get("known", detect.ClassCW) != 1 {
 		t.Errorf("known spur: interference_active %v, known_emitter_active %v; want 0 and 1", get("active", detect.ClassCW), get("known", detect.ClassCW))
 	}
-	jammer := event(detect.ClassCW, 0, 100000, 20)
-	s.ObserveCapture(Capture{Input: "roof", Record: okRecord("b.ci8"), Events: []detect.Event{spur, jammer}, BlockSamples: block})
+	jammer := openEvent(detect.ClassCW, 0, 100000, 20)
+	s.ObserveCapture(Capture{Input: "roof", Record: okRecord("b.ci8"), Events: []detect.Event{spur, jammer}})
 	if get("active", detect.ClassCW) != 1 || get("known", detect.ClassCW) != 1 {
 		t.Errorf("known spur and a new tone: interference_active %v, known_emitter_active %v; want 1 and 1", get("active", detect.ClassCW), get("known", detect.ClassCW))
 	}

@@ -570,7 +570,6 @@ func (d *daemon) handle(ctx context.Context, w ingest.Work) error {
 
 	mc := metrics.Capture{Input: w.Input, Record: rec, Events: events, At: time.Now(), Satellites: d.pipe.GNSS != nil}
 	if res != nil {
-		mc.BlockSamples = int64(d.pipe.BlockLen(w.Capture.SampleRate))
 		mc.Bytes = w.Capture.DataBytes
 		mc.Duration = w.Capture.Duration()
 		mc.Elapsed = res.Elapsed
