@@ -210,15 +210,20 @@ func WriteFileAtomic(path string, data []byte) error {
 	return SyncDir(dir)
 }
 
-// SyncDir fsyncs a directory so that a rename or create in it is durable.
+// SyncDir fsyncs a directory so that a file created, renamed or removed in
+// it survives a crash (the one definition: captures, the event log, the
+// baseline and moved files all use it).
 func SyncDir(dir string) error {
 	d, err := os.Open(dir)
 	if err != nil {
-		return err
+		return fmt.Errorf("syncing directory %s: %w", dir, err)
 	}
 	err = d.Sync()
 	if cerr := d.Close(); err == nil {
 		err = cerr
 	}
-	return err
+	if err != nil {
+		return fmt.Errorf("syncing directory %s: %w", dir, err)
+	}
+	return nil
 }

@@ -14,6 +14,8 @@ import (
 	"path/filepath"
 	"strconv"
 	"sync"
+
+	"quietband/ingest"
 )
 
 // ErrFailed is wrapped by every append to a Log whose earlier write, sync or
@@ -334,14 +336,14 @@ func (l *Log) rotate() error {
 	if err := os.Rename(l.path, seg); err != nil {
 		return err
 	}
-	if err := syncDir(dir); err != nil {
+	if err := ingest.SyncDir(dir); err != nil {
 		return err
 	}
 	f, err := os.OpenFile(l.path, os.O_RDWR|os.O_APPEND|os.O_CREATE|os.O_EXCL, 0o640)
 	if err != nil {
 		return err
 	}
-	if err := syncDir(dir); err != nil {
+	if err := ingest.SyncDir(dir); err != nil {
 		f.Close()
 		return err
 	}
@@ -416,7 +418,7 @@ func (l *Log) recover() error {
 	f, err := os.OpenFile(l.path, os.O_RDWR|os.O_APPEND|os.O_CREATE|os.O_EXCL, 0o640)
 	switch {
 	case err == nil:
-		if err := syncDir(filepath.Dir(l.path)); err != nil {
+		if err := ingest.SyncDir(filepath.Dir(l.path)); err != nil {
 			f.Close()
 			return fmt.Errorf("eventlog: creating %s: %w", l.path, err)
 		}

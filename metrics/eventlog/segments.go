@@ -109,20 +109,3 @@ func rotated(path string) ([]segment, error) {
 	})
 	return segs, nil
 }
-
-// syncDir fsyncs a directory so that a file created or renamed in it
-// survives a crash.
-func syncDir(dir string) error {
-	d, err := os.Open(dir)
-	if err != nil {
-		return err
-	}
-	err = d.Sync()
-	if cerr := d.Close(); err == nil {
-		err = cerr
-	}
-	if err != nil {
-		return fmt.Errorf("syncing directory %s: %w", dir, err)
-	}
-	return nil
-}
