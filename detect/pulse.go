@@ -413,7 +413,7 @@ func (d *Pulse) train(x []complex64, fs, noise float64, start int64, dec int, co
 	for j := range prof {
 		prof[j] = prof[j]/float64(used) - ns
 	}
-	peak, w := measureProfile(prof, max(1, int(math.Round(0.25e-6*fs))), &d.sm)
+	peak, w := measureProfile(prof, max(1, int(math.Round(0.25e-6*fs))), &d.sm, lowBit)
 	w /= fs
 	if w <= 0 || peak <= 0 {
 		return Finding{}, false
@@ -639,8 +639,12 @@ func (d *Pulse) threshold(k, pfa float64) float64 {
 // middle half of that extent (the maximum of a noisy plateau would be
 // biased upwards; on a Gaussian pulse the mean is about 0.3 dB under the
 // peak); the width is where the smoothed profile crosses a quarter of the
-// peak power, again inwards from both ends, interpolated linearly.
-func measureProfile(prof []float64, ls int, scratch *[]float64) (peak, width float64) {
+// peak power, again inwards from both ends, interpolated linearly. A
+// low-bit quantizer's counts (lowBit) saturate on a pulse's top, so dips
+// there are rare, while a profile of the few pulses of one block has
+// spikes near half the peak outside the pulse: its extents are searched
+// outwards from the maximum instead.
+func measureProfile(prof []float64, ls int, scratch *[]float64, lowBit bool) (peak, width float64) {
 	n := len(prof)
 	if cap(*scratch) < n {
 		*scratch = make([]float64, n)
@@ -658,14 +662,19 @@ func measureProfile(prof []float64, ls int, scratch *[]float64) (peak, width flo
 			sm[j] = run / float64(ls)
 		}
 	}
-	smax := 0.0
-	for _, v := range sm {
-		smax = math.Max(smax, v)
+	smax, at := 0.0, 0
+	for i, v := range sm {
+		if v > smax {
+			smax, at = v, i
+		}
 	}
 	if smax <= 0 {
 		return 0, 0
 	}
 	a, b := inward(sm, smax/2)
+	if lowBit {
+		a, b = around(sm, at, smax/2)
+	}
 	if a < 0 {
 		return 0, 0
 	}
@@ -677,6 +686,9 @@ func measureProfile(prof []float64, ls int, scratch *[]float64) (peak, width flo
 	peak = sum / float64(b-q-(a+q)+1)
 	lvl := peak / 4
 	l, r := inward(sm, lvl)
+	if lowBit {
+		l, r = around(sm, at, lvl)
+	}
 	if l <= 0 || r >= n-1 {
 		return peak, 0
 	}
@@ -700,6 +712,24 @@ func inward(v []float64, lvl float64) (int, int) {
 			b = i
 			break
 		}
+	}
+	return a, b
+}
+
+// around returns the first and last index of the stretch of v around at
+// that stays at or above lvl: the pulse the peak belongs to, whatever noise
+// elsewhere in the profile reaches (a profile averaged over few pulses of
+// a low-bit quantizer's counts has spikes near half its peak).
+func around(v []float64, at int, lvl float64) (int, int) {
+	if at < 0 || at >= len(v) || v[at] < lvl {
+		return -1, -1
+	}
+	a, b := at, at
+	for a > 0 && v[a-1] >= lvl {
+		a--
+	}
+	for b < len(v)-1 && v[b+1] >= lvl {
+		b++
 	}
 	return a, b
 }
