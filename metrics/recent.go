@@ -1,6 +1,8 @@
 package metrics
 
 import (
+	"errors"
+	"io"
 	"sync"
 
 	"quietband/metrics/eventlog"
@@ -98,4 +100,45 @@ func (r *Recent) Since(since uint64, limit int, events, captures bool) []eventlo
 		}
 	}
 	return out
+}
+
+// FillRecent gives recent the newest records of the log at path: the
+// segments are read from the newest back until they hold n records of
+// each kind (or the log's start is reached), and their records are added
+// oldest first. It returns the number of files read.
+func FillRecent(path string, recent *Recent, n int) (int, error) {
+	segs, err := eventlog.Segments(path)
+	if err != nil {
+		return 0, err
+	}
+	var tail []eventlog.Record // oldest first
+	events, captures, read := 0, 0, 0
+	for i := len(segs) - 1; i >= 0 && (events < n || captures < n); i-- {
+		ring := NewRecent(n)
+		r := eventlog.NewReader(segs[i])
+		for {
+			rec, err := r.Next()
+			if errors.Is(err, io.EOF) {
+				break
+			}
+			if err != nil {
+				r.Close()
+				return read, err
+			}
+			ring.Add(rec)
+		}
+		r.Close()
+		read++
+		got := ring.Since(0, 2*n, true, true)
+		for _, rec := range got {
+			if rec.Kind == eventlog.KindEvent {
+				events++
+			} else {
+				captures++
+			}
+		}
+		tail = append(got, tail...)
+	}
+	recent.Add(tail...)
+	return read, nil
 }

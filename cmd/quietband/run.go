@@ -3,8 +3,6 @@ package main
 import (
 	"bytes"
 	"context"
-	"crypto/sha256"
-	"encoding/hex"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -23,6 +21,7 @@ import (
 	"quietband/ingest"
 	"quietband/metrics"
 	"quietband/metrics/eventlog"
+	"quietband/metrics/ledger"
 )
 
 func init() {
@@ -153,7 +152,7 @@ type daemon struct {
 	log     *slog.Logger
 	level   *slog.LevelVar
 	elog    eventLog
-	ledger  *ledger
+	ledger  *ledger.Ledger
 	state   *detect.State
 	pipe    *detect.Pipeline
 	set     *metrics.Set
@@ -210,30 +209,31 @@ func newDaemon(cfg *runConfig, cfgPath string, over runOverrides, logOut io.Writ
 	// The ledger first: its lock keeps a second daemon from opening (and
 	// cutting a "torn" tail of) the log this one is writing.
 	t0 := time.Now()
-	lg, err := openLedger(cfg.StateDir, cfg.Log.Path, log)
+	lg, err := ledger.Open(cfg.StateDir, cfg.Log.Path, log)
 	if err != nil {
 		return nil, err
 	}
 	l, err := eventlog.Open(cfg.Log.Path, eventlog.Options{MaxBytes: cfg.Log.MaxBytes, Logger: log})
 	if err != nil {
-		lg.close()
+		lg.Close()
 		return nil, err
 	}
 	d.elog, d.ledger = l, lg
-	if err := lg.sync(); err != nil {
-		lg.close()
+	if err := lg.Sync(); err != nil {
+		lg.Close()
 		l.Close()
 		return nil, err
 	}
 	d.recent = metrics.NewRecent(metrics.DefaultRecent)
-	files, err := fillRecent(cfg.Log.Path, d.recent, metrics.DefaultRecent)
+	files, err := metrics.FillRecent(cfg.Log.Path, d.recent, metrics.DefaultRecent)
 	if err != nil {
-		lg.close()
+		lg.Close()
 		l.Close()
 		return nil, fmt.Errorf("reading the event log's newest records: %w", err)
 	}
-	log.Info("quietband run: ledger ready", "file", lg.path, "log", cfg.Log.Path, "records", l.LastSeq(), "captures_done", lg.captures(),
-		"applied", lg.applied, "full_scan", lg.fullScan, "log_files_read_for_recent", files, "head", l.Head(),
+	applied, fullScan := lg.LastSync()
+	log.Info("quietband run: ledger ready", "file", lg.Path(), "log", cfg.Log.Path, "records", l.LastSeq(), "captures_done", lg.Captures(),
+		"applied", applied, "full_scan", fullScan, "log_files_read_for_recent", files, "head", l.Head(),
 		"took", time.Since(t0).Round(time.Millisecond))
 	d.state = detect.NewState()
 	d.loadBaseline()
@@ -245,7 +245,7 @@ func newDaemon(cfg *runConfig, cfgPath string, over runOverrides, logOut io.Writ
 		if _, err := os.Stat(in.Path); errors.Is(err, os.ErrNotExist) {
 			log.Warn("quietband run: watched folder missing; creating it", "input", in.Name, "path", in.Path)
 			if err := os.MkdirAll(in.Path, 0o755); err != nil {
-				lg.close()
+				lg.Close()
 				l.Close()
 				return nil, fmt.Errorf("input %s: %w", in.Name, err)
 			}
@@ -257,7 +257,7 @@ func newDaemon(cfg *runConfig, cfgPath string, over runOverrides, logOut io.Writ
 	d.watcher, err = ingest.NewWatcher(ingest.WatchConfig{Inputs: watch, RescanInterval: cfg.RescanInterval,
 		QueueSize: cfg.QueueSize, Notify: cfg.notify(), Logger: log})
 	if err != nil {
-		lg.close()
+		lg.Close()
 		l.Close()
 		return nil, err
 	}
@@ -270,7 +270,7 @@ func newDaemon(cfg *runConfig, cfgPath string, over runOverrides, logOut io.Writ
 	d.server, err = metrics.NewServer(metrics.ServerOptions{Listen: cfg.Listen, WebConfigFile: cfg.WebConfigFile,
 		Gatherer: d.set.Registry(), Ready: d.notReady, Recent: d.recent, Logger: log.With("component", "http")})
 	if err != nil {
-		lg.close()
+		lg.Close()
 		l.Close()
 		return nil, err
 	}
@@ -378,7 +378,7 @@ loop:
 	if e := d.elog.Close(); e != nil && err == nil {
 		err = e
 	}
-	if e := d.ledger.close(); e != nil && err == nil {
+	if e := d.ledger.Close(); e != nil && err == nil {
 		err = e
 	}
 	d.log.Info("quietband run: stopped", "captures_recorded", d.processed.Load(), "last_seq", d.elog.LastSeq(), "head", d.elog.Head())
@@ -395,7 +395,7 @@ func (d *daemon) housekeeping(now time.Time) {
 	if d.baseDirty && now.Sub(d.baseSaved) >= baselineEvery {
 		d.saveBaseline()
 	}
-	d.ledger.save() // identities remembered, or records a failed write left
+	d.ledger.Save() // identities remembered, or records a failed write left
 	if now.Sub(d.lastAnchor) >= anchorEvery {
 		d.lastAnchor = now
 		d.log.Info("quietband run: event log head", "last_seq", d.elog.LastSeq(), "head", d.elog.Head())
@@ -458,24 +458,24 @@ func (d *daemon) handle(ctx context.Context, w ingest.Work) error {
 	// The identity of the file about to be read: what the ledger keeps
 	// with the record, so that the next sighting of the unchanged file
 	// needs no hashing.
-	id, idOK := identify(w.DataPath, follow)
+	id, idOK := ledger.Identify(w.DataPath, follow)
 	sha, hashed := "", false
 	prevReason, retrying := "", false
-	ent, known, err := d.ledger.lookup(name)
+	ent, known, err := d.ledger.Lookup(name)
 	if err != nil {
 		return err
 	}
 	if known {
 		var ok bool
-		if sha, ok = ent.shaFor(id, idOK); !ok {
+		if sha, ok = ent.SHAFor(id, idOK); !ok {
 			var stable bool
 			sha, stable = d.hashData(w.DataPath, follow, id, idOK)
-			if _, recorded := ent.outcome(sha); recorded && stable {
-				d.ledger.remember(name, id, sha)
+			if _, recorded := ent.Outcome(sha); recorded && stable {
+				d.ledger.Remember(name, id, sha)
 			}
 		}
 		hashed = true
-		if reason, ok := ent.outcome(sha); ok {
+		if reason, ok := ent.Outcome(sha); ok {
 			if reason == "" {
 				d.log.Debug("quietband run: already analysed", "capture", name, "input", w.Input)
 				return nil
@@ -517,7 +517,7 @@ func (d *daemon) handle(ctx context.Context, w ingest.Work) error {
 	if res != nil {
 		events = res.Events
 		for _, e := range res.Events {
-			dup, err := d.ledger.hasEvent(e.ID)
+			dup, err := d.ledger.HasEvent(e.ID)
 			if err != nil {
 				return err
 			}
@@ -554,13 +554,13 @@ func (d *daemon) handle(ctx context.Context, w ingest.Work) error {
 	d.processed.Add(1)
 	// Keep the identity only if the file still has it: one that changed
 	// while it was analysed is hashed at its next sighting.
-	var stamps []fileStamp
+	var stamps []ledger.Stamp
 	if idOK && rec.SHA256 != "" {
-		if now, ok := identify(w.DataPath, follow); ok && now == id {
-			stamps = append(stamps, fileStamp{name: name, id: id})
+		if now, ok := ledger.Identify(w.DataPath, follow); ok && now == id {
+			stamps = append(stamps, ledger.Stamp{Name: name, ID: id})
 		}
 	}
-	if err := d.ledger.note(recs, stamps...); err != nil {
+	if err := d.ledger.Note(recs, stamps...); err != nil {
 		// The record is in the log; the ledger retries (save), and a
 		// restart catches it up from the log in any case.
 		d.log.Debug("quietband run: ledger not updated yet", "capture", name, "err", err)
@@ -711,42 +711,14 @@ func pendingItems(items []eventlog.Item, got []eventlog.Record) []eventlog.Item 
 // hashData hashes a capture's data file (counted in d.hashes) and reports
 // whether the file kept identity id while it was read, so that the SHA-256
 // is that of the file with this identity.
-func (d *daemon) hashData(path string, follow bool, id fileID, idOK bool) (sha string, stable bool) {
+func (d *daemon) hashData(path string, follow bool, id ledger.FileID, idOK bool) (sha string, stable bool) {
 	d.hashes.Add(1)
-	sha = hashFile(path, follow)
+	sha = ledger.HashFile(path, follow)
 	if !idOK || sha == "" {
 		return sha, false
 	}
-	now, ok := identify(path, follow)
+	now, ok := ledger.Identify(path, follow)
 	return sha, ok && now == id
-}
-
-// hashFile is the lowercase hex SHA-256 of a regular file, "" if it cannot
-// be read. A symbolic link is followed only with follow.
-func hashFile(path string, follow bool) string {
-	// Stat first: opening a FIFO for reading would block until a writer
-	// came, stalling the daemon.
-	stat := os.Lstat
-	if follow {
-		stat = os.Stat
-	}
-	if st, err := stat(path); err != nil || !st.Mode().IsRegular() {
-		return ""
-	}
-	f, err := os.OpenFile(path, os.O_RDONLY|syscall.O_NONBLOCK, 0)
-	if err != nil {
-		return ""
-	}
-	defer f.Close()
-	st, err := f.Stat()
-	if err != nil || !st.Mode().IsRegular() {
-		return ""
-	}
-	h := sha256.New()
-	if _, err := io.Copy(h, f); err != nil {
-		return ""
-	}
-	return hex.EncodeToString(h.Sum(nil))
 }
 
 // loadBaseline reads state_dir/baseline.json if there is one. A file that
@@ -968,7 +940,7 @@ func (d *daemon) sweep(now time.Time) {
 				continue
 			}
 			name := filepath.ToSlash(rel)
-			ent, ok, err := d.ledger.lookup(name)
+			ent, ok, err := d.ledger.Lookup(name)
 			if err != nil {
 				d.log.Error("quietband run: retention: ledger", "capture", name, "err", err)
 				return
@@ -992,19 +964,19 @@ func (d *daemon) sweep(now time.Time) {
 			// Links are left alone (as the files they point to are not
 			// the daemon's to retire); the SHA-256 of an unchanged file
 			// comes from the ledger.
-			id, idOK := identify(w.DataPath, false)
+			id, idOK := ledger.Identify(w.DataPath, false)
 			if !idOK {
 				continue
 			}
-			sha, known := ent.shaFor(id, idOK)
+			sha, known := ent.SHAFor(id, idOK)
 			if !known {
 				var stable bool
 				sha, stable = d.hashData(w.DataPath, false, id, idOK)
-				if _, recorded := ent.outcome(sha); recorded && stable {
-					d.ledger.remember(name, id, sha)
+				if _, recorded := ent.Outcome(sha); recorded && stable {
+					d.ledger.Remember(name, id, sha)
 				}
 			}
-			if reason, ok := ent.outcome(sha); !ok || reason != "" {
+			if reason, ok := ent.Outcome(sha); !ok || reason != "" {
 				continue
 			}
 			n++

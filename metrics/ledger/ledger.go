@@ -1,30 +1,5 @@
-package main
-
-import (
-	"bytes"
-	"crypto/sha256"
-	"encoding/binary"
-	"encoding/hex"
-	"encoding/json"
-	"errors"
-	"fmt"
-	"io"
-	"io/fs"
-	"log/slog"
-	"os"
-	"path/filepath"
-	"runtime/debug"
-	"time"
-
-	bolt "go.etcd.io/bbolt"
-
-	"quietband/detect"
-	"quietband/metrics"
-	"quietband/metrics/eventlog"
-)
-
-// The ledger is what the event log says is done, kept on disk so that the
-// daemon neither holds the log's history in memory nor re-reads it (or the
+// Package ledger is what the event log says is done, kept on disk so that
+// the daemon neither holds the log's history in memory nor re-reads it (or the
 // captures) at every start. It is derived data: the event log stays the
 // record, and the ledger is caught up from it, or rebuilt from it, at start.
 //
@@ -63,30 +38,53 @@ import (
 // than turn that fsync off (NoSync: a power cut can then leave a file whose
 // meta page points at pages never written, which bbolt does not detect and
 // may crash on), commits are grouped: a note is written at once when the
-// last write is ledgerGroupWait old, else it waits (in memory, where
-// lookups see it) for the next write, at most ledgerGroupWait or
-// ledgerGroupMax records later, or housekeeping's. The file is then always
+// last write is GroupWait old, else it waits (in memory, where
+// lookups see it) for the next write, at most GroupWait or
+// GroupMax records later, or housekeeping's. The file is then always
 // a valid tree that lags the log by at most that much, and a start after a
 // crash applies the missing records again from the log (sync).
+package ledger
+
+import (
+	"bytes"
+	"crypto/sha256"
+	"encoding/binary"
+	"encoding/hex"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io/fs"
+	"log/slog"
+	"os"
+	"path/filepath"
+	"runtime/debug"
+	"time"
+
+	bolt "go.etcd.io/bbolt"
+
+	"quietband/detect"
+	"quietband/metrics/eventlog"
+)
 
 const (
-	ledgerFileName = "ledger.db"
+	// FileName is the ledger's file in the state folder.
+	FileName = "ledger.db"
 	// ledgerFormat is the layout version in meta/format; another value
 	// makes the ledger be rebuilt.
 	ledgerFormat = 1
-	// ledgerLockWait is how long opening waits for another process's lock
+	// LockWait is how long opening waits for another process's lock
 	// on the file before giving up.
-	ledgerLockWait = 2 * time.Second
+	LockWait = 2 * time.Second
 	// ledgerBatch is how many log records one transaction applies when the
 	// ledger is caught up or rebuilt from the log.
 	ledgerBatch = 2048
 	// refreshMax is how many identity refreshes wait before they are
 	// written without waiting for housekeeping.
 	refreshMax = 512
-	// ledgerGroupWait and ledgerGroupMax bound how long, and for how many
+	// GroupWait and GroupMax bound how long, and for how many
 	// records, noted records wait to be written with later ones.
-	ledgerGroupWait = 200 * time.Millisecond
-	ledgerGroupMax  = 1024
+	GroupWait = 200 * time.Millisecond
+	GroupMax  = 1024
 )
 
 var (
@@ -99,49 +97,25 @@ var (
 	keyCaptures    = []byte("captures")
 )
 
-// fileID is a data file's identity: what changes when its content can
-// have changed. dev and ino are 0 where the system has none.
-type fileID struct {
-	size, mtime, ctime int64 // bytes; modification and status change times, ns since 1970
-	dev, ino           uint64
-}
-
-// identify returns the identity of the file at path, following a symbolic
-// link when follow is set, and whether it is a regular file (the only kind
-// worth remembering).
-func identify(path string, follow bool) (fileID, bool) {
-	stat := os.Lstat
-	if follow {
-		stat = os.Stat
-	}
-	st, err := stat(path)
-	if err != nil || !st.Mode().IsRegular() {
-		return fileID{}, false
-	}
-	id := fileID{size: st.Size(), mtime: st.ModTime().UnixNano()}
-	id.dev, id.ino, id.ctime = sysIdentity(st)
-	return id, true
-}
-
 // outcome is one SHA-256 a capture was recorded with, and how.
 type outcome struct {
 	sha    string
 	reason string // "" analysed; else why it was quarantined
 }
 
-// captureEntry is what the ledger knows of one capture name.
-type captureEntry struct {
+// Entry is what the ledger knows of one capture name.
+type Entry struct {
 	outcomes []outcome
 	// The data file's identity when the latest record was written, and
 	// the SHA-256 it had; hasFile is false when none was kept (the record
 	// came from the log, or the file changed while it was analysed).
 	hasFile bool
-	file    fileID
+	file    FileID
 	fileSHA string
 }
 
 // outcome returns the recorded outcome of content with SHA-256 sha.
-func (e *captureEntry) outcome(sha string) (reason string, ok bool) {
+func (e *Entry) Outcome(sha string) (reason string, ok bool) {
 	for _, o := range e.outcomes {
 		if o.sha == sha {
 			return o.reason, true
@@ -152,7 +126,7 @@ func (e *captureEntry) outcome(sha string) (reason string, ok bool) {
 
 // shaFor returns the SHA-256 of the data file without reading it, when
 // the file still has the identity it had when the capture was recorded.
-func (e *captureEntry) shaFor(id fileID, ok bool) (string, bool) {
+func (e *Entry) SHAFor(id FileID, ok bool) (string, bool) {
 	if !ok || !e.hasFile || e.file != id {
 		return "", false
 	}
@@ -161,7 +135,7 @@ func (e *captureEntry) shaFor(id fileID, ok bool) (string, bool) {
 
 // record applies a capture record: content sha has the outcome reason, and
 // the data file had identity *file (nil: not known).
-func (e *captureEntry) record(sha, reason string, file *fileID) {
+func (e *Entry) record(sha, reason string, file *FileID) {
 	found := false
 	for i := range e.outcomes {
 		if e.outcomes[i].sha == sha {
@@ -175,7 +149,7 @@ func (e *captureEntry) record(sha, reason string, file *fileID) {
 	if e.hasFile {
 		e.file, e.fileSHA = *file, sha
 	} else {
-		e.file, e.fileSHA = fileID{}, ""
+		e.file, e.fileSHA = FileID{}, ""
 	}
 }
 
@@ -186,7 +160,7 @@ func (e *captureEntry) record(sha, reason string, file *fileID) {
 //
 // with each sha as 1 and 32 bytes when it is lowercase hex of 32 bytes,
 // else 0, uvarint length and the string.
-func (e *captureEntry) encode() []byte {
+func (e *Entry) encode() []byte {
 	b := make([]byte, 0, 16+len(e.outcomes)*40+48)
 	b = binary.AppendUvarint(b, uint64(len(e.outcomes)))
 	for _, o := range e.outcomes {
@@ -220,8 +194,8 @@ var errEntry = errors.New("malformed capture entry")
 
 // decodeEntry reverses encode. The strings are copies: b may be bbolt's
 // memory map, valid only within its transaction.
-func decodeEntry(b []byte) (captureEntry, error) {
-	var e captureEntry
+func decodeEntry(b []byte) (Entry, error) {
+	var e Entry
 	d := entryDecoder{b: b}
 	n := d.uvarint()
 	if n > uint64(len(b)) {
@@ -244,7 +218,7 @@ func decodeEntry(b []byte) (captureEntry, error) {
 		d.bad = true
 	}
 	if d.bad || len(d.b) != 0 {
-		return captureEntry{}, errEntry
+		return Entry{}, errEntry
 	}
 	return e, nil
 }
@@ -316,12 +290,12 @@ func eventKey(id string) []byte {
 	return append([]byte{1}, id...)
 }
 
-// fileStamp is the identity a capture's data file had when its record was
+// Stamp is the identity a capture's data file had when its record was
 // written (or, for a refresh, when it was hashed and found recorded).
-type fileStamp struct {
-	name string
-	id   fileID
-	sha  string // refreshes only: the SHA-256 the file had
+type Stamp struct {
+	Name string // the capture's name
+	ID   FileID
+	SHA  string // refreshes only: the SHA-256 the file had
 }
 
 // noteBatch is records noted together, their bodies, and the stamps of
@@ -329,13 +303,13 @@ type fileStamp struct {
 type noteBatch struct {
 	recs   []eventlog.Record
 	bodies []recordBody // bodies[i] is recs[i]'s; ok false if it does not decode
-	stamps []fileStamp
+	stamps []Stamp
 }
 
-func newBatch(recs []eventlog.Record, stamps []fileStamp) noteBatch {
+func newBatch(recs []eventlog.Record, stamps []Stamp) noteBatch {
 	b := noteBatch{recs: recs, bodies: make([]recordBody, len(recs)), stamps: stamps}
 	for i, rec := range recs {
-		b.bodies[i].ok = json.Unmarshal(rec.Line, &b.bodies[i]) == nil
+		b.bodies[i] = readBody(rec)
 	}
 	return b
 }
@@ -343,11 +317,12 @@ func newBatch(recs []eventlog.Record, stamps []fileStamp) noteBatch {
 // capNote is a capture record not yet written, as lookups apply it.
 type capNote struct {
 	sha, reason string
-	file        *fileID
+	file        *FileID
 }
 
-// ledger is the open ledger. It is used from the daemon's main loop only.
-type ledger struct {
+// Ledger is an open ledger. It is used from one goroutine (the daemon's
+// main loop).
+type Ledger struct {
 	path    string // state_dir/ledger.db
 	logPath string // the event log's active file
 	log     *slog.Logger
@@ -369,24 +344,24 @@ type ledger struct {
 	tailHead    [32]byte
 	lastWrite   time.Time
 	failLog     time.Time
-	groupWait   time.Duration // ledgerGroupWait; 0 writes every note at once
+	groupWait   time.Duration // GroupWait; 0 writes every note at once
 
-	refresh map[string]fileStamp // identities to remember, written by save
+	refresh map[string]Stamp // identities to remember, written by save
 
 	missing  bool // the file did not exist when opened
 	applied  int  // records applied by the last sync
 	fullScan bool // the last sync read the whole log (a new or rebuilt ledger)
 }
 
-// openLedger opens state_dir/ledger.db, taking its lock (so that a second
+// Open opens state_dir/ledger.db, taking its lock (so that a second
 // daemon on the same state folder fails at once with an error naming the
 // file), or makes it. A file that does not open as a bbolt database, is
 // shorter than its own pages say, fails bbolt's consistency check or lacks
 // what the ledger keeps is set aside (renamed with a suffix) with a
 // warning and a new one is started; sync then fills it from the log.
-func openLedger(stateDir, logPath string, log *slog.Logger) (*ledger, error) {
-	lg := &ledger{path: filepath.Join(stateDir, ledgerFileName), logPath: logPath, log: log, refresh: map[string]fileStamp{},
-		pendingCaps: map[string][]capNote{}, pendingIDs: map[string]struct{}{}, groupWait: ledgerGroupWait}
+func Open(stateDir, logPath string, log *slog.Logger) (*Ledger, error) {
+	lg := &Ledger{path: filepath.Join(stateDir, FileName), logPath: logPath, log: log, refresh: map[string]Stamp{},
+		pendingCaps: map[string][]capNote{}, pendingIDs: map[string]struct{}{}, groupWait: GroupWait}
 	st, err := os.Lstat(lg.path)
 	switch {
 	case errors.Is(err, fs.ErrNotExist):
@@ -401,7 +376,7 @@ func openLedger(stateDir, logPath string, log *slog.Logger) (*ledger, error) {
 	db, err := openBolt(lg.path)
 	if errors.Is(err, bolt.ErrTimeout) {
 		return nil, fmt.Errorf("ledger %s is locked by another process (another quietband run on state_dir %s?); waited %v",
-			lg.path, stateDir, ledgerLockWait)
+			lg.path, stateDir, LockWait)
 	}
 	why := ""
 	switch {
@@ -432,13 +407,13 @@ func openBolt(path string) (db *bolt.DB, err error) {
 			db, err = nil, fmt.Errorf("bbolt: %v", r)
 		}
 	}()
-	return bolt.Open(path, 0o640, &bolt.Options{Timeout: ledgerLockWait})
+	return bolt.Open(path, 0o640, &bolt.Options{Timeout: LockWait})
 }
 
 // load checks an opened file and reads its meta bucket into lg. It
 // returns why the file cannot be used, "" if it can. A file without any
 // bucket is new and is initialised.
-func (lg *ledger) load(db *bolt.DB) (why string) {
+func (lg *Ledger) load(db *bolt.DB) (why string) {
 	// A damaged file can make bbolt panic, and fault on its memory map
 	// (SetPanicOnFault turns that into a panic on this goroutine).
 	defer debug.SetPanicOnFault(debug.SetPanicOnFault(true))
@@ -535,7 +510,7 @@ func putMeta(m *bolt.Bucket, seq uint64, head [32]byte, n uint64) error {
 // reset sets the ledger file aside (renamed to ledger.db.<tag>-<UTC time>)
 // with a warning giving why, and starts an empty one. old, if not nil, is
 // the open old file; it is closed once the new one is open.
-func (lg *ledger) reset(old *bolt.DB, tag, why string) error {
+func (lg *Ledger) reset(old *bolt.DB, tag, why string) error {
 	aside := ""
 	if _, err := os.Lstat(lg.path); err == nil {
 		aside = lg.path + "." + tag + "-" + time.Now().UTC().Format("20060102T150405Z")
@@ -570,7 +545,7 @@ func (lg *ledger) reset(old *bolt.DB, tag, why string) error {
 }
 
 // dropUnsaved forgets the records not yet written (they are in the log).
-func (lg *ledger) dropUnsaved() {
+func (lg *Ledger) dropUnsaved() {
 	lg.unsaved = nil
 	clear(lg.pendingCaps)
 	clear(lg.pendingIDs)
@@ -583,7 +558,7 @@ var errStale = errors.New("ledger does not match the event log")
 // record at the ledger's seq is the one it applied (same SHA-256 of the
 // line), the records after it are applied; otherwise (the log was replaced,
 // cut or is shorter) the ledger is set aside and rebuilt from the whole log.
-func (lg *ledger) sync() error {
+func (lg *Ledger) Sync() error {
 	lg.applied, lg.fullScan = 0, lg.seq == 0
 	why, err := lg.catchUp()
 	if err == nil && why != "" {
@@ -610,7 +585,7 @@ func (lg *ledger) sync() error {
 // catchUp applies the log's records after lg.seq, in transactions of
 // ledgerBatch records. It returns why it cannot (the record at lg.seq is
 // not the one applied), having applied nothing.
-func (lg *ledger) catchUp() (string, error) {
+func (lg *Ledger) catchUp() (string, error) {
 	from, matched := lg.seq, lg.seq == 0
 	why := ""
 	batch := make([]eventlog.Record, 0, 64)
@@ -655,31 +630,53 @@ func (lg *ledger) catchUp() (string, error) {
 	return "", nil
 }
 
-// recordBody is what the ledger reads of a record.
+// recordBody is what the ledger takes from a record, read through the
+// record's own type (detect.Event, detect.CaptureRecord).
 type recordBody struct {
-	ID      string `json:"id"`
-	Capture string `json:"capture"`
-	SHA256  string `json:"sha256"`
-	Status  string `json:"status"`
-	Error   string `json:"error"`
 	ok      bool   // decoded
+	id      string // an event's id
+	capture string // a capture record's name, SHA-256 and outcome
+	sha     string
+	reason  string // "" analysed; else why it was quarantined
 }
 
-func (b recordBody) reason() string {
-	if b.Status == detect.StatusOK {
+// readBody reads rec through its own type. A field of a type that does
+// not match (a record written by another version) leaves the others read.
+func readBody(rec eventlog.Record) recordBody {
+	var typeErr *json.UnmarshalTypeError
+	decoded := func(err error) bool { return err == nil || errors.As(err, &typeErr) }
+	switch rec.Kind {
+	case eventlog.KindEvent:
+		var e detect.Event
+		if decoded(json.Unmarshal(rec.Line, &e)) {
+			return recordBody{ok: true, id: e.ID}
+		}
+	case eventlog.KindCapture:
+		var c detect.CaptureRecord
+		if decoded(json.Unmarshal(rec.Line, &c)) {
+			return recordBody{ok: true, capture: c.Capture, sha: c.SHA256, reason: Reason(c)}
+		}
+	}
+	return recordBody{}
+}
+
+// Reason is the outcome a capture record gives its content: "" when it was
+// analysed, else why it was quarantined.
+func Reason(c detect.CaptureRecord) string {
+	if c.Status == detect.StatusOK {
 		return ""
 	}
-	if b.Error != "" {
-		return b.Error
+	if c.Error != "" {
+		return c.Error
 	}
-	return b.Status
+	return c.Status
 }
 
 // stampFor returns the stamp of the capture name among stamps.
-func stampFor(stamps []fileStamp, name string) *fileID {
+func stampFor(stamps []Stamp, name string) *FileID {
 	for i := range stamps {
-		if stamps[i].name == name {
-			return &stamps[i].id
+		if stamps[i].Name == name {
+			return &stamps[i].ID
 		}
 	}
 	return nil
@@ -687,7 +684,7 @@ func stampFor(stamps []fileStamp, name string) *fileID {
 
 // write applies batches and refreshes in one transaction, with seq and
 // head of the last record.
-func (lg *ledger) write(batches []noteBatch, refresh map[string]fileStamp) error {
+func (lg *Ledger) write(batches []noteBatch, refresh map[string]Stamp) error {
 	seq, head, n := lg.seq, lg.head, lg.n
 	err := lg.db.Update(func(tx *bolt.Tx) error {
 		caps, evs, meta := tx.Bucket(bucketCaptures), tx.Bucket(bucketEvents), tx.Bucket(bucketMeta)
@@ -696,14 +693,14 @@ func (lg *ledger) write(batches []noteBatch, refresh map[string]fileStamp) error
 				if body := b.bodies[i]; body.ok {
 					switch rec.Kind {
 					case eventlog.KindEvent:
-						if body.ID != "" {
-							if err := evs.Put(eventKey(body.ID), nil); err != nil {
+						if body.id != "" {
+							if err := evs.Put(eventKey(body.id), nil); err != nil {
 								return err
 							}
 						}
 					case eventlog.KindCapture:
-						if body.Capture != "" {
-							added, err := putRecord(caps, body, stampFor(b.stamps, body.Capture))
+						if body.capture != "" {
+							added, err := putRecord(caps, body, stampFor(b.stamps, body.capture))
 							if err != nil {
 								return err
 							}
@@ -725,10 +722,10 @@ func (lg *ledger) write(batches []noteBatch, refresh map[string]fileStamp) error
 			if err != nil {
 				return fmt.Errorf("capture %q: %w", name, err)
 			}
-			if _, ok := e.outcome(st.sha); !ok {
+			if _, ok := e.Outcome(st.SHA); !ok {
 				continue
 			}
-			e.hasFile, e.file, e.fileSHA = st.sha != "", st.id, st.sha
+			e.hasFile, e.file, e.fileSHA = st.SHA != "", st.ID, st.SHA
 			if err := caps.Put([]byte(name), e.encode()); err != nil {
 				return err
 			}
@@ -744,22 +741,22 @@ func (lg *ledger) write(batches []noteBatch, refresh map[string]fileStamp) error
 
 // putRecord applies a capture record to its entry and reports whether the
 // name is new.
-func putRecord(caps *bolt.Bucket, body recordBody, file *fileID) (bool, error) {
-	key := []byte(body.Capture)
-	var e captureEntry
+func putRecord(caps *bolt.Bucket, body recordBody, file *FileID) (bool, error) {
+	key := []byte(body.capture)
+	var e Entry
 	v := caps.Get(key)
 	if v != nil {
 		var err error
 		if e, err = decodeEntry(v); err != nil {
-			return false, fmt.Errorf("capture %q: %w", body.Capture, err)
+			return false, fmt.Errorf("capture %q: %w", body.capture, err)
 		}
 	}
-	e.record(body.SHA256, body.reason(), file)
+	e.record(body.sha, body.reason, file)
 	return v == nil, caps.Put(key, e.encode())
 }
 
 // follows reports whether rec comes right after the last record noted.
-func (lg *ledger) follows(rec eventlog.Record) bool {
+func (lg *Ledger) follows(rec eventlog.Record) bool {
 	prev := hex.EncodeToString(lg.tailHead[:])
 	if lg.tailSeq == 0 {
 		prev = zeroPrev
@@ -772,22 +769,22 @@ const zeroPrev = "00000000000000000000000000000000000000000000000000000000000000
 
 // note records what the log just took (records returned by an append,
 // so fsynced), with the data files' identities. They are written at once,
-// or with later ones within ledgerGroupWait (see the top of this file);
+// or with later ones within GroupWait (see the top of this file);
 // until then, and while writing fails, they are kept in memory, where
 // lookups see them, and retried by the next note or save. Records that do
 // not follow the last one noted (the log was replaced or cut under the
 // daemon) make the ledger sync with the log.
-func (lg *ledger) note(recs []eventlog.Record, stamps ...fileStamp) error {
+func (lg *Ledger) Note(recs []eventlog.Record, stamps ...Stamp) error {
 	if len(recs) == 0 {
 		return nil
 	}
 	for _, st := range stamps {
-		delete(lg.refresh, st.name)
+		delete(lg.refresh, st.Name)
 	}
 	if !lg.follows(recs[0]) {
 		lg.log.Warn("quietband run: the event log is not where the ledger left it; bringing the ledger up to date from the log",
 			"ledger_seq", lg.tailSeq, "record_seq", recs[0].Seq)
-		return lg.sync()
+		return lg.Sync()
 	}
 	b := newBatch(recs, stamps)
 	lg.unsaved = append(lg.unsaved, b)
@@ -795,31 +792,31 @@ func (lg *ledger) note(recs []eventlog.Record, stamps ...fileStamp) error {
 		switch body := b.bodies[i]; {
 		case !body.ok:
 		case rec.Kind == eventlog.KindEvent:
-			lg.pendingIDs[body.ID] = struct{}{}
+			lg.pendingIDs[body.id] = struct{}{}
 		case rec.Kind == eventlog.KindCapture:
-			lg.pendingCaps[body.Capture] = append(lg.pendingCaps[body.Capture],
-				capNote{sha: body.SHA256, reason: body.reason(), file: stampFor(stamps, body.Capture)})
+			lg.pendingCaps[body.capture] = append(lg.pendingCaps[body.capture],
+				capNote{sha: body.sha, reason: body.reason, file: stampFor(stamps, body.capture)})
 		}
 	}
 	last := recs[len(recs)-1]
 	lg.tailSeq, lg.tailHead = last.Seq, sha256.Sum256(last.Line)
-	if time.Since(lg.lastWrite) < lg.groupWait && lg.waiting() < ledgerGroupMax {
+	if time.Since(lg.lastWrite) < lg.groupWait && lg.waiting() < GroupMax {
 		return nil
 	}
-	return lg.save()
+	return lg.Save()
 }
 
 // remember queues the identity a recorded capture's data file was hashed
 // with, so that later sightings need no hashing; save writes it.
-func (lg *ledger) remember(name string, id fileID, sha string) {
-	lg.refresh[name] = fileStamp{name: name, id: id, sha: sha}
+func (lg *Ledger) Remember(name string, id FileID, sha string) {
+	lg.refresh[name] = Stamp{Name: name, ID: id, SHA: sha}
 	if len(lg.refresh) >= refreshMax {
-		lg.save()
+		lg.Save()
 	}
 }
 
 // save writes what is noted or remembered but not yet in the file.
-func (lg *ledger) save() error {
+func (lg *Ledger) Save() error {
 	if len(lg.unsaved) == 0 && len(lg.refresh) == 0 {
 		return nil
 	}
@@ -841,7 +838,7 @@ func (lg *ledger) save() error {
 	return nil
 }
 
-func (lg *ledger) waiting() int {
+func (lg *Ledger) waiting() int {
 	n := 0
 	for _, b := range lg.unsaved {
 		n += len(b.recs)
@@ -852,11 +849,11 @@ func (lg *ledger) waiting() int {
 // lookup returns what the ledger knows of a capture name. An entry that
 // does not decode (the file was damaged under the daemon) makes the ledger
 // be rebuilt from the log, once.
-func (lg *ledger) lookup(name string) (captureEntry, bool, error) {
+func (lg *Ledger) Lookup(name string) (Entry, bool, error) {
 	e, ok, err := lg.get(name)
 	if errors.Is(err, errEntry) {
 		if err = lg.reset(lg.db, "bad", fmt.Sprintf("capture %q: %v", name, err)); err == nil {
-			if err = lg.sync(); err == nil {
+			if err = lg.Sync(); err == nil {
 				e, ok, err = lg.get(name)
 			}
 		}
@@ -864,8 +861,8 @@ func (lg *ledger) lookup(name string) (captureEntry, bool, error) {
 	return e, ok, err
 }
 
-func (lg *ledger) get(name string) (captureEntry, bool, error) {
-	var e captureEntry
+func (lg *Ledger) get(name string) (Entry, bool, error) {
+	var e Entry
 	found := false
 	if name != "" {
 		err := lg.db.View(func(tx *bolt.Tx) error {
@@ -879,7 +876,7 @@ func (lg *ledger) get(name string) (captureEntry, bool, error) {
 			return err
 		})
 		if err != nil {
-			return captureEntry{}, false, err
+			return Entry{}, false, err
 		}
 	}
 	for _, c := range lg.pendingCaps[name] {
@@ -890,7 +887,7 @@ func (lg *ledger) get(name string) (captureEntry, bool, error) {
 }
 
 // hasEvent reports whether an event with this id is in the log.
-func (lg *ledger) hasEvent(id string) (bool, error) {
+func (lg *Ledger) HasEvent(id string) (bool, error) {
 	found := false
 	if _, ok := lg.pendingIDs[id]; ok {
 		return true, nil
@@ -902,58 +899,25 @@ func (lg *ledger) hasEvent(id string) (bool, error) {
 	return found, err
 }
 
-// captures is the number of capture names recorded.
-func (lg *ledger) captures() uint64 { return lg.n }
+// Captures is the number of capture names recorded.
+func (lg *Ledger) Captures() uint64 { return lg.n }
 
-// close writes what waits and closes the file.
-func (lg *ledger) close() error {
+// Path is the ledger's file (state_dir/ledger.db).
+func (lg *Ledger) Path() string { return lg.path }
+
+// LastSync says what the last Sync did: how many log records it applied,
+// and whether it read the whole log (a new or rebuilt ledger).
+func (lg *Ledger) LastSync() (applied int, fullScan bool) { return lg.applied, lg.fullScan }
+
+// Close writes what waits and closes the file.
+func (lg *Ledger) Close() error {
 	if lg == nil || lg.db == nil {
 		return nil
 	}
-	err := lg.save()
+	err := lg.Save()
 	if cerr := lg.db.Close(); err == nil {
 		err = cerr
 	}
 	lg.db = nil
 	return err
-}
-
-// fillRecent gives recent the newest records of the log at path: the
-// segments are read from the newest back until they hold n records of
-// each kind (or the log's start is reached), and their records are added
-// oldest first. It returns the number of files read.
-func fillRecent(path string, recent *metrics.Recent, n int) (int, error) {
-	segs, err := eventlog.Segments(path)
-	if err != nil {
-		return 0, err
-	}
-	var tail []eventlog.Record // oldest first
-	events, captures, read := 0, 0, 0
-	for i := len(segs) - 1; i >= 0 && (events < n || captures < n); i-- {
-		ring := metrics.NewRecent(n)
-		r := eventlog.NewReader(segs[i])
-		for {
-			rec, err := r.Next()
-			if errors.Is(err, io.EOF) {
-				break
-			}
-			if err != nil {
-				r.Close()
-				return read, err
-			}
-			ring.Add(rec)
-		}
-		read++
-		got := ring.Since(0, 2*n, true, true)
-		for _, rec := range got {
-			if rec.Kind == eventlog.KindEvent {
-				events++
-			} else {
-				captures++
-			}
-		}
-		tail = append(got, tail...)
-	}
-	recent.Add(tail...)
-	return read, nil
 }

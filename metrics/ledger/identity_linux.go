@@ -1,4 +1,4 @@
-package main
+package ledger
 
 import (
 	"io/fs"

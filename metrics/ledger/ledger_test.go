@@ -1,13 +1,11 @@
-package main
+package ledger
 
 import (
 	"bytes"
-	"context"
 	"crypto/sha256"
 	"encoding/hex"
 	"encoding/json"
 	"fmt"
-	"io"
 	"log/slog"
 	"math/rand/v2"
 	"os"
@@ -15,15 +13,33 @@ import (
 	"runtime"
 	"slices"
 	"strings"
+	"sync"
 	"testing"
 	"time"
 
 	bolt "go.etcd.io/bbolt"
 
 	"quietband/detect"
-	"quietband/metrics"
 	"quietband/metrics/eventlog"
 )
+
+// syncBuffer collects a ledger's diagnostic log.
+type syncBuffer struct {
+	mu sync.Mutex
+	b  bytes.Buffer
+}
+
+func (s *syncBuffer) Write(p []byte) (int, error) {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.Write(p)
+}
+
+func (s *syncBuffer) String() string {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.String()
+}
 
 // hexSHA is the lowercase hex SHA-256 (FIPS 180-4) of s, computed with
 // crypto/sha256.
@@ -105,7 +121,9 @@ func readModel(t testing.TB, path string) model {
 	t.Helper()
 	m := model{caps: map[string]map[string]string{}}
 	err := eventlog.Scan(path, func(rec eventlog.Record) error {
-		var b logRecord
+		var b struct {
+			ID, Capture, SHA256, Status, Error string
+		}
 		if err := json.Unmarshal(rec.Line, &b); err != nil {
 			return err
 		}
@@ -132,17 +150,17 @@ func readModel(t testing.TB, path string) model {
 
 // checkAnswers: the ledger knows every capture of the model with the same
 // outcomes, every event id, and nothing else asked of it.
-func checkAnswers(t *testing.T, lg *ledger, m model) {
+func checkAnswers(t *testing.T, lg *Ledger, m model) {
 	t.Helper()
 	bad := 0
 	for name, shas := range m.caps {
-		e, ok, err := lg.lookup(name)
+		e, ok, err := lg.Lookup(name)
 		if err != nil || !ok || len(e.outcomes) != len(shas) {
 			t.Errorf("%s: found %v (%v), %d outcomes, want %d", name, ok, err, len(e.outcomes), len(shas))
 			bad++
 		}
 		for sha, reason := range shas {
-			if got, ok := e.outcome(sha); !ok || got != reason {
+			if got, ok := e.Outcome(sha); !ok || got != reason {
 				t.Errorf("%s: sha %.12s… outcome %q (%v), want %q", name, sha, got, ok, reason)
 				bad++
 			}
@@ -152,42 +170,42 @@ func checkAnswers(t *testing.T, lg *ledger, m model) {
 		}
 	}
 	for _, id := range m.ids {
-		if ok, err := lg.hasEvent(id); !ok || err != nil {
+		if ok, err := lg.HasEvent(id); !ok || err != nil {
 			t.Fatalf("event %s not known (%v)", id, err)
 		}
 	}
 	for _, absent := range []string{"nowhere.ci8", "d1/c999999.ci8"} {
-		if _, ok, _ := lg.lookup(absent); ok {
+		if _, ok, _ := lg.Lookup(absent); ok {
 			t.Errorf("%s is known but not in the log", absent)
 		}
 	}
-	if ok, _ := lg.hasEvent(hexSHA("no such event")[:24]); ok {
+	if ok, _ := lg.HasEvent(hexSHA("no such event")[:24]); ok {
 		t.Error("an id not in the log is known")
 	}
-	if got := lg.captures(); got != uint64(len(m.caps)) {
+	if got := lg.Captures(); got != uint64(len(m.caps)) {
 		t.Errorf("captures() = %d, want %d", got, len(m.caps))
 	}
 }
 
 // openTestLedger opens and syncs the ledger of state folder dir for the
 // log at logPath, logging into out.
-func openTestLedger(t *testing.T, dir, logPath string, out *syncBuffer) *ledger {
+func openTestLedger(t *testing.T, dir, logPath string, out *syncBuffer) *Ledger {
 	t.Helper()
-	lg, err := openLedger(dir, logPath, slog.New(slog.NewTextHandler(out, nil)))
+	lg, err := Open(dir, logPath, slog.New(slog.NewTextHandler(out, nil)))
 	if err != nil {
 		t.Fatal(err)
 	}
-	if err := lg.sync(); err != nil {
-		lg.close()
+	if err := lg.Sync(); err != nil {
+		lg.Close()
 		t.Fatal(err)
 	}
-	t.Cleanup(func() { lg.close() })
+	t.Cleanup(func() { lg.Close() })
 	return lg
 }
 
 func TestLedgerEntryEncoding(t *testing.T) {
-	id := fileID{size: 40000, mtime: 1764621296123456789, ctime: -5, dev: 2049, ino: 1 << 40}
-	good := []captureEntry{
+	id := FileID{size: 40000, mtime: 1764621296123456789, ctime: -5, dev: 2049, ino: 1 << 40}
+	good := []Entry{
 		{},
 		{outcomes: []outcome{{hexSHA("a"), ""}}},
 		{outcomes: []outcome{{hexSHA("a"), ""}, {"", "cannot read: permission denied"}, {"ABCDEF", "not lowercase hex"}},
@@ -215,7 +233,7 @@ func TestLedgerEntryEncoding(t *testing.T) {
 		}
 	}
 	// A lowercase hex SHA-256 takes 33 bytes, not 65.
-	if n := len((&captureEntry{outcomes: []outcome{{hexSHA("a"), ""}}}).encode()); n != 1+33+1+1 {
+	if n := len((&Entry{outcomes: []outcome{{hexSHA("a"), ""}}}).encode()); n != 1+33+1+1 {
 		t.Errorf("one outcome: %d bytes, want 36", n)
 	}
 	tests := []struct {
@@ -235,12 +253,12 @@ func TestLedgerEntryEncoding(t *testing.T) {
 }
 
 func TestLedgerEntryRecord(t *testing.T) {
-	id := fileID{size: 1, mtime: 2, dev: 3, ino: 4}
+	id := FileID{size: 1, mtime: 2, dev: 3, ino: 4}
 	a, b := hexSHA("a"), hexSHA("b")
-	var e captureEntry
+	var e Entry
 	steps := []struct {
 		sha, reason string
-		file        *fileID
+		file        *FileID
 		outcomes    []outcome
 		hasFile     bool
 	}{
@@ -254,93 +272,13 @@ func TestLedgerEntryRecord(t *testing.T) {
 		if !slices.Equal(e.outcomes, s.outcomes) || e.hasFile != s.hasFile {
 			t.Fatalf("step %d: %+v", i, e)
 		}
-		if sha, ok := e.shaFor(id, true); ok != s.hasFile || ok && sha != s.sha {
+		if sha, ok := e.SHAFor(id, true); ok != s.hasFile || ok && sha != s.sha {
 			t.Errorf("step %d: shaFor = %q, %v", i, sha, ok)
 		}
-		if _, ok := e.shaFor(fileID{size: 1, mtime: 3, dev: 3, ino: 4}, true); ok {
+		if _, ok := e.SHAFor(FileID{size: 1, mtime: 3, dev: 3, ino: 4}, true); ok {
 			t.Errorf("step %d: another mtime matches", i)
 		}
 	}
-}
-
-// TestLedgerRestartHashesNothing: after a restart over N recorded
-// captures, none is read to be hashed; a capture rewritten in place, one
-// replaced by a rename and one touched are hashed (their identity
-// changed), the first two analysed again; the next restart hashes none.
-func TestLedgerRestartHashesNothing(t *testing.T) {
-	const n = 300
-	s := newSite(t, "")
-	rd := startDaemon(t, s)
-	for i := range n {
-		dropCapture(t, filepath.Join(s.in, fmt.Sprintf("h%d", i%6), fmt.Sprintf("c%03d.ci8", i)), ci8Capture(uint64(3000+i), false))
-	}
-	// A link inside the watched folder: analysed through the link, and
-	// recognised through it after a restart.
-	os.MkdirAll(filepath.Join(s.in, "targets"), 0o755)
-	os.WriteFile(filepath.Join(s.in, "targets", "t.ci8.bin"), ci8Capture(3999, false), 0o644)
-	os.Symlink("../targets/t.ci8.bin", filepath.Join(s.in, "h0", "link.ci8"))
-	waitFor(t, 60*time.Second, "every capture recorded", func() bool { return countCaptures(t, s.logPath) == n+1 })
-	if err := rd.stop(); err != nil {
-		t.Fatal(err)
-	}
-
-	changes := []struct {
-		name     string
-		change   func(path string)
-		hashed   bool
-		analysed bool // a new capture record
-	}{
-		{"h1/c001.ci8", func(p string) { os.WriteFile(p, ci8Capture(4001, false), 0o644) }, true, true},
-		{"h2/c002.ci8", func(p string) { dropCapture(t, p, ci8Capture(4002, false)) }, true, true},
-		{"h3/c003.ci8", func(p string) { now := time.Now(); os.Chtimes(p, now, now) }, true, false},
-		{"h4/c004.ci8", func(string) {}, false, false},
-		{"h0/link.ci8", func(string) {}, false, false},
-	}
-	wantHashes, wantNew := 0, 0
-	for _, c := range changes {
-		c.change(filepath.Join(s.in, c.name))
-		if c.hashed {
-			wantHashes++
-		}
-		if c.analysed {
-			wantNew++
-		}
-	}
-	settled := func(rd *runningDaemon) func() bool {
-		return func() bool {
-			st := rd.d.watcher.Stats()
-			return st.Rescans >= 1 && st.Backlog == 0 && st.Pending == 0
-		}
-	}
-	before := captureRecords(readLog(t, s.logPath))
-	rd = startDaemon(t, s)
-	waitFor(t, 20*time.Second, "the start scan handled", settled(rd))
-	waitFor(t, 20*time.Second, "the changed captures recorded", func() bool { return countCaptures(t, s.logPath) == n+1+wantNew })
-	time.Sleep(300 * time.Millisecond)
-	if got := rd.d.hashes.Load(); got != int64(wantHashes) {
-		t.Errorf("restart over %d recorded captures hashed %d files, want %d (the changed ones)", n+1, got, wantHashes)
-	}
-	after := captureRecords(readLog(t, s.logPath))
-	for _, c := range changes {
-		if got := len(after[c.name]) - len(before[c.name]); got != map[bool]int{false: 0, true: 1}[c.analysed] {
-			t.Errorf("%s: %d new capture records, want analysed again %v", c.name, got, c.analysed)
-		}
-	}
-	if err := rd.stop(); err != nil {
-		t.Fatal(err)
-	}
-	// The touched capture's identity was remembered when it was found
-	// recorded: the next restart reads nothing.
-	rd = startDaemon(t, s)
-	waitFor(t, 20*time.Second, "the start scan handled", settled(rd))
-	time.Sleep(300 * time.Millisecond)
-	if got := rd.d.hashes.Load(); got != 0 {
-		t.Errorf("second restart hashed %d files, want 0", got)
-	}
-	if got := countCaptures(t, s.logPath); got != n+1+wantNew {
-		t.Errorf("second restart: %d capture records, want %d", got, n+1+wantNew)
-	}
-	checkLog(t, s.logPath)
 }
 
 // TestLedgerHeap: noting 100 000 capture records leaves the heap about
@@ -348,7 +286,7 @@ func TestLedgerRestartHashesNothing(t *testing.T) {
 // is what does not grow with the records: bbolt keeps the tree in its
 // memory map (page cache, not heap) and the Go heap holds the freelist and,
 // during a write, the nodes of the pages it changes (a group of at most
-// ledgerGroupMax records). The same records in the former maps take about
+// GroupMax records). The same records in the former maps take about
 // 30 MiB (logged); the file holds about 10 MB.
 func TestLedgerHeap(t *testing.T) {
 	n := 100_000
@@ -371,7 +309,7 @@ func TestLedgerHeap(t *testing.T) {
 		recs = append(recs, c.rec(eventlog.KindCapture, fmt.Sprintf(`"capture":"d%d/c%06d.ci8","sha256":"%s","status":"ok","events":0`,
 			i%7, i, hexSHA(fmt.Sprint(i)))))
 		if len(recs) == cap(recs) {
-			if err := lg.note(recs); err != nil {
+			if err := lg.Note(recs); err != nil {
 				t.Fatal(err)
 			}
 			recs = make([]eventlog.Record, 0, 100)
@@ -385,14 +323,14 @@ func TestLedgerHeap(t *testing.T) {
 	for i := 1000; i < n; i++ {
 		note(i)
 	}
-	if err := lg.save(); err != nil {
+	if err := lg.Save(); err != nil {
 		t.Fatal(err)
 	}
 	h1 := heap()
 	for i := range n {
 		name := fmt.Sprintf("d%d/c%06d.ci8", i%7, i)
-		e, ok, err := lg.lookup(name)
-		if r, known := e.outcome(hexSHA(fmt.Sprint(i))); err != nil || !ok || !known || r != "" {
+		e, ok, err := lg.Lookup(name)
+		if r, known := e.Outcome(hexSHA(fmt.Sprint(i))); err != nil || !ok || !known || r != "" {
 			t.Fatalf("%s: %v %v %v %q", name, ok, err, known, r)
 		}
 	}
@@ -467,10 +405,10 @@ func TestLedgerDamaged(t *testing.T) {
 			m := readModel(t, logPath)
 			lg := openTestLedger(t, dir, logPath, &syncBuffer{})
 			checkAnswers(t, lg, m)
-			if err := lg.close(); err != nil {
+			if err := lg.Close(); err != nil {
 				t.Fatal(err)
 			}
-			tt.damage(t, filepath.Join(dir, ledgerFileName))
+			tt.damage(t, filepath.Join(dir, FileName))
 
 			out := &syncBuffer{}
 			lg = openTestLedger(t, dir, logPath, out)
@@ -481,7 +419,7 @@ func TestLedgerDamaged(t *testing.T) {
 			if warned := strings.Contains(out.String(), "level=WARN"); warned != tt.rebuilt || !strings.Contains(out.String(), tt.warn) {
 				t.Errorf("log %q, want a warning with %q: %v", out.String(), tt.warn, tt.rebuilt)
 			}
-			aside, _ := filepath.Glob(filepath.Join(dir, ledgerFileName+".bad-*"))
+			aside, _ := filepath.Glob(filepath.Join(dir, FileName+".bad-*"))
 			if (len(aside) == 1) != tt.aside {
 				t.Errorf("set aside: %q, want one file %v", aside, tt.aside)
 			}
@@ -529,7 +467,7 @@ func TestLedgerLogChanged(t *testing.T) {
 			writeLog(t, logPath, 0, 3000, 64<<10)
 			lg := openTestLedger(t, dir, logPath, &syncBuffer{})
 			seq := lg.seq
-			lg.close()
+			lg.Close()
 			tt.change(t, logPath)
 
 			out := &syncBuffer{}
@@ -554,7 +492,7 @@ func TestLedgerLogChanged(t *testing.T) {
 			if !tt.rebuilt && lg.applied != int(lg.seq-seq) {
 				t.Errorf("%d records applied, want the %d after seq %d", lg.applied, lg.seq-seq, seq)
 			}
-			aside, _ := filepath.Glob(filepath.Join(dir, ledgerFileName+".stale-*"))
+			aside, _ := filepath.Glob(filepath.Join(dir, FileName+".stale-*"))
 			if (len(aside) == 1) != tt.rebuilt {
 				t.Errorf("set aside: %q, want one file %v", aside, tt.rebuilt)
 			}
@@ -594,154 +532,6 @@ func removeLog(t *testing.T, path string) {
 	}
 }
 
-// TestLedgerCaughtUpByDaemon: the daemon killed between the log's fsync
-// and the ledger's write (here: the ledger's last records undone by
-// writing the log behind its back) applies the missing records at start
-// and analyses nothing again.
-func TestLedgerCaughtUpByDaemon(t *testing.T) {
-	s := newSite(t, "")
-	rd := startDaemon(t, s)
-	for i := range 6 {
-		dropCapture(t, filepath.Join(s.in, fmt.Sprintf("u%d.ci8", i)), ci8Capture(uint64(5100+i), i == 2))
-	}
-	waitFor(t, 20*time.Second, "6 records", func() bool { return countCaptures(t, s.logPath) == 6 })
-	rd.stop()
-	// Three more captures recorded in the log only (as a daemon that
-	// died right after its append would leave them).
-	l, err := eventlog.Open(s.logPath, eventlog.Options{})
-	if err != nil {
-		t.Fatal(err)
-	}
-	for i := 6; i < 9; i++ {
-		name := fmt.Sprintf("u%d.ci8", i)
-		data := ci8Capture(uint64(5100+i), false)
-		dropCapture(t, filepath.Join(s.in, name), data)
-		h := sha256.Sum256(data)
-		if _, err := l.Append(eventlog.KindCapture, detect.CaptureRecord{Capture: name, SHA256: hex.EncodeToString(h[:]),
-			Status: detect.StatusOK, Format: "ci8", Samples: runSamples}); err != nil {
-			t.Fatal(err)
-		}
-	}
-	l.Close()
-	rd = startDaemon(t, s)
-	waitFor(t, 20*time.Second, "the start scan handled", func() bool {
-		st := rd.d.watcher.Stats()
-		return st.Rescans >= 1 && st.Backlog == 0 && st.Pending == 0
-	})
-	time.Sleep(300 * time.Millisecond)
-	if lg := rd.d.ledger; lg.applied != 3 || lg.fullScan {
-		t.Errorf("start applied %d records (full scan %v), want the 3 the ledger missed", lg.applied, lg.fullScan)
-	}
-	if got := countCaptures(t, s.logPath); got != 9 {
-		t.Errorf("%d capture records, want 9: the caught-up captures were analysed again", got)
-	}
-	// The three were recorded without an identity: hashed once, found done.
-	if got := rd.d.hashes.Load(); got != 3 {
-		t.Errorf("%d files hashed, want 3", got)
-	}
-}
-
-// TestLedgerSameDataTwoNames: event ids come from the data's SHA-256, not
-// the capture's name, so the same bytes under a second name give the same
-// ids: they must not be written twice (which keeping only the ids of
-// captures in flight would allow).
-func TestLedgerSameDataTwoNames(t *testing.T) {
-	s := newSite(t, "")
-	rd := startDaemon(t, s)
-	data := ci8Capture(5200, true)
-	dropCapture(t, filepath.Join(s.in, "first.ci8"), data)
-	waitFor(t, 20*time.Second, "the first", func() bool { return countCaptures(t, s.logPath) == 1 })
-	// After a restart too, the id is known from the ledger file.
-	rd.stop()
-	rd = startDaemon(t, s)
-	dropCapture(t, filepath.Join(s.in, "copy", "second.ci8"), data)
-	waitFor(t, 20*time.Second, "the second", func() bool { return countCaptures(t, s.logPath) == 2 })
-	recs := checkLog(t, s.logPath) // no id twice
-	caps := captureRecords(recs)
-	if a, b := caps["first.ci8"], caps["copy/second.ci8"]; len(a) != 1 || len(b) != 1 || a[0].Events == 0 || a[0].Events != b[0].Events {
-		t.Errorf("records %+v and %+v, want one each with the same event count (the tone)", a, b)
-	}
-	if !strings.Contains(rd.out.String(), "event already in the log") {
-		t.Error("the second capture's events were not recognised as in the log")
-	}
-}
-
-// TestLedgerSecondDaemon: a second daemon on the same state folder stops
-// at start with an error naming the ledger file, within the lock wait,
-// and leaves the first one's log alone.
-func TestLedgerSecondDaemon(t *testing.T) {
-	s := newSite(t, "")
-	startDaemon(t, s)
-	dropCapture(t, filepath.Join(s.in, "x.ci8"), ci8Capture(5300, false))
-	waitFor(t, 20*time.Second, "a record", func() bool { return countCaptures(t, s.logPath) == 1 })
-	logBefore := mustRead(t, s.logPath)
-	cfg, err := loadRunConfig(s.cfgPath, runOverrides{})
-	if err != nil {
-		t.Fatal(err)
-	}
-	done := make(chan error, 1)
-	go func() {
-		d, err := newDaemon(cfg, s.cfgPath, runOverrides{}, &syncBuffer{})
-		if err == nil {
-			d.run(canceled(), nil)
-		}
-		done <- err
-	}()
-	select {
-	case err = <-done:
-	case <-time.After(10 * ledgerLockWait):
-		t.Fatal("the second daemon hangs")
-	}
-	want := filepath.Join(s.state, ledgerFileName)
-	if err == nil || !strings.Contains(err.Error(), want) || !strings.Contains(err.Error(), "locked") {
-		t.Errorf("second daemon: %v, want an error naming %s as locked", err, want)
-	}
-	if !bytes.Equal(mustRead(t, s.logPath), logBefore) {
-		t.Error("the second daemon changed the event log")
-	}
-}
-
-func canceled() context.Context {
-	ctx, cancel := context.WithCancel(context.Background())
-	cancel()
-	return ctx
-}
-
-// TestFillRecent: the ring for /api/events gets the newest records of each
-// kind, as a full scan would give it, reading only the newest segments.
-func TestFillRecent(t *testing.T) {
-	dir := t.TempDir()
-	logPath := filepath.Join(dir, "events.jsonl")
-	writeLog(t, logPath, 0, 3000, 16<<10)
-	segs, _ := eventlog.Segments(logPath)
-	for _, n := range []int{1, 5, 200, 5000} {
-		t.Run(fmt.Sprint(n), func(t *testing.T) {
-			want := metrics.NewRecent(n)
-			if err := eventlog.Scan(logPath, func(r eventlog.Record) error { want.Add(r); return nil }); err != nil {
-				t.Fatal(err)
-			}
-			got := metrics.NewRecent(n)
-			files, err := fillRecent(logPath, got, n)
-			if err != nil {
-				t.Fatal(err)
-			}
-			w, g := want.Since(0, 4*n, true, true), got.Since(0, 4*n, true, true)
-			if len(g) != len(w) {
-				t.Fatalf("%d records, want %d", len(g), len(w))
-			}
-			for i := range w {
-				if g[i].Seq != w[i].Seq || !bytes.Equal(g[i].Line, w[i].Line) {
-					t.Fatalf("record %d: seq %d, want %d", i, g[i].Seq, w[i].Seq)
-				}
-			}
-			if n <= 200 && files >= len(segs)/2 {
-				t.Errorf("read %d of %d files for %d records of each kind", files, len(segs), n)
-			}
-			t.Logf("n %d: %d of %d files read", n, files, len(segs))
-		})
-	}
-}
-
 // BenchmarkLedgerNote measures noting one capture (an event and its
 // capture record) in the ledger: written at once (a bbolt commit with its
 // fsyncs each time) or grouped as the daemon does.
@@ -749,14 +539,14 @@ func BenchmarkLedgerNote(b *testing.B) {
 	for _, bc := range []struct {
 		name string
 		wait time.Duration
-	}{{"each", 0}, {"grouped", ledgerGroupWait}} {
+	}{{"each", 0}, {"grouped", GroupWait}} {
 		b.Run(bc.name, func(b *testing.B) {
 			dir := b.TempDir()
-			lg, err := openLedger(dir, filepath.Join(dir, "events.jsonl"), slog.New(slog.DiscardHandler))
+			lg, err := Open(dir, filepath.Join(dir, "events.jsonl"), slog.New(slog.DiscardHandler))
 			if err != nil {
 				b.Fatal(err)
 			}
-			defer lg.close()
+			defer lg.Close()
 			lg.groupWait = bc.wait
 			var c chainer
 			i := 0
@@ -765,12 +555,12 @@ func BenchmarkLedgerNote(b *testing.B) {
 					c.rec(eventlog.KindEvent, fmt.Sprintf(`"id":"%024x","class":"cw","capture":"c%d.ci8"`, i, i)),
 					c.rec(eventlog.KindCapture, fmt.Sprintf(`"capture":"c%d.ci8","sha256":"%064x","status":"ok","events":1`, i, i)),
 				}
-				if err := lg.note(recs, fileStamp{name: fmt.Sprintf("c%d.ci8", i), id: fileID{size: int64(i), mtime: 1}}); err != nil {
+				if err := lg.Note(recs, Stamp{Name: fmt.Sprintf("c%d.ci8", i), ID: FileID{size: int64(i), mtime: 1}}); err != nil {
 					b.Fatal(err)
 				}
 				i++
 			}
-			if err := lg.save(); err != nil {
+			if err := lg.Save(); err != nil {
 				b.Fatal(err)
 			}
 		})
@@ -781,76 +571,136 @@ func BenchmarkLedgerNote(b *testing.B) {
 // ledger of 10 000: the lookup, and the identity of its data file.
 func BenchmarkLedgerLookup(b *testing.B) {
 	dir := b.TempDir()
-	lg, err := openLedger(dir, filepath.Join(dir, "events.jsonl"), slog.New(slog.DiscardHandler))
+	lg, err := Open(dir, filepath.Join(dir, "events.jsonl"), slog.New(slog.DiscardHandler))
 	if err != nil {
 		b.Fatal(err)
 	}
-	defer lg.close()
+	defer lg.Close()
 	var c chainer
 	for i := range 10000 {
-		lg.note([]eventlog.Record{c.rec(eventlog.KindCapture, fmt.Sprintf(`"capture":"c%05d.ci8","sha256":"%064x","status":"ok"`, i, i))})
+		lg.Note([]eventlog.Record{c.rec(eventlog.KindCapture, fmt.Sprintf(`"capture":"c%05d.ci8","sha256":"%064x","status":"ok"`, i, i))})
 	}
-	lg.save()
+	lg.Save()
 	data := filepath.Join(dir, "data.ci8")
 	os.WriteFile(data, make([]byte, 40000), 0o644)
 	i := 0
 	for b.Loop() {
-		e, ok, err := lg.lookup(fmt.Sprintf("c%05d.ci8", i%10000))
+		e, ok, err := lg.Lookup(fmt.Sprintf("c%05d.ci8", i%10000))
 		if !ok || err != nil || len(e.outcomes) != 1 {
 			b.Fatal(ok, err)
 		}
-		identify(data, true)
+		Identify(data, true)
 		i++
 	}
 }
 
-// BenchmarkDaemonStart measures a daemon's start over an archive of
-// recorded captures, from newDaemon until every capture of the start scan
-// has been taken and the daemon has stopped: 300 captures of 40 kB, or 30
-// of 4 MB.
-func BenchmarkDaemonStart(b *testing.B) {
-	for _, bc := range []struct{ n, samples int }{{300, runSamples}, {30, 100 * runSamples}} {
-		b.Run(fmt.Sprintf("%dx%dkB", bc.n, 2*bc.samples/1000), func(b *testing.B) {
-			s := newSite(b, "")
-			rd := startDaemon(b, s)
-			for i := range bc.n {
-				data := make([]byte, 0, 2*bc.samples)
-				for len(data) < 2*bc.samples {
-					data = append(data, ci8Capture(uint64(i*1000+len(data)), false)...)
-				}
-				dropCapture(b, filepath.Join(s.in, fmt.Sprintf("s%03d.ci8", i)), data[:2*bc.samples])
-			}
-			waitFor(b, 120*time.Second, "every capture recorded", func() bool { return countCaptures(b, s.logPath) == bc.n })
-			if err := rd.stop(); err != nil {
-				b.Fatal(err)
-			}
-			cfg, err := loadRunConfig(s.cfgPath, runOverrides{})
-			if err != nil {
-				b.Fatal(err)
-			}
-			for b.Loop() {
-				d, err := newDaemon(cfg, s.cfgPath, runOverrides{}, io.Discard)
-				if err != nil {
-					b.Fatal(err)
-				}
-				ctx, cancel := context.WithCancel(context.Background())
-				done := make(chan error, 1)
-				go func() { done <- d.run(ctx, nil) }()
-				for {
-					st := d.watcher.Stats()
-					if st.Rescans >= 1 && st.Backlog == 0 && st.Pending == 0 && len(d.watcher.Work()) == 0 {
-						break
-					}
-					time.Sleep(time.Millisecond)
-				}
-				cancel()
-				if err := <-done; err != nil {
-					b.Fatal(err)
-				}
-			}
-			if got := countCaptures(b, s.logPath); got != bc.n {
-				b.Errorf("%d capture records after the restarts, want %d", got, bc.n)
-			}
-		})
+// TestLedgerNoteLookupReopen: what is noted is answered at once (grouped
+// records wait in memory), survives Save, Close and a reopen (the file
+// then matches the log's head: nothing to catch up); a data file's stamp
+// gives its SHA-256 back only for the same identity; Remember adds an
+// identity to a recorded name; and records that do not follow the last
+// one noted (the log replaced under the ledger) make it sync with the log.
+func TestLedgerNoteLookupReopen(t *testing.T) {
+	dir := t.TempDir()
+	logPath := filepath.Join(dir, "events.jsonl")
+	l, err := eventlog.Open(logPath, eventlog.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer l.Close()
+	lg := openTestLedger(t, dir, logPath, &syncBuffer{})
+	lg.groupWait = time.Hour // every note waits for Save
+	data := filepath.Join(dir, "a.ci8")
+	os.WriteFile(data, []byte("samples"), 0o644)
+	id, ok := Identify(data, false)
+	if !ok {
+		t.Fatal("no identity for a regular file")
+	}
+	sha := HashFile(data, false)
+	if want := hexSHA("samples"); sha != want {
+		t.Fatalf("HashFile = %s, want %s (crypto/sha256)", sha, want)
+	}
+	recs, err := l.AppendBatch([]eventlog.Item{
+		{Kind: eventlog.KindEvent, Body: detect.Event{ID: "00aa11bb22cc33dd44ee55ff", Class: detect.ClassCW, Capture: "a.ci8"}},
+		{Kind: eventlog.KindCapture, Body: detect.CaptureRecord{Capture: "a.ci8", SHA256: sha, Status: detect.StatusOK, Events: 1}},
+		{Kind: eventlog.KindCapture, Body: detect.CaptureRecord{Capture: "b.ci8", Status: detect.StatusQuarantined, Error: "b.ci8: zero length"}},
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := lg.Note(recs, Stamp{Name: "a.ci8", ID: id}); err != nil {
+		t.Fatal(err)
+	}
+	check := func(when string) {
+		t.Helper()
+		e, ok, err := lg.Lookup("a.ci8")
+		if r, known := e.Outcome(sha); err != nil || !ok || !known || r != "" {
+			t.Errorf("%s: a.ci8: %v %v %v %q", when, ok, err, known, r)
+		}
+		if got, ok := e.SHAFor(id, true); !ok || got != sha {
+			t.Errorf("%s: a.ci8's SHA-256 from its identity: %q %v", when, got, ok)
+		}
+		if _, ok := e.SHAFor(FileID{size: id.size + 1, mtime: id.mtime, ctime: id.ctime, dev: id.dev, ino: id.ino}, true); ok {
+			t.Errorf("%s: another size gives the SHA-256", when)
+		}
+		e, ok, _ = lg.Lookup("b.ci8")
+		if r, known := e.Outcome(""); !ok || !known || r != "b.ci8: zero length" {
+			t.Errorf("%s: b.ci8: %v %v %q", when, ok, known, r)
+		}
+		if ok, err := lg.HasEvent("00aa11bb22cc33dd44ee55ff"); !ok || err != nil {
+			t.Errorf("%s: event id not known (%v)", when, err)
+		}
+		if ok, _ := lg.HasEvent("ffffffffffffffffffffffff"); ok {
+			t.Errorf("%s: an id never noted is known", when)
+		}
+		if lg.Captures() < 1 && when != "noted" {
+			t.Errorf("%s: %d capture names", when, lg.Captures())
+		}
+	}
+	check("noted")
+	if err := lg.Save(); err != nil {
+		t.Fatal(err)
+	}
+	check("saved")
+	// b.ci8 is hashed at a later sighting and found recorded: its
+	// identity is remembered.
+	bdata := filepath.Join(dir, "b.ci8")
+	os.WriteFile(bdata, nil, 0o644)
+	bid, _ := Identify(bdata, false)
+	lg.Remember("b.ci8", bid, "")
+	if err := lg.Close(); err != nil {
+		t.Fatal(err)
+	}
+	lg = openTestLedger(t, dir, logPath, &syncBuffer{})
+	if applied, full := lg.LastSync(); applied != 0 || full {
+		t.Errorf("reopen applied %d records (full scan %v), want none", applied, full)
+	}
+	check("reopened")
+	if lg.Captures() != 2 {
+		t.Errorf("%d capture names, want 2", lg.Captures())
+	}
+
+	// The log replaced under the ledger: a record that does not follow.
+	l.Close()
+	os.Remove(logPath)
+	l2, err := eventlog.Open(logPath, eventlog.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer l2.Close()
+	recs, err = l2.AppendBatch([]eventlog.Item{{Kind: eventlog.KindCapture, Body: detect.CaptureRecord{Capture: "c.ci8", SHA256: hexSHA("c"), Status: detect.StatusOK}}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := lg.Note(recs); err != nil {
+		t.Fatal(err)
+	}
+	if _, ok, _ := lg.Lookup("a.ci8"); ok {
+		t.Error("a.ci8 still known after the log it was in was replaced")
+	}
+	if e, ok, _ := lg.Lookup("c.ci8"); !ok {
+		t.Error("c.ci8 of the new log not known")
+	} else if _, known := e.Outcome(hexSHA("c")); !known {
+		t.Error("c.ci8's outcome not known")
 	}
 }
