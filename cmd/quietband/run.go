@@ -133,17 +133,6 @@ abandons it after a few seconds; it is analysed again on the next start).`, errO
 	return d.run(ctx, hup)
 }
 
-// eventLog is what the daemon needs of *eventlog.Log.
-type eventLog interface {
-	AppendBatch([]eventlog.Item) ([]eventlog.Record, error)
-	Reopen() error
-	Err() error
-	LastSeq() uint64
-	Head() string
-	Path() string
-	Close() error
-}
-
 // daemon is one run of `quietband run`.
 type daemon struct {
 	cfg     *runConfig
@@ -151,7 +140,8 @@ type daemon struct {
 	over    runOverrides
 	log     *slog.Logger
 	level   *slog.LevelVar
-	elog    eventLog
+	elog    *eventlog.Log
+	commit  *eventlog.Committer
 	ledger  *ledger.Ledger
 	state   *detect.State
 	pipe    *detect.Pipeline
@@ -161,21 +151,18 @@ type daemon struct {
 	server  *metrics.Server
 	inputs  map[string]inputConfig
 
-	retry        time.Duration // appendRetry; shorter in tests
-	grace        time.Duration
-	sweepEvery   time.Duration // retentionEvery; shorter in tests
-	procCtx      context.Context
-	baseDirty    bool
-	baseSaved    time.Time
-	behind       atomic.Bool
-	abandonProc  context.CancelFunc
-	lastAnchor   time.Time
-	lastSweep    time.Time
-	lastFailLog  time.Time
-	processed    atomic.Int64 // captures recorded by this run
-	hashes       atomic.Int64 // data files read whole to hash them (not by analysis)
-	appendFailed atomic.Bool
-	anchorEvery  uint64 // records between anchors; 0: none
+	grace       time.Duration
+	sweepEvery  time.Duration // retentionEvery; shorter in tests
+	procCtx     context.Context
+	baseDirty   bool
+	baseSaved   time.Time
+	behind      atomic.Bool
+	abandonProc context.CancelFunc
+	lastAnchor  time.Time
+	lastSweep   time.Time
+	processed   atomic.Int64 // captures recorded by this run
+	hashes      atomic.Int64 // data files read whole to hash them (not by analysis)
+	anchorEvery uint64       // records between anchors; 0: none
 }
 
 // newDaemon opens the ledger (taking its lock) and the event log, brings
@@ -190,7 +177,7 @@ func newDaemon(cfg *runConfig, cfgPath string, over runOverrides, logOut io.Writ
 	level := new(slog.LevelVar)
 	level.Set(lv)
 	log := slog.New(levelHandler{base.Handler(), level})
-	d := &daemon{cfg: cfg, cfgPath: cfgPath, over: over, log: log, level: level, retry: appendRetry,
+	d := &daemon{cfg: cfg, cfgPath: cfgPath, over: over, log: log, level: level,
 		grace: shutdownGrace, sweepEvery: retentionEvery, inputs: map[string]inputConfig{},
 		anchorEvery: defaultAnchorEvery}
 	if cfg.Log.AnchorEvery != nil {
@@ -267,6 +254,7 @@ func newDaemon(cfg *runConfig, cfgPath string, over runOverrides, logOut io.Writ
 		WatchRescans:    func() uint64 { return d.watcher.Stats().Rescans },
 		WatchOverflows:  func() uint64 { return d.watcher.Stats().Overflows },
 	}})
+	d.commit = &eventlog.Committer{Log: l, Retry: appendRetry, Logger: log, Failed: d.set.EventLogWriteFailed, Writable: d.set.SetEventLogWritable}
 	d.server, err = metrics.NewServer(metrics.ServerOptions{Listen: cfg.Listen, WebConfigFile: cfg.WebConfigFile,
 		Gatherer: d.set.Registry(), Ready: d.notReady, Recent: d.recent, Logger: log.With("component", "http")})
 	if err != nil {
@@ -310,7 +298,7 @@ func (d *daemon) notReady() []string {
 	}
 	if err := d.elog.Err(); err != nil {
 		why = append(why, "event log not writable: "+err.Error())
-	} else if d.appendFailed.Load() {
+	} else if d.commit.Failing() {
 		why = append(why, "event log append failing; retrying")
 	}
 	if d.behind.Load() {
@@ -388,7 +376,7 @@ loop:
 // housekeeping runs between captures, about once a second.
 func (d *daemon) housekeeping(now time.Time) {
 	d.set.SetWatcherRunning(d.watcher.Running())
-	d.set.SetEventLogWritable(d.elog.Err() == nil && !d.appendFailed.Load())
+	d.set.SetEventLogWritable(d.elog.Err() == nil && !d.commit.Failing())
 	if d.watcher.Stats().Backlog == 0 {
 		d.setBehind(false)
 	}
@@ -532,7 +520,7 @@ func (d *daemon) handle(ctx context.Context, w ingest.Work) error {
 		}
 	}
 	items = append(items, eventlog.Item{Kind: eventlog.KindCapture, Body: rec})
-	recs, err := d.commit(ctx, items)
+	recs, err := d.commit.Commit(ctx, items)
 	if err != nil && ctx.Err() == nil {
 		// The record cannot be encoded (a value JSON has no form for):
 		// record the capture as quarantined with that reason instead.
@@ -545,7 +533,7 @@ func (d *daemon) handle(ctx context.Context, w ingest.Work) error {
 		res, events = nil, nil
 		rec = detect.CaptureRecord{Capture: name, SHA256: sha, Status: detect.StatusQuarantined,
 			Error: "analysis could not be recorded: " + err.Error()}
-		recs, err = d.commit(ctx, []eventlog.Item{{Kind: eventlog.KindCapture, Body: rec}})
+		recs, err = d.commit.Commit(ctx, []eventlog.Item{{Kind: eventlog.KindCapture, Body: rec}})
 	}
 	if err != nil {
 		d.log.Info("quietband run: capture abandoned before it was recorded; it is analysed again on the next start", "capture", name)
@@ -598,114 +586,6 @@ func (d *daemon) handle(ctx context.Context, w ingest.Work) error {
 	d.log.Info("quietband run: capture analysed", "capture", name, "input", w.Input, "events", len(events),
 		"classes", strings.Join(classes, ","), "took", res.Elapsed.Round(time.Microsecond))
 	return nil
-}
-
-// commit appends a capture's records with one write and one fsync. When
-// the log fails (disk full, I/O error) it keeps the batch, reopens the log
-// after d.retry, doubling the wait up to 16·d.retry, and tries again until
-// it succeeds or ctx is done; records
-// of the batch that reached the log before the failure are not written
-// twice. An error that is not a log failure (the batch cannot be encoded)
-// is returned at once.
-func (d *daemon) commit(ctx context.Context, items []eventlog.Item) ([]eventlog.Record, error) {
-	var landed []eventlog.Record
-	wait := d.retry
-	for {
-		before := d.elog.LastSeq()
-		recs, err := d.elog.AppendBatch(items)
-		if err == nil {
-			if d.appendFailed.Swap(false) {
-				d.log.Info("quietband run: event log writable again; resuming")
-			}
-			d.set.SetEventLogWritable(true)
-			return append(landed, recs...), nil
-		}
-		if !errors.Is(err, eventlog.ErrFailed) && !errors.Is(err, eventlog.ErrClosed) {
-			return nil, err
-		}
-		d.set.EventLogWriteFailed()
-		if !d.appendFailed.Swap(true) || time.Since(d.lastFailLog) >= time.Minute {
-			d.lastFailLog = time.Now()
-			d.log.Error("quietband run: event log append failed; the capture is not marked done, analysis paused, retrying",
-				"err", err, "retry_after", d.retry, "retry_at_most_every", 16*d.retry)
-		}
-		for {
-			select {
-			case <-ctx.Done():
-				return nil, ctx.Err()
-			case <-time.After(wait):
-			}
-			wait = min(2*wait, 16*d.retry)
-			if err := d.elog.Reopen(); err != nil {
-				d.log.Debug("quietband run: reopening the event log failed", "err", err)
-				continue
-			}
-			break
-		}
-		// What of the batch reached the log before the failure?
-		got, err := recordsAfter(d.elog.Path(), before)
-		if err != nil {
-			d.log.Error("quietband run: reading back the event log after a failure", "err", err)
-			continue
-		}
-		landed = append(landed, got...)
-		items = pendingItems(items, got)
-		if len(items) == 0 {
-			d.appendFailed.Store(false)
-			d.set.SetEventLogWritable(d.elog.Err() == nil)
-			return landed, nil
-		}
-	}
-}
-
-// recordsAfter returns the records of the log's active file with seq >
-// after: those a failed batch left behind (a rotation only happens before
-// a batch is written, so they are all in the active file).
-func recordsAfter(path string, after uint64) ([]eventlog.Record, error) {
-	var out []eventlog.Record
-	r := eventlog.NewReader(path)
-	defer r.Close()
-	for {
-		rec, err := r.Next()
-		if errors.Is(err, io.EOF) {
-			return out, nil
-		}
-		if err != nil {
-			return nil, err
-		}
-		if rec.Seq > after {
-			out = append(out, rec)
-		}
-	}
-}
-
-// pendingItems drops from items those found in got: event records by id,
-// and the capture record (then nothing is left, since it comes last).
-func pendingItems(items []eventlog.Item, got []eventlog.Record) []eventlog.Item {
-	ids := map[string]bool{}
-	capture := false
-	for _, rec := range got {
-		var h struct {
-			ID string `json:"id"`
-		}
-		if rec.Decode(&h) == nil && rec.Kind == eventlog.KindEvent {
-			ids[h.ID] = true
-		}
-		if rec.Kind == eventlog.KindCapture {
-			capture = true
-		}
-	}
-	if capture {
-		return nil
-	}
-	var out []eventlog.Item
-	for _, it := range items {
-		if e, ok := it.Body.(detect.Event); ok && ids[e.ID] {
-			continue
-		}
-		out = append(out, it)
-	}
-	return out
 }
 
 // hashData hashes a capture's data file (counted in d.hashes) and reports

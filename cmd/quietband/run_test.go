@@ -145,7 +145,7 @@ func startDaemon(t testing.TB, s site, tune ...func(*daemon)) *runningDaemon {
 	if err != nil {
 		t.Fatal(err)
 	}
-	d.retry = 100 * time.Millisecond
+	d.commit.Retry = 100 * time.Millisecond
 	for _, f := range tune {
 		f(d)
 	}
