@@ -85,7 +85,6 @@ const (
 	defaultLogLevel       = "info"
 	defaultLogFormat      = "text"
 	defaultRetentionVerb  = "delete"
-	baselineFileName      = "baseline.json"
 	eventLogFileName      = "events.jsonl"
 	maxInputNameLen       = 64
 	notifyAutomaticChoice = "auto"

@@ -15,6 +15,7 @@ import (
 
 	"quietband/detect"
 	"quietband/ingest"
+	"quietband/metrics/baseline"
 	"quietband/metrics/eventlog"
 	"quietband/metrics/report"
 )
@@ -154,14 +155,11 @@ func replay(ctx context.Context, o replayOptions) (*replaySummary, error) {
 	}
 	state := detect.NewState()
 	if o.baseline != "" {
-		if f, err := os.Open(o.baseline); err == nil {
-			b, err := detect.ReadBaselines(f)
-			f.Close()
-			if err != nil {
-				return nil, fmt.Errorf("%s: %w", o.baseline, err)
-			}
+		b, err := baseline.Load(o.baseline)
+		switch {
+		case err == nil:
 			state.Baselines = b
-		} else if !errors.Is(err, os.ErrNotExist) {
+		case !errors.Is(err, os.ErrNotExist):
 			return nil, err
 		}
 	}
@@ -240,11 +238,7 @@ func replay(ctx context.Context, o replayOptions) (*replaySummary, error) {
 		fmt.Fprintf(o.errOut, "\r\033[K")
 	}
 	if o.baseline != "" {
-		var b strings.Builder
-		if _, err := state.Baselines.WriteTo(&b); err != nil {
-			return nil, err
-		}
-		if err := ingest.WriteFileAtomic(o.baseline, []byte(b.String())); err != nil {
+		if err := baseline.Save(o.baseline, state.Baselines); err != nil {
 			return nil, err
 		}
 	}

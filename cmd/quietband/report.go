@@ -11,6 +11,7 @@ import (
 
 	"quietband/detect"
 	"quietband/ingest"
+	"quietband/metrics/baseline"
 	"quietband/metrics/eventlog"
 	"quietband/metrics/report"
 )
@@ -215,14 +216,9 @@ func rebuildReport(ctx context.Context, logPath, root, outDir string, all bool, 
 	}
 	state := detect.NewState()
 	if baselinePath != "" {
-		f, err := os.Open(baselinePath)
+		b, err := baseline.Load(baselinePath)
 		if err != nil {
 			return err
-		}
-		b, err := detect.ReadBaselines(f)
-		f.Close()
-		if err != nil {
-			return fmt.Errorf("%s: %w", baselinePath, err)
 		}
 		state.Baselines = b
 	}

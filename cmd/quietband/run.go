@@ -20,6 +20,7 @@ import (
 	"quietband/detect"
 	"quietband/ingest"
 	"quietband/metrics"
+	"quietband/metrics/baseline"
 	"quietband/metrics/eventlog"
 	"quietband/metrics/ledger"
 )
@@ -604,21 +605,18 @@ func (d *daemon) hashData(path string, follow bool, id ledger.FileID, idOK bool)
 // loadBaseline reads state_dir/baseline.json if there is one. A file that
 // does not parse is set aside (renamed) and learning starts afresh.
 func (d *daemon) loadBaseline() {
-	path := filepath.Join(d.cfg.StateDir, baselineFileName)
-	f, err := os.Open(path)
-	if errors.Is(err, os.ErrNotExist) {
+	path := filepath.Join(d.cfg.StateDir, baseline.FileName)
+	b, err := baseline.Load(path)
+	var unusable *baseline.UnusableError
+	switch {
+	case errors.Is(err, os.ErrNotExist):
 		return
-	}
-	if err != nil {
+	case errors.As(err, &unusable):
+		aside, _ := baseline.SetAside(path, time.Now())
+		d.log.Error("quietband run: baseline file unusable; set aside, learning afresh", "file", path, "moved_to", aside, "err", unusable.Err)
+		return
+	case err != nil:
 		d.log.Error("quietband run: cannot read the baseline; learning afresh", "file", path, "err", err)
-		return
-	}
-	b, err := detect.ReadBaselines(f)
-	f.Close()
-	if err != nil {
-		aside := path + ".bad-" + time.Now().UTC().Format("20060102T150405Z")
-		os.Rename(path, aside)
-		d.log.Error("quietband run: baseline file unusable; set aside, learning afresh", "file", path, "moved_to", aside, "err", err)
 		return
 	}
 	d.state.Baselines = b
@@ -630,13 +628,8 @@ func (d *daemon) saveBaseline() {
 	if !d.baseDirty {
 		return
 	}
-	var b bytes.Buffer
-	if _, err := d.state.Baselines.WriteTo(&b); err != nil {
-		d.log.Error("quietband run: encoding the baseline", "err", err)
-		return
-	}
-	path := filepath.Join(d.cfg.StateDir, baselineFileName)
-	if err := ingest.WriteFileAtomic(path, b.Bytes()); err != nil {
+	path := filepath.Join(d.cfg.StateDir, baseline.FileName)
+	if err := baseline.Save(path, d.state.Baselines); err != nil {
 		d.log.Error("quietband run: saving the baseline", "file", path, "err", err)
 		return
 	}
