@@ -41,10 +41,37 @@ type Pipeline struct {
 	GNSSInline bool
 	banks      map[string]*bank
 
-	// Observer, when set, sees every block after the detectors ran (for
-	// reports: spectrograms, PSD, SK and pulses come from the same single
-	// FFT pass). It must not keep references to the block's slices.
+	// Observer is WithObserver for every capture.
+	//
+	// Deprecated: give Process WithObserver (kept for tests not yet
+	// moved); a field swapped per capture on a shared pipeline is what
+	// the options replace.
 	Observer BlockObserver
+}
+
+// Option is a setting of one Process call: what a caller gives one
+// capture's analysis without changing the pipeline the captures share.
+type Option func(*processOptions)
+
+type processOptions struct {
+	observer BlockObserver
+	meter    SatelliteMeter
+	where    SatellitePlacement
+}
+
+// WithObserver has obs see every block of the capture after the detectors
+// ran (for reports: spectrograms, PSD, SK and pulses come from the same
+// single FFT pass). It must not keep references to the block's slices.
+func WithObserver(obs BlockObserver) Option {
+	return func(o *processOptions) { o.observer = obs }
+}
+
+// WithSatellites has m measure the capture's satellites, where says,
+// instead of the pipeline's GNSS (nil: none): for example a meter that
+// gives back a capture record's satellites, so that a report redraws the
+// capture without measuring them again.
+func WithSatellites(m SatelliteMeter, where SatellitePlacement) Option {
+	return func(o *processOptions) { o.meter, o.where = m, where }
 }
 
 // BlockObserver watches the pipeline's blocks.
@@ -107,9 +134,17 @@ func (p *Pipeline) Fingerprint(fs float64) string {
 // Process analyses one capture. name is the capture's name relative to the
 // watched root (it goes into the records). A read error mid-way returns the
 // error; nothing is learned from such a capture. The GNSS meter, if any,
-// measures the satellites during the pass (see SatellitePlacement).
-func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) (*Result, error) {
+// measures the satellites during the pass (see SatellitePlacement). The
+// options set what is this capture's own (WithObserver, WithSatellites).
+func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, opts ...Option) (*Result, error) {
 	t0 := time.Now()
+	o := processOptions{observer: p.Observer, meter: p.GNSS, where: p.SatellitePlacement}
+	if p.GNSSInline {
+		o.where = SatellitesInPass
+	}
+	for _, opt := range opts {
+		opt(&o)
+	}
 	fs := c.SampleRate
 	cfg := p.cfg.Defaults(fs)
 	short := fitShort(&cfg, c.Samples)
@@ -129,15 +164,11 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) 
 
 	b := p.bankFor(cfg, fs)
 	b.reset(&base, center, hasCenter)
-	if p.Observer != nil {
-		p.Observer.Begin(c, blockLen, cfg.FFTSize)
+	if o.observer != nil {
+		o.observer.Begin(c, blockLen, cfg.FFTSize)
 	}
 	st, tr := &b.st, b.tr
-	where := p.SatellitePlacement
-	if p.GNSSInline {
-		where = SatellitesInPass
-	}
-	sats := startSatellites(ctx, c, p.GNSS, key, blockLen, where)
+	sats := startSatellites(ctx, c, o.meter, key, blockLen, o.where)
 	// On every early return: abandon the satellites' own read and wait
 	// for it, so that no goroutine outlives the call.
 	defer sats.stop()
@@ -157,7 +188,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string) 
 			b.lowBit = lv.LowBit()
 			b.lowT, _ = lv.Threshold()
 		}
-		b.block(blk, p.Observer)
+		b.block(blk, o.observer)
 		sats.block(blk)
 	}
 	sha := r.SHA256()
