@@ -692,9 +692,37 @@ func measureProfile(prof []float64, ls int, scratch *[]float64, lowBit bool) (pe
 	if l <= 0 || r >= n-1 {
 		return peak, 0
 	}
+	if lowBit && !standsOut(prof, l, r, peak, b-q-(a+q)+1) {
+		return peak, 0
+	}
 	left := float64(l) - (sm[l]-lvl)/(sm[l]-sm[l-1])
 	right := float64(r) + (sm[r]-lvl)/(sm[r]-sm[r+1])
 	return peak, right - left
+}
+
+// standsOut reports whether a profile's pulse (extent l…r, mean peak over
+// m samples) stands out of the profile's own noise: the mean over m
+// samples must exceed 6 standard errors of the samples outside the extent
+// (σ/√m). Searched outwards from the maximum, a profile of noise alone
+// still yields an "extent" around its largest spike, one or two samples
+// wide, whose mean is a few σ: it does not pass.
+func standsOut(prof []float64, l, r int, peak float64, m int) bool {
+	var s, ss float64
+	k := 0
+	for i, v := range prof {
+		if i >= l && i <= r {
+			continue
+		}
+		s += v
+		ss += v * v
+		k++
+	}
+	if k < 8 {
+		return true // no room to measure: the caller's width bounds decide
+	}
+	mean := s / float64(k)
+	sd := math.Sqrt(math.Max(ss/float64(k)-mean*mean, 0))
+	return peak*math.Sqrt(float64(max(m, 1))) > 6*sd
 }
 
 // inward returns the first index from the left and from the right at which
