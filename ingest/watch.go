@@ -36,7 +36,7 @@ const (
 
 // WatchInput is one watched folder and what its raw files cannot say.
 type WatchInput struct {
-	Name string // the input's name, carried into every Work item
+	Name string // the input's name, carried into every capture found
 	Root string // the folder, watched recursively
 	// Raw are the format, rate, centre, IF and LO side of raw files, and
 	// their name pattern: a file matching it (or with a format ending, or
@@ -56,7 +56,7 @@ type WatchConfig struct {
 	// anything the events missed. 0: DefaultRescanInterval; negative: only
 	// at start and after an event overflow.
 	RescanInterval time.Duration
-	// QueueSize bounds the channel of Work items. 0: DefaultQueueSize.
+	// QueueSize bounds the channel of captures found. 0: DefaultQueueSize.
 	QueueSize int
 	// Notify selects the event source (NotifyAuto, NotifyInotify,
 	// NotifyFsnotify or NotifyPoll).
@@ -68,40 +68,9 @@ type WatchConfig struct {
 	Logger *slog.Logger
 }
 
-// Work is a capture found complete, ready for analysis, or a file that
-// looks like a capture but cannot be one (Problem set).
-type Work struct {
-	Input    string // name of the WatchInput
-	Root     string // its folder
-	Path     string // the file to Open: SigMF metadata, or the raw file
-	DataPath string // the file holding the samples (may not exist)
-	Name     string // Path relative to Root, '/'-separated
-	// Capture is the opened capture; nil when Problem is set.
-	Capture *Capture
-	// Problem says why the file cannot be analysed (a *CaptureError).
-	Problem error
-	// Ready is when the Watcher found the capture complete.
-	Ready time.Time
-}
-
-// Files lists the capture's files that exist: the metadata and data files
-// of a SigMF pair, or the raw file.
-func (w Work) Files() []string {
-	var out []string
-	for _, p := range []string{w.Path, w.DataPath} {
-		if p == "" || slices.Contains(out, p) {
-			continue
-		}
-		if _, err := os.Lstat(p); err == nil {
-			out = append(out, p)
-		}
-	}
-	return out
-}
-
 // WatchStats are counters of a Watcher.
 type WatchStats struct {
-	Backlog   int    // Work items found complete and not yet taken
+	Backlog   int    // captures found complete and not yet taken
 	Pending   int    // files seen but not yet complete
 	Rescans   uint64 // full rescans done
 	Overflows uint64 // event overflows (events lost, rescan forced)
@@ -109,7 +78,8 @@ type WatchStats struct {
 }
 
 // Watcher watches folders recursively and hands out each capture once it is
-// complete, in time order within a batch, on a bounded channel.
+// complete, opened (Found.Capture) or with its problem, in time order
+// within a batch, on a bounded channel.
 //
 // A file is complete when a close-after-write or rename-into-place event
 // says so (inotify), or when its size and modification time have not changed
@@ -127,7 +97,7 @@ type Watcher struct {
 	cfg    WatchConfig
 	log    *slog.Logger
 	inputs []*watchInput
-	queue  chan Work
+	queue  chan Found
 	tick   time.Duration
 
 	rescanReq chan struct{}
@@ -138,7 +108,7 @@ type Watcher struct {
 	note    notifier
 	pending map[string]*candidate
 	ready   []readyItem
-	head    *Work // ready[0], opened
+	head    *Found // ready[0], ready to hand out
 	emitted map[string]signature
 	ignored map[string]bool // files with raw-data endings warned about (noteIgnored)
 	full    bool
@@ -180,7 +150,7 @@ func NewWatcher(cfg WatchConfig) (*Watcher, error) {
 	if cfg.OrphanAfter <= 0 {
 		cfg.OrphanAfter = DefaultOrphanAfter
 	}
-	w := &Watcher{cfg: cfg, log: cfg.Logger, queue: make(chan Work, cfg.QueueSize),
+	w := &Watcher{cfg: cfg, log: cfg.Logger, queue: make(chan Found, cfg.QueueSize),
 		rescanReq: make(chan struct{}, 1), inject: make(chan fsEvent, 16)}
 	if w.log == nil {
 		w.log = slog.New(slog.DiscardHandler)
@@ -228,8 +198,10 @@ func within(dir, path string) bool {
 	return err == nil && rel != ".." && !strings.HasPrefix(rel, ".."+string(filepath.Separator))
 }
 
-// Work returns the channel of Work items. It is never closed.
-func (w *Watcher) Work() <-chan Work { return w.queue }
+// Work returns the channel of the captures found complete (and of files
+// that look like captures but cannot be one: Problem set). It is never
+// closed.
+func (w *Watcher) Work() <-chan Found { return w.queue }
 
 // Running reports whether Run is watching.
 func (w *Watcher) Running() bool { return w.running.Load() }
@@ -290,8 +262,8 @@ func (w *Watcher) Run(ctx context.Context) error {
 		rescan = t.C
 	}
 	for {
-		var out chan<- Work
-		var next Work
+		var out chan<- Found
+		var next Found
 		if w.prepareHead() {
 			out, next = w.queue, *w.head
 		}
@@ -444,10 +416,13 @@ func (c *candidate) sig() signature {
 	return s
 }
 
-// readyItem is a Work item in waiting, not yet opened.
+// readyItem is a capture in waiting, opened when it was found complete
+// (for its start time, by which the batch is sorted, and for analysis),
+// with its files' signature then.
 type readyItem struct {
-	work  Work
+	work  Found
 	start time.Time
+	sig   signature
 }
 
 // keyOf maps a capture file to its candidate key and whether it is a
@@ -637,38 +612,65 @@ func (w *Watcher) evaluate(c *candidate, now time.Time) (item *readyItem, done b
 	}
 }
 
-// item makes the Work item for path (opened to learn its start time).
+// item makes the item to hand out for path, opened once: for its start
+// time and for the analysis.
 func (w *Watcher) item(c *candidate, path string, problem error, now time.Time) *readyItem {
 	name, err := filepath.Rel(c.in.abs, path)
 	if err != nil {
 		name = path
 	}
-	wk := Work{Input: c.in.Name, Root: c.in.Root, Path: path, DataPath: c.files[c.n-1].path,
+	f := Found{Input: c.in.Name, Root: c.in.Root, Path: path, DataPath: c.files[c.n-1].path,
 		Name: filepath.ToSlash(name), Problem: problem, Ready: now}
-	it := &readyItem{work: wk}
+	it := &readyItem{work: f}
 	if problem == nil {
-		if capt, err := Open(path, c.in.Raw); err == nil {
-			it.start = capt.Start()
+		// The signature before the opening: a change during it shows at
+		// the hand-out.
+		it.sig = sigOf(it.work.Path, it.work.DataPath)
+		it.work.Open(c.in.Raw)
+		if it.work.Capture != nil {
+			it.start = it.work.Capture.Start()
 		}
 	}
 	return it
 }
 
-// prepareHead opens the first waiting item, if any, and reports whether
-// there is one to hand out.
+// prepareHead makes the first waiting item ready to hand out, if there is
+// one, and reports whether there is. A capture whose files changed while
+// it waited is opened again (a Watcher opens each capture once otherwise);
+// the change makes it found again too, and its analysis then finds the
+// new content recorded.
 func (w *Watcher) prepareHead() bool {
 	if len(w.ready) == 0 {
 		return false
 	}
 	if w.head == nil {
-		wk := w.ready[0].work
-		if wk.Problem == nil {
-			in := w.inputNamed(wk.Input)
-			wk.Capture, wk.Problem = Open(wk.Path, in.Raw)
+		it := &w.ready[0]
+		f := it.work
+		if f.Problem == nil && f.Capture != nil && sigOf(f.Path, f.DataPath) != it.sig {
+			f.Capture = nil
+			f.Open(w.inputNamed(f.Input).Raw)
 		}
-		w.head = &wk
+		w.head = &f
 	}
 	return true
+}
+
+// sigOf is the signature of a capture's files as they are now (the key
+// file, and the data file of a SigMF pair), as candidate.sig gives it.
+func sigOf(path, data string) signature {
+	var s signature
+	paths := []string{path}
+	if data != path {
+		paths = append(paths, data)
+	}
+	for i, p := range paths {
+		f := fileState{path: p}
+		f.observe(time.Now())
+		if f.exists {
+			s[i].size, s[i].mtime, s[i].ino, s[i].ok = f.size, f.mtime.UnixNano(), f.ino, true
+		}
+	}
+	return s
 }
 
 func (w *Watcher) inputNamed(name string) *watchInput {
@@ -747,7 +749,7 @@ func (w *Watcher) scan(in *watchInput, dir string, prune, placed bool) {
 			}
 			w.emitted[key] = sig
 			name, _ := filepath.Rel(in.abs, f.Path)
-			w.ready = append(w.ready, readyItem{work: Work{Input: in.Name, Root: in.Root, Path: f.Path,
+			w.ready = append(w.ready, readyItem{work: Found{Input: in.Name, Root: in.Root, Path: f.Path,
 				DataPath: f.Path, Name: filepath.ToSlash(name), Problem: f.Problem, Ready: now}})
 			continue
 		}

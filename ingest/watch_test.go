@@ -73,19 +73,19 @@ func startMode(t *testing.T, notify string, settle, rescan time.Duration) *watch
 }
 
 // next waits for the next item.
-func (h *watchHarness) next(timeout time.Duration) (Work, bool) {
+func (h *watchHarness) next(timeout time.Duration) (Found, bool) {
 	select {
 	case wk := <-h.w.Work():
 		return wk, true
 	case <-time.After(timeout):
-		return Work{}, false
+		return Found{}, false
 	}
 }
 
 // take collects n items, failing after the timeout.
-func (h *watchHarness) take(n int, timeout time.Duration) []Work {
+func (h *watchHarness) take(n int, timeout time.Duration) []Found {
 	h.t.Helper()
-	var out []Work
+	var out []Found
 	deadline := time.Now().Add(timeout)
 	for len(out) < n {
 		wk, ok := h.next(time.Until(deadline))
@@ -105,7 +105,7 @@ func (h *watchHarness) none(d time.Duration) {
 	}
 }
 
-func names(ws []Work) []string {
+func names(ws []Found) []string {
 	var out []string
 	for _, w := range ws {
 		out = append(out, w.Name)
@@ -132,7 +132,7 @@ func writeFile(t *testing.T, path string, data []byte) {
 	}
 }
 
-func checkOK(t *testing.T, wk Work, name string, samples int64) {
+func checkOK(t *testing.T, wk Found, name string, samples int64) {
 	t.Helper()
 	if wk.Name != name {
 		t.Errorf("item %q, want %q", wk.Name, name)
@@ -181,7 +181,7 @@ func TestWatchDroppedAtOnce(t *testing.T) {
 			writeFile(t, filepath.Join(h.root, fmt.Sprintf("burst-%02d.ci8", i)), ci8Bytes(rng, 100+i))
 		}
 		got := h.take(n, 20*time.Second)
-		slices.SortFunc(got, func(a, b Work) int { return strings.Compare(a.Name, b.Name) })
+		slices.SortFunc(got, func(a, b Found) int { return strings.Compare(a.Name, b.Name) })
 		for i, wk := range got {
 			checkOK(t, wk, fmt.Sprintf("burst-%02d.ci8", i), int64(100+i))
 		}
@@ -203,7 +203,7 @@ func TestWatchSlowWriter(t *testing.T) {
 			t.Fatal(err)
 		}
 		data := ci8Bytes(rand.New(rand.NewPCG(3, 4)), 40)
-		got := make(chan Work, 4)
+		got := make(chan Found, 4)
 		stop := make(chan struct{})
 		go func() {
 			for {
@@ -308,7 +308,7 @@ func TestWatchFolderMovedIn(t *testing.T) {
 			t.Fatal(err)
 		}
 		got := h.take(2, 10*time.Second)
-		slices.SortFunc(got, func(a, b Work) int { return strings.Compare(a.Name, b.Name) })
+		slices.SortFunc(got, func(a, b Found) int { return strings.Compare(a.Name, b.Name) })
 		checkOK(t, got[0], "batch/b.ci8", 11)
 		checkOK(t, got[1], "batch/deeper/c.ci8", 12)
 	})
@@ -330,7 +330,7 @@ func TestWatchSymlinks(t *testing.T) {
 			t.Fatal(err)
 		}
 		got := h.take(2, 10*time.Second)
-		slices.SortFunc(got, func(a, b Work) int { return strings.Compare(a.Name, b.Name) })
+		slices.SortFunc(got, func(a, b Found) int { return strings.Compare(a.Name, b.Name) })
 		checkOK(t, got[0], "alias.ci8", 21) // a link within the root is followed
 		esc := got[1]
 		if esc.Name != "escape.ci8" || esc.Problem == nil || !strings.Contains(esc.Problem.Error(), "outside") {
@@ -454,6 +454,43 @@ func TestWatchChangedFileAgain(t *testing.T) {
 	})
 }
 
+// TestWatchChangedWhileWaiting: a capture is opened once, when found
+// complete, and handed out opened; one whose file changes while it waits
+// behind a full queue is opened again before it is handed out (its
+// Capture describes the file as it is then), and handed out once more for
+// the change.
+func TestWatchChangedWhileWaiting(t *testing.T) {
+	t.Parallel()
+	root := t.TempDir()
+	rng := rand.New(rand.NewPCG(23, 24))
+	t0 := time.Date(2026, 5, 1, 8, 0, 0, 0, time.UTC)
+	for i, name := range []string{"a.ci8", "b.ci8", "c.ci8"} {
+		path := filepath.Join(root, name)
+		writeFile(t, path, ci8Bytes(rng, 40))
+		mt := t0.Add(time.Duration(i) * time.Minute)
+		os.Chtimes(path, mt, mt)
+	}
+	h := startWatcher(t, WatchConfig{Notify: NotifyPoll, RescanInterval: 50 * time.Millisecond, QueueSize: 1,
+		Inputs: []WatchInput{{Name: "site", Root: root, Raw: testRaw, Settle: 100 * time.Millisecond}}})
+	deadline := time.Now().Add(10 * time.Second)
+	for h.w.Stats().Backlog < 3 {
+		if time.Now().After(deadline) {
+			t.Fatalf("backlog %d, want 3", h.w.Stats().Backlog)
+		}
+		time.Sleep(10 * time.Millisecond)
+	}
+	// a is in the queue, b next; c waits, opened with 40 samples.
+	writeFile(t, filepath.Join(root, "c.ci8"), ci8Bytes(rng, 60))
+	got := h.take(4, 10*time.Second)
+	for i, want := range []struct {
+		name    string
+		samples int64
+	}{{"a.ci8", 40}, {"b.ci8", 40}, {"c.ci8", 60}, {"c.ci8", 60}} {
+		checkOK(t, got[i], want.name, want.samples)
+	}
+	h.none(300 * time.Millisecond)
+}
+
 func TestWatchIncompletePairs(t *testing.T) {
 	t.Parallel()
 	root := t.TempDir()
@@ -572,7 +609,7 @@ func TestWatchRawFiles(t *testing.T) {
 				writeFile(t, filepath.Join(rootA, "other"), ci8Bytes(rng, 3))
 				writeFile(t, filepath.Join(rootB, "y.dat"), ci8Bytes(rng, 4))
 				writeFile(t, filepath.Join(rootC, "z.bin"), ci8Bytes(rng, 4))
-				got := map[string]Work{}
+				got := map[string]Found{}
 				for _, wk := range h.take(4, 10*time.Second) {
 					got[wk.Input+"/"+wk.Name] = wk
 				}

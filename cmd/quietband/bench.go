@@ -122,12 +122,12 @@ factor above 1 keeps up.`, errOut)
 			for i, c := range cores {
 				runtime.GOMAXPROCS(c)
 				t0 := time.Now()
-				sum, err := replay(ctx, replayOptions{paths: []string{filepath.Join(dir, set.dir)}, workers: c, out: io.Discard, errOut: io.Discard})
+				sum, err := replayCaptures(ctx, replayOptions{paths: []string{filepath.Join(dir, set.dir)}, workers: c, out: io.Discard, errOut: io.Discard})
 				if err != nil {
 					return err
 				}
-				rt[i] = append(rt[i], sum.audio.Seconds()/time.Since(t0).Seconds())
-				n = sum.captures
+				rt[i] = append(rt[i], sum.Signal.Seconds()/time.Since(t0).Seconds())
+				n = sum.Captures
 			}
 		}
 		one := median(rt[0])

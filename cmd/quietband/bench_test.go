@@ -21,11 +21,11 @@ func BenchmarkReplay(b *testing.B) {
 	ctx := context.Background()
 	var audio float64
 	for b.Loop() {
-		sum, err := replay(ctx, replayOptions{paths: []string{filepath.Join(dir, "clean")}, workers: max(1, runtimeProcs()), out: io.Discard, errOut: io.Discard})
+		sum, err := replayCaptures(ctx, replayOptions{paths: []string{filepath.Join(dir, "clean")}, workers: max(1, runtimeProcs()), out: io.Discard, errOut: io.Discard})
 		if err != nil {
 			b.Fatal(err)
 		}
-		audio += sum.audio.Seconds()
+		audio += sum.Signal.Seconds()
 	}
 	b.ReportMetric(audio/b.Elapsed().Seconds(), "rt")
 }
@@ -35,7 +35,7 @@ func BenchmarkReplay(b *testing.B) {
 // meter, whatever -cpu says: inside the spectral pass (--workers 1,
 // detect.SatellitesInPass) and on a read of its own beside it (2,
 // detect.SatellitesOwnRead). It is the measurement behind
-// satellitePlacement. rt as for BenchmarkReplay.
+// replay.Placement. rt as for BenchmarkReplay.
 func BenchmarkReplayModes(b *testing.B) {
 	dir := b.TempDir()
 	for _, sha512 := range []bool{false, true} {
@@ -53,11 +53,11 @@ func BenchmarkReplayModes(b *testing.B) {
 			b.Run(set+"/"+m.name, func(b *testing.B) {
 				var audio float64
 				for b.Loop() {
-					sum, err := replay(ctx, replayOptions{paths: []string{filepath.Join(dir, set)}, workers: m.workers, out: io.Discard, errOut: io.Discard})
+					sum, err := replayCaptures(ctx, replayOptions{paths: []string{filepath.Join(dir, set)}, workers: m.workers, out: io.Discard, errOut: io.Discard})
 					if err != nil {
 						b.Fatal(err)
 					}
-					audio += sum.audio.Seconds()
+					audio += sum.Signal.Seconds()
 				}
 				b.ReportMetric(audio/b.Elapsed().Seconds(), "rt")
 			})

@@ -45,14 +45,14 @@ and says where the captures and the event log are. Nothing is transmitted.`, err
 		return err
 	}
 	logPath := filepath.Join(*dir, "events.jsonl")
-	sum, err := replay(context.Background(), replayOptions{paths: []string{capDir}, raw: ingest.RawSettings{},
+	sum, err := replayCaptures(context.Background(), replayOptions{paths: []string{capDir}, raw: ingest.RawSettings{},
 		logPath: logPath, out: out, errOut: errOut, reportDir: *reportDir, reportAll: *reportDir != ""})
 	if err != nil {
 		return err
 	}
 	fmt.Fprintln(out)
-	printEvents(out, sum.events)
-	printSummary(out, sum)
+	printEvents(out, sum.Events)
+	printSummary(out, sum, logPath)
 	fmt.Fprintf(out, "check the log with: quietband verify %s\n", logPath)
 	return nil
 }

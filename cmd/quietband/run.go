@@ -23,6 +23,7 @@ import (
 	"quietband/metrics/baseline"
 	"quietband/metrics/eventlog"
 	"quietband/metrics/ledger"
+	"quietband/metrics/replay"
 )
 
 func init() {
@@ -427,7 +428,7 @@ func (d *daemon) setBehind(b bool) {
 
 // handle analyses one capture and records it. It returns an error only
 // when the capture was abandoned (procCtx done) or the daemon cannot go on.
-func (d *daemon) handle(ctx context.Context, w ingest.Work) error {
+func (d *daemon) handle(ctx context.Context, w ingest.Found) error {
 	d.setBehind(time.Since(w.Ready) > d.cfg.FallingBehindAfter)
 	name := w.Name
 	if w.Problem != nil {
@@ -473,22 +474,12 @@ func (d *daemon) handle(ctx context.Context, w ingest.Work) error {
 		}
 	}
 
-	var res *detect.Result
-	rec := detect.CaptureRecord{}
-	if w.Problem != nil {
-		rec = quarantined(name, w.Problem)
-	} else {
-		r, err := d.pipe.Process(ctx, w.Capture, name)
-		switch {
-		case ctx.Err() != nil:
-			d.log.Info("quietband run: capture abandoned; it is analysed again on the next start", "capture", name)
-			return ctx.Err()
-		case err != nil:
-			rec = quarantined(name, err)
-		default:
-			res, rec = r, r.Record
-		}
+	out, err := replay.Analyse(ctx, d.pipe, w)
+	if err != nil {
+		d.log.Info("quietband run: capture abandoned; it is analysed again on the next start", "capture", name)
+		return err
 	}
+	res, rec := out.Result, out.Record
 	if rec.Status == detect.StatusQuarantined {
 		if !hashed {
 			sha, _ = d.hashData(w.DataPath, follow, id, idOK)
@@ -688,7 +679,7 @@ func (d *daemon) reload() {
 // moveAway moves a capture's files (metadata first, so that the watcher
 // never sees a lone metadata file) to dir, keeping their path below the
 // watched folder.
-func (d *daemon) moveAway(w ingest.Work, dir, why string) {
+func (d *daemon) moveAway(w ingest.Found, dir, why string) {
 	in := d.inputs[w.Input]
 	files := w.Files()
 	slices.SortStableFunc(files, func(a, b string) int {
@@ -821,10 +812,9 @@ func (d *daemon) sweep(now time.Time) {
 			if !ok {
 				continue
 			}
-			w := ingest.Work{Input: in.Name, Root: in.Path, Path: path, DataPath: path, Name: name}
-			if strings.HasSuffix(path, ingest.MetaExt) {
-				w.DataPath = strings.TrimSuffix(path, ingest.MetaExt) + ingest.DataExt
-			}
+			w := f
+			w.Input, w.Path, w.Name = in.Name, path, name
+			w.DataPath, _ = filepath.Abs(f.DataPath)
 			old := true
 			for _, p := range w.Files() {
 				if st, err := os.Lstat(p); err != nil || st.ModTime().After(cutoff) {

@@ -41,8 +41,7 @@ func runScenario(t *testing.T, dir string, s synth.Scenario) []observed {
 			t.Fatal(err)
 		}
 		o := NewObserver()
-		pipe.Observer = o
-		res, err := pipe.Process(context.Background(), c, tr.Capture)
+		res, err := pipe.Process(context.Background(), c, tr.Capture, detect.WithObserver(o))
 		if err != nil {
 			t.Fatal(err)
 		}

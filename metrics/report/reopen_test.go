@@ -27,8 +27,7 @@ func analyse(t *testing.T, c *ingest.Capture) (detect.CaptureRecord, *Summary) {
 	t.Helper()
 	pipe := detect.NewPipeline(detect.Config{}, nil)
 	o := NewObserver()
-	pipe.Observer = o
-	res, err := pipe.Process(context.Background(), c, realIFName)
+	res, err := pipe.Process(context.Background(), c, realIFName, detect.WithObserver(o))
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -1,4 +1,4 @@
-package main
+package replay
 
 import (
 	"bytes"
@@ -74,18 +74,16 @@ func recordsByFile(t *testing.T, log string) map[string]detect.CaptureRecord {
 // capture has the demo sky's satellites, its site's clock offset (within
 // 20 Hz of the truth's median apparent Doppler; computed: the
 // synthesizer's (L1 + f_D)/(1 + ε) − L1) and orientation; the log is the
-// same byte for byte with the satellites in the spectral pass (--workers
-// 1) and on their own read (2).
+// same byte for byte with the satellites in the spectral pass (one
+// worker) and on their own read (two).
 func TestReplaySitesApart(t *testing.T) {
 	dir := t.TempDir()
 	caps := filepath.Join(dir, "caps")
 	writeSites(t, caps)
 	var logs [][]byte
-	for _, w := range []string{"1", "2"} {
-		log := filepath.Join(dir, "both-w"+w+".jsonl")
-		if out, code := runCmd(t, "replay", "--workers", w, "--log", log, caps); code != 0 {
-			t.Fatalf("replay --workers %s: exit %d\n%s", w, code, out)
-		}
+	for _, w := range []int{1, 2} {
+		log := filepath.Join(dir, fmt.Sprintf("both-w%d.jsonl", w))
+		runLog(t, log, w, caps)
 		b, _ := os.ReadFile(log)
 		logs = append(logs, b)
 	}
@@ -98,9 +96,7 @@ func TestReplaySitesApart(t *testing.T) {
 	}
 	for _, site := range []string{"north", "south"} {
 		log := filepath.Join(dir, site+".jsonl")
-		if out, code := runCmd(t, "replay", "--workers", "2", "--log", log, filepath.Join(caps, site)); code != 0 {
-			t.Fatalf("replay %s: exit %d\n%s", site, code, out)
-		}
+		runLog(t, log, 2, filepath.Join(caps, site))
 		for name, alone := range recordsByFile(t, log) {
 			got := both[name]
 			if got.Stats == nil || alone.Stats == nil {
