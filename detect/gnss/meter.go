@@ -585,6 +585,11 @@ func (m *Meter) Result() Measurement {
 	if len(short) > 0 {
 		need := float64(settleEpochs+minEpochs) + float64(m.trStart)/m.fs*1e3
 		why := fmt.Sprintf("the capture (%.1f ms) is too short to track satellites (about %.0f ms needed", dur*1e3, need)
+		if at, ok := m.tr.SharedLoss(); ok && dur*1e3 >= need {
+			// Long enough, but every channel stopped at a sample drop
+			// or gap before its prompts sufficed.
+			why = fmt.Sprintf("tracking stopped at the sample drop or gap near %.1f ms, before the satellites were tracked (about %.0f ms needed", float64(at)/m.fs*1e3, need)
+		}
 		if m.restarts > 0 {
 			why += ", counting the restart after the spectrum inversion was found"
 		}
