@@ -18,6 +18,7 @@ import (
 	"quietband/detect"
 	"quietband/ingest"
 	"quietband/metrics"
+	"quietband/metrics/monitor"
 )
 
 // runConfig is the daemon's configuration file (YAML; deploy/config.example.yaml
@@ -423,4 +424,21 @@ func (c *runConfig) notify() string {
 		return ingest.NotifyAuto
 	}
 	return c.Notify
+}
+
+// monitor is the configuration as the monitor takes it (defaults filled
+// in by fill).
+func (c *runConfig) monitor() monitor.Config {
+	m := monitor.Config{LogPath: c.Log.Path, LogMaxBytes: c.Log.MaxBytes, AnchorEvery: monitor.DefaultAnchorEvery,
+		StateDir: c.StateDir, Listen: c.Listen, WebConfigFile: c.WebConfigFile, QuarantineDir: c.QuarantineDir,
+		Retention: monitor.Retention{Days: c.Retention.Days, Action: c.Retention.Action, Dir: c.Retention.Dir},
+		QueueSize: c.QueueSize, RescanInterval: c.RescanInterval, Notify: c.notify(), FallingBehindAfter: c.FallingBehindAfter,
+		Detect: c.Detect, Satellites: *c.Satellites, GoCollector: c.Metrics.GoCollector}
+	if c.Log.AnchorEvery != nil {
+		m.AnchorEvery = *c.Log.AnchorEvery
+	}
+	for _, in := range c.Inputs {
+		m.Inputs = append(m.Inputs, monitor.Input{Name: in.Name, Path: in.Path, Raw: in.rawSettings(), Settle: in.Settle})
+	}
+	return m
 }

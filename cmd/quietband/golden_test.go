@@ -4,10 +4,12 @@ import (
 	"bytes"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 	"time"
 
 	"quietband/ingest/synth"
+	"quietband/metrics/monitor/monitortest"
 )
 
 // goldenDir holds the golden outputs (testdata/golden): what the code
@@ -61,13 +63,20 @@ func checkGolden(t *testing.T, name string, got []byte) {
 // (testdata/golden/demo-events.jsonl): the same captures (the synthesizer
 // writes the same bytes, ingest/synth's golden test) give the same
 // records, ids, stats and satellites, in the same order, and so the same
-// hash chain.
+// hash chain. Its table names the scenario's events.
 func TestGoldenDemo(t *testing.T) {
 	dir := t.TempDir()
-	if out, code := runCmd(t, "demo", "--out", dir); code != 0 {
+	out, code := runCmd(t, "demo", "--out", dir)
+	if code != 0 {
 		t.Fatalf("demo exit %d\n%s", code, out)
 	}
-	checkGolden(t, "demo-events.jsonl", mustRead(t, filepath.Join(dir, "events.jsonl")))
+	for _, want := range []string{"quay-0603.sigmf-meta  swept", "quay-0604.sigmf-meta  cw", "quay-0605.sigmf-meta  pulsed",
+		"quay-0606.sigmf-meta  wideband_noise", "cn0_drop", "quay-0608.sigmf-meta  spoofing", "9 capture(s), 0 bad"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("demo output lacks %q", want)
+		}
+	}
+	checkGolden(t, "demo-events.jsonl", monitortest.MustRead(t, filepath.Join(dir, "events.jsonl")))
 }
 
 // writeGoldenCaptures lays out the test captures of TestGoldenReplay
@@ -89,7 +98,7 @@ func writeGoldenCaptures(t *testing.T, realAbs string) {
 	}
 	os.MkdirAll(filepath.Join("caps", "bad"), 0o755)
 	for _, ext := range []string{".sigmf-meta", ".sigmf-data"} {
-		b := mustRead(t, filepath.Join("caps", "c-cw"+ext))
+		b := monitortest.MustRead(t, filepath.Join("caps", "c-cw"+ext))
 		if ext == ".sigmf-data" {
 			b = b[:len(b)-1]
 		}
@@ -104,7 +113,7 @@ func writeGoldenCaptures(t *testing.T, realAbs string) {
 	at := time.Date(2021, 12, 2, 8, 47, 1, 0, time.UTC)
 	for _, name := range []string{"L1_20211202_084700_4MHz_IQ.bin", "L1_20211125_004000_12MHz_I.bin"} {
 		p := filepath.Join("real", name)
-		if err := os.WriteFile(p, mustRead(t, filepath.Join(realAbs, name)), 0o644); err != nil {
+		if err := os.WriteFile(p, monitortest.MustRead(t, filepath.Join(realAbs, name)), 0o644); err != nil {
 			t.Fatal(err)
 		}
 		if err := os.Chtimes(p, at, at); err != nil {
@@ -143,7 +152,7 @@ func TestGoldenReplay(t *testing.T) {
 				t.Fatalf("replay %q: exit %d, want %d\n%s", args, code, want, out)
 			}
 		}
-		logs = append(logs, mustRead(t, log))
+		logs = append(logs, monitortest.MustRead(t, log))
 	}
 	if !bytes.Equal(logs[0], logs[1]) {
 		t.Errorf("the logs of 1 and 2 workers differ (%d and %d bytes)", len(logs[0]), len(logs[1]))

@@ -7,7 +7,6 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
-	"time"
 
 	"quietband/detect"
 	"quietband/ingest"
@@ -178,41 +177,5 @@ func TestReplayQuarantinesRawWithoutRate(t *testing.T) {
 	}
 	if rec.Status != detect.StatusQuarantined || !strings.Contains(rec.Error, "norate.ci8") || !strings.Contains(rec.Error, "--rate") {
 		t.Errorf("record %+v, want quarantined naming the file and --rate\n%s", rec, out)
-	}
-}
-
-// TestRunQuarantinesUnreadableRaw: a file in a watched folder that
-// matches the folder's pattern (or has a raw-data ending) but cannot be
-// read, here for want of a sample rate or of a format, is quarantined
-// with the reason naming the setting (DESIGN.md "Inputs": never silently
-// skipped, a rate never guessed).
-func TestRunQuarantinesUnreadableRaw(t *testing.T) {
-	s := newSite(t, "")
-	// The same site, its input without a rate and with a pattern.
-	cfg := "inputs:\n  - {name: roof, path: " + s.in + ", pattern: 'cap_*', settle: 150ms}\nstate_dir: " + s.state +
-		"\nlisten: 127.0.0.1:0\nrescan_interval: 500ms\n"
-	if err := os.WriteFile(s.cfgPath, []byte(cfg), 0o644); err != nil {
-		t.Fatal(err)
-	}
-	startDaemon(t, s)
-	dropCapture(t, filepath.Join(s.in, "cap_0001"), ci8Capture(1, false))
-	dropCapture(t, filepath.Join(s.in, "x.ci8"), ci8Capture(2, false))
-	dropCapture(t, filepath.Join(s.in, "notes.txt"), []byte("not a capture"))
-	waitFor(t, 20*time.Second, "two capture records", func() bool { return countCaptures(t, s.logPath) >= 2 })
-	caps := captureRecords(readLog(t, s.logPath))
-	for name, want := range map[string][]string{"cap_0001": {"no sample format", "format"}, "x.ci8": {"no sample rate", "sample_rate"}} {
-		rs := caps[name]
-		if len(rs) != 1 || rs[0].Status != detect.StatusQuarantined {
-			t.Errorf("%s: records %+v, want one quarantined", name, rs)
-			continue
-		}
-		for _, w := range want {
-			if !strings.Contains(rs[0].Error, w) {
-				t.Errorf("%s: reason %q does not say %q", name, rs[0].Error, w)
-			}
-		}
-	}
-	if len(caps) != 2 {
-		t.Errorf("records for %d captures, want 2 (notes.txt is no capture): %v", len(caps), caps)
 	}
 }

@@ -113,24 +113,6 @@ func TestReplayLogVerifiesAndDetectsTampering(t *testing.T) {
 
 func itoa(i int) string { return strconv.Itoa(i) }
 
-// TestDemo runs the one-command demo and checks its table for the
-// scenario's events.
-func TestDemo(t *testing.T) {
-	if testing.Short() {
-		t.Skip("demo takes a few seconds")
-	}
-	out, code := runCmd(t, "demo", "--out", t.TempDir())
-	if code != 0 {
-		t.Fatalf("demo exit %d\n%s", code, out)
-	}
-	for _, want := range []string{"quay-0603.sigmf-meta  swept", "quay-0604.sigmf-meta  cw", "quay-0605.sigmf-meta  pulsed",
-		"quay-0606.sigmf-meta  wideband_noise", "cn0_drop", "quay-0608.sigmf-meta  spoofing", "9 capture(s), 0 bad"} {
-		if !strings.Contains(out, want) {
-			t.Errorf("demo output lacks %q", want)
-		}
-	}
-}
-
 // TestHelpIsComplete: every command answers --help with its usage and
 // flags, and exits 0.
 func TestHelpIsComplete(t *testing.T) {

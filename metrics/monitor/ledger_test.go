@@ -1,9 +1,4 @@
-package main
-
-// The ledger as the daemon uses it: a restart hashes nothing, a ledger
-// behind the log is caught up, the same data under two names, a second
-// daemon on the same state folder. The ledger's own tests are in
-// metrics/ledger.
+package monitor
 
 import (
 	"bytes"
@@ -11,7 +6,7 @@ import (
 	"crypto/sha256"
 	"encoding/hex"
 	"fmt"
-	"io"
+	"log/slog"
 	"os"
 	"path/filepath"
 	"strings"
@@ -21,7 +16,13 @@ import (
 	"quietband/detect"
 	"quietband/metrics/eventlog"
 	"quietband/metrics/ledger"
+	"quietband/metrics/monitor/monitortest"
 )
+
+// The ledger as the daemon uses it: a restart hashes nothing, a ledger
+// behind the log is caught up, the same data under two names, a second
+// daemon on the same state folder. The ledger's own tests are in
+// metrics/ledger.
 
 // TestLedgerRestartHashesNothing: after a restart over N recorded
 // captures, none is read to be hashed; a capture rewritten in place, one
@@ -29,17 +30,17 @@ import (
 // changed), the first two analysed again; the next restart hashes none.
 func TestLedgerRestartHashesNothing(t *testing.T) {
 	const n = 300
-	s := newSite(t, "")
+	s := newSite(t, nil)
 	rd := startDaemon(t, s)
 	for i := range n {
-		dropCapture(t, filepath.Join(s.in, fmt.Sprintf("h%d", i%6), fmt.Sprintf("c%03d.ci8", i)), ci8Capture(uint64(3000+i), false))
+		monitortest.Drop(t, filepath.Join(s.in, fmt.Sprintf("h%d", i%6), fmt.Sprintf("c%03d.ci8", i)), monitortest.CI8(uint64(3000+i), false))
 	}
 	// A link inside the watched folder: analysed through the link, and
 	// recognised through it after a restart.
 	os.MkdirAll(filepath.Join(s.in, "targets"), 0o755)
-	os.WriteFile(filepath.Join(s.in, "targets", "t.ci8.bin"), ci8Capture(3999, false), 0o644)
+	os.WriteFile(filepath.Join(s.in, "targets", "t.ci8.bin"), monitortest.CI8(3999, false), 0o644)
 	os.Symlink("../targets/t.ci8.bin", filepath.Join(s.in, "h0", "link.ci8"))
-	waitFor(t, 60*time.Second, "every capture recorded", func() bool { return countCaptures(t, s.logPath) == n+1 })
+	monitortest.WaitFor(t, 60*time.Second, "every capture recorded", func() bool { return monitortest.CountCaptures(t, s.logPath) == n+1 })
 	if err := rd.stop(); err != nil {
 		t.Fatal(err)
 	}
@@ -50,8 +51,8 @@ func TestLedgerRestartHashesNothing(t *testing.T) {
 		hashed   bool
 		analysed bool // a new capture record
 	}{
-		{"h1/c001.ci8", func(p string) { os.WriteFile(p, ci8Capture(4001, false), 0o644) }, true, true},
-		{"h2/c002.ci8", func(p string) { dropCapture(t, p, ci8Capture(4002, false)) }, true, true},
+		{"h1/c001.ci8", func(p string) { os.WriteFile(p, monitortest.CI8(4001, false), 0o644) }, true, true},
+		{"h2/c002.ci8", func(p string) { monitortest.Drop(t, p, monitortest.CI8(4002, false)) }, true, true},
 		{"h3/c003.ci8", func(p string) { now := time.Now(); os.Chtimes(p, now, now) }, true, false},
 		{"h4/c004.ci8", func(string) {}, false, false},
 		{"h0/link.ci8", func(string) {}, false, false},
@@ -68,19 +69,19 @@ func TestLedgerRestartHashesNothing(t *testing.T) {
 	}
 	settled := func(rd *runningDaemon) func() bool {
 		return func() bool {
-			st := rd.d.watcher.Stats()
+			st := rd.m.watcher.Stats()
 			return st.Rescans >= 1 && st.Backlog == 0 && st.Pending == 0
 		}
 	}
-	before := captureRecords(readLog(t, s.logPath))
+	before := monitortest.CaptureRecords(monitortest.ReadLog(t, s.logPath))
 	rd = startDaemon(t, s)
-	waitFor(t, 20*time.Second, "the start scan handled", settled(rd))
-	waitFor(t, 20*time.Second, "the changed captures recorded", func() bool { return countCaptures(t, s.logPath) == n+1+wantNew })
+	monitortest.WaitFor(t, 20*time.Second, "the start scan handled", settled(rd))
+	monitortest.WaitFor(t, 20*time.Second, "the changed captures recorded", func() bool { return monitortest.CountCaptures(t, s.logPath) == n+1+wantNew })
 	time.Sleep(300 * time.Millisecond)
-	if got := rd.d.hashes.Load(); got != int64(wantHashes) {
+	if got := rd.m.hashes.Load(); got != int64(wantHashes) {
 		t.Errorf("restart over %d recorded captures hashed %d files, want %d (the changed ones)", n+1, got, wantHashes)
 	}
-	after := captureRecords(readLog(t, s.logPath))
+	after := monitortest.CaptureRecords(monitortest.ReadLog(t, s.logPath))
 	for _, c := range changes {
 		if got := len(after[c.name]) - len(before[c.name]); got != map[bool]int{false: 0, true: 1}[c.analysed] {
 			t.Errorf("%s: %d new capture records, want analysed again %v", c.name, got, c.analysed)
@@ -92,15 +93,15 @@ func TestLedgerRestartHashesNothing(t *testing.T) {
 	// The touched capture's identity was remembered when it was found
 	// recorded: the next restart reads nothing.
 	rd = startDaemon(t, s)
-	waitFor(t, 20*time.Second, "the start scan handled", settled(rd))
+	monitortest.WaitFor(t, 20*time.Second, "the start scan handled", settled(rd))
 	time.Sleep(300 * time.Millisecond)
-	if got := rd.d.hashes.Load(); got != 0 {
+	if got := rd.m.hashes.Load(); got != 0 {
 		t.Errorf("second restart hashed %d files, want 0", got)
 	}
-	if got := countCaptures(t, s.logPath); got != n+1+wantNew {
+	if got := monitortest.CountCaptures(t, s.logPath); got != n+1+wantNew {
 		t.Errorf("second restart: %d capture records, want %d", got, n+1+wantNew)
 	}
-	checkLog(t, s.logPath)
+	monitortest.CheckLog(t, s.logPath)
 }
 
 // TestLedgerCaughtUpByDaemon: the daemon killed between the log's fsync
@@ -108,12 +109,12 @@ func TestLedgerRestartHashesNothing(t *testing.T) {
 // writing the log behind its back) applies the missing records at start
 // and analyses nothing again.
 func TestLedgerCaughtUpByDaemon(t *testing.T) {
-	s := newSite(t, "")
+	s := newSite(t, nil)
 	rd := startDaemon(t, s)
 	for i := range 6 {
-		dropCapture(t, filepath.Join(s.in, fmt.Sprintf("u%d.ci8", i)), ci8Capture(uint64(5100+i), i == 2))
+		monitortest.Drop(t, filepath.Join(s.in, fmt.Sprintf("u%d.ci8", i)), monitortest.CI8(uint64(5100+i), i == 2))
 	}
-	waitFor(t, 20*time.Second, "6 records", func() bool { return countCaptures(t, s.logPath) == 6 })
+	monitortest.WaitFor(t, 20*time.Second, "6 records", func() bool { return monitortest.CountCaptures(t, s.logPath) == 6 })
 	rd.stop()
 	// Three more captures recorded in the log only (as a daemon that
 	// died right after its append would leave them).
@@ -123,29 +124,29 @@ func TestLedgerCaughtUpByDaemon(t *testing.T) {
 	}
 	for i := 6; i < 9; i++ {
 		name := fmt.Sprintf("u%d.ci8", i)
-		data := ci8Capture(uint64(5100+i), false)
-		dropCapture(t, filepath.Join(s.in, name), data)
+		data := monitortest.CI8(uint64(5100+i), false)
+		monitortest.Drop(t, filepath.Join(s.in, name), data)
 		h := sha256.Sum256(data)
 		if _, err := l.Append(eventlog.KindCapture, detect.CaptureRecord{Capture: name, SHA256: hex.EncodeToString(h[:]),
-			Status: detect.StatusOK, Format: "ci8", Samples: runSamples}); err != nil {
+			Status: detect.StatusOK, Format: "ci8", Samples: monitortest.Samples}); err != nil {
 			t.Fatal(err)
 		}
 	}
 	l.Close()
 	rd = startDaemon(t, s)
-	waitFor(t, 20*time.Second, "the start scan handled", func() bool {
-		st := rd.d.watcher.Stats()
+	monitortest.WaitFor(t, 20*time.Second, "the start scan handled", func() bool {
+		st := rd.m.watcher.Stats()
 		return st.Rescans >= 1 && st.Backlog == 0 && st.Pending == 0
 	})
 	time.Sleep(300 * time.Millisecond)
-	if applied, fullScan := rd.d.ledger.LastSync(); applied != 3 || fullScan {
+	if applied, fullScan := rd.m.ledger.LastSync(); applied != 3 || fullScan {
 		t.Errorf("start applied %d records (full scan %v), want the 3 the ledger missed", applied, fullScan)
 	}
-	if got := countCaptures(t, s.logPath); got != 9 {
+	if got := monitortest.CountCaptures(t, s.logPath); got != 9 {
 		t.Errorf("%d capture records, want 9: the caught-up captures were analysed again", got)
 	}
 	// The three were recorded without an identity: hashed once, found done.
-	if got := rd.d.hashes.Load(); got != 3 {
+	if got := rd.m.hashes.Load(); got != 3 {
 		t.Errorf("%d files hashed, want 3", got)
 	}
 }
@@ -155,18 +156,18 @@ func TestLedgerCaughtUpByDaemon(t *testing.T) {
 // ids: they must not be written twice (which keeping only the ids of
 // captures in flight would allow).
 func TestLedgerSameDataTwoNames(t *testing.T) {
-	s := newSite(t, "")
+	s := newSite(t, nil)
 	rd := startDaemon(t, s)
-	data := ci8Capture(5200, true)
-	dropCapture(t, filepath.Join(s.in, "first.ci8"), data)
-	waitFor(t, 20*time.Second, "the first", func() bool { return countCaptures(t, s.logPath) == 1 })
+	data := monitortest.CI8(5200, true)
+	monitortest.Drop(t, filepath.Join(s.in, "first.ci8"), data)
+	monitortest.WaitFor(t, 20*time.Second, "the first", func() bool { return monitortest.CountCaptures(t, s.logPath) == 1 })
 	// After a restart too, the id is known from the ledger file.
 	rd.stop()
 	rd = startDaemon(t, s)
-	dropCapture(t, filepath.Join(s.in, "copy", "second.ci8"), data)
-	waitFor(t, 20*time.Second, "the second", func() bool { return countCaptures(t, s.logPath) == 2 })
-	recs := checkLog(t, s.logPath) // no id twice
-	caps := captureRecords(recs)
+	monitortest.Drop(t, filepath.Join(s.in, "copy", "second.ci8"), data)
+	monitortest.WaitFor(t, 20*time.Second, "the second", func() bool { return monitortest.CountCaptures(t, s.logPath) == 2 })
+	recs := monitortest.CheckLog(t, s.logPath) // no id twice
+	caps := monitortest.CaptureRecords(recs)
 	if a, b := caps["first.ci8"], caps["copy/second.ci8"]; len(a) != 1 || len(b) != 1 || a[0].Events == 0 || a[0].Events != b[0].Events {
 		t.Errorf("records %+v and %+v, want one each with the same event count (the tone)", a, b)
 	}
@@ -179,23 +180,20 @@ func TestLedgerSameDataTwoNames(t *testing.T) {
 // at start with an error naming the ledger file, within the lock wait,
 // and leaves the first one's log alone.
 func TestLedgerSecondDaemon(t *testing.T) {
-	s := newSite(t, "")
+	s := newSite(t, nil)
 	startDaemon(t, s)
-	dropCapture(t, filepath.Join(s.in, "x.ci8"), ci8Capture(5300, false))
-	waitFor(t, 20*time.Second, "a record", func() bool { return countCaptures(t, s.logPath) == 1 })
-	logBefore := mustRead(t, s.logPath)
-	cfg, err := loadRunConfig(s.cfgPath, runOverrides{})
-	if err != nil {
-		t.Fatal(err)
-	}
+	monitortest.Drop(t, filepath.Join(s.in, "x.ci8"), monitortest.CI8(5300, false))
+	monitortest.WaitFor(t, 20*time.Second, "a record", func() bool { return monitortest.CountCaptures(t, s.logPath) == 1 })
+	logBefore := monitortest.MustRead(t, s.logPath)
 	done := make(chan error, 1)
 	go func() {
-		d, err := newDaemon(cfg, s.cfgPath, runOverrides{}, &syncBuffer{})
+		m, err := New(s.cfg, slog.New(slog.NewTextHandler(&monitortest.Buffer{}, nil)))
 		if err == nil {
-			d.run(canceled(), nil)
+			m.Run(canceled(), nil, nil)
 		}
 		done <- err
 	}()
+	var err error
 	select {
 	case err = <-done:
 	case <-time.After(10 * ledger.LockWait):
@@ -205,7 +203,7 @@ func TestLedgerSecondDaemon(t *testing.T) {
 	if err == nil || !strings.Contains(err.Error(), want) || !strings.Contains(err.Error(), "locked") {
 		t.Errorf("second daemon: %v, want an error naming %s as locked", err, want)
 	}
-	if !bytes.Equal(mustRead(t, s.logPath), logBefore) {
+	if !bytes.Equal(monitortest.MustRead(t, s.logPath), logBefore) {
 		t.Error("the second daemon changed the event log")
 	}
 }
@@ -217,40 +215,36 @@ func canceled() context.Context {
 }
 
 // BenchmarkDaemonStart measures a daemon's start over an archive of
-// recorded captures, from newDaemon until every capture of the start scan
+// recorded captures, from New until every capture of the start scan
 // has been taken and the daemon has stopped: 300 captures of 40 kB, or 30
 // of 4 MB.
 func BenchmarkDaemonStart(b *testing.B) {
-	for _, bc := range []struct{ n, samples int }{{300, runSamples}, {30, 100 * runSamples}} {
+	for _, bc := range []struct{ n, samples int }{{300, monitortest.Samples}, {30, 100 * monitortest.Samples}} {
 		b.Run(fmt.Sprintf("%dx%dkB", bc.n, 2*bc.samples/1000), func(b *testing.B) {
-			s := newSite(b, "")
+			s := newSite(b, nil)
 			rd := startDaemon(b, s)
 			for i := range bc.n {
 				data := make([]byte, 0, 2*bc.samples)
 				for len(data) < 2*bc.samples {
-					data = append(data, ci8Capture(uint64(i*1000+len(data)), false)...)
+					data = append(data, monitortest.CI8(uint64(i*1000+len(data)), false)...)
 				}
-				dropCapture(b, filepath.Join(s.in, fmt.Sprintf("s%03d.ci8", i)), data[:2*bc.samples])
+				monitortest.Drop(b, filepath.Join(s.in, fmt.Sprintf("s%03d.ci8", i)), data[:2*bc.samples])
 			}
-			waitFor(b, 120*time.Second, "every capture recorded", func() bool { return countCaptures(b, s.logPath) == bc.n })
+			monitortest.WaitFor(b, 120*time.Second, "every capture recorded", func() bool { return monitortest.CountCaptures(b, s.logPath) == bc.n })
 			if err := rd.stop(); err != nil {
 				b.Fatal(err)
 			}
-			cfg, err := loadRunConfig(s.cfgPath, runOverrides{})
-			if err != nil {
-				b.Fatal(err)
-			}
 			for b.Loop() {
-				d, err := newDaemon(cfg, s.cfgPath, runOverrides{}, io.Discard)
+				m, err := New(s.cfg, slog.New(slog.DiscardHandler))
 				if err != nil {
 					b.Fatal(err)
 				}
 				ctx, cancel := context.WithCancel(context.Background())
 				done := make(chan error, 1)
-				go func() { done <- d.run(ctx, nil) }()
+				go func() { done <- m.Run(ctx, nil, nil) }()
 				for {
-					st := d.watcher.Stats()
-					if st.Rescans >= 1 && st.Backlog == 0 && st.Pending == 0 && len(d.watcher.Work()) == 0 {
+					st := m.watcher.Stats()
+					if st.Rescans >= 1 && st.Backlog == 0 && st.Pending == 0 && len(m.watcher.Work()) == 0 {
 						break
 					}
 					time.Sleep(time.Millisecond)
@@ -260,7 +254,7 @@ func BenchmarkDaemonStart(b *testing.B) {
 					b.Fatal(err)
 				}
 			}
-			if got := countCaptures(b, s.logPath); got != bc.n {
+			if got := monitortest.CountCaptures(b, s.logPath); got != bc.n {
 				b.Errorf("%d capture records after the restarts, want %d", got, bc.n)
 			}
 		})
