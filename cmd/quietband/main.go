@@ -10,7 +10,6 @@ import (
 	"flag"
 	"fmt"
 	"io"
-	"log/slog"
 	"os"
 	"sort"
 	"strings"
@@ -107,17 +106,4 @@ func parseFlags(fs *flag.FlagSet, args []string) error {
 		return errUsage
 	}
 	return nil
-}
-
-// newLogger makes the structured diagnostic logger (JSON or text on w).
-func newLogger(w io.Writer, level string, json bool) (*slog.Logger, error) {
-	var lv slog.Level
-	if err := lv.UnmarshalText([]byte(level)); err != nil {
-		return nil, fmt.Errorf("log level %q: use debug, info, warn or error", level)
-	}
-	opts := &slog.HandlerOptions{Level: lv}
-	if json {
-		return slog.New(slog.NewJSONHandler(w, opts)), nil
-	}
-	return slog.New(slog.NewTextHandler(w, opts)), nil
 }

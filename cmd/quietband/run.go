@@ -127,33 +127,23 @@ type daemon struct {
 // newDaemon makes the diagnostic logger (its level changeable on SIGHUP)
 // and the monitor for cfg.
 func newDaemon(cfg *runConfig, cfgPath string, over runOverrides, logOut io.Writer) (*daemon, error) {
-	lv, _ := parseLevel(cfg.LogLevel)
-	base, err := newLogger(logOut, slog.LevelDebug.String(), cfg.LogFormat == "json")
+	lv, err := parseLevel(cfg.LogLevel)
 	if err != nil {
 		return nil, err
 	}
 	level := new(slog.LevelVar)
 	level.Set(lv)
-	d := &daemon{cfg: cfg, cfgPath: cfgPath, over: over, log: slog.New(levelHandler{base.Handler(), level}), level: level}
+	opts := &slog.HandlerOptions{Level: level} // a SIGHUP may change it
+	h := slog.Handler(slog.NewTextHandler(logOut, opts))
+	if cfg.LogFormat == "json" {
+		h = slog.NewJSONHandler(logOut, opts)
+	}
+	d := &daemon{cfg: cfg, cfgPath: cfgPath, over: over, log: slog.New(h), level: level}
 	d.m, err = monitor.New(cfg.monitor(), d.log)
 	if err != nil {
 		return nil, err
 	}
 	return d, nil
-}
-
-// levelHandler filters records by a level that can change at run time.
-type levelHandler struct {
-	slog.Handler
-	level *slog.LevelVar
-}
-
-func (h levelHandler) Enabled(_ context.Context, l slog.Level) bool { return l >= h.level.Level() }
-func (h levelHandler) WithAttrs(a []slog.Attr) slog.Handler {
-	return levelHandler{h.Handler.WithAttrs(a), h.level}
-}
-func (h levelHandler) WithGroup(n string) slog.Handler {
-	return levelHandler{h.Handler.WithGroup(n), h.level}
 }
 
 // reload re-reads the configuration on SIGHUP for the monitor: the log
