@@ -43,7 +43,7 @@ func baseScenario(fs float64, format string, dur float64) synth.Scenario {
 
 // learnedState returns a state whose baseline for the input was learned
 // from three clean captures.
-func learnedState(t *testing.T, fs float64, format string, dur float64) *State {
+func learnedState(t testing.TB, fs float64, format string, dur float64) *State {
 	t.Helper()
 	key := fmt.Sprintf("%g/%s/%g", fs, format, dur)
 	learnMu.Lock()
@@ -81,7 +81,7 @@ func cloneBaselines(b *Baselines) *Baselines {
 }
 
 // run writes the scenario and processes its captures in order.
-func run(t *testing.T, p *Pipeline, s synth.Scenario) []*Result {
+func run(t testing.TB, p *Pipeline, s synth.Scenario) []*Result {
 	t.Helper()
 	dir := t.TempDir()
 	truths, err := synth.Write(&s, dir)
@@ -145,8 +145,7 @@ func within(t *testing.T, what string, got, want, tol float64) {
 // per-detector benchmarks.
 func benchBlock(b *testing.B, fs float64, em ...synth.Emitter) *BlockInput {
 	b.Helper()
-	t := &testing.T{}
-	st := learnedState(t, fs, "ci16_le", 0.05)
+	st := learnedState(b, fs, "ci16_le", 0.05)
 	s := baseScenario(fs, "ci16_le", 0.05)
 	s.Captures[0].Emitters = em
 	c := writeOne(b, s)
@@ -209,8 +208,7 @@ func BenchmarkBank(b *testing.B) {
 				name += "-chirp"
 			}
 			b.Run(name, func(b *testing.B) {
-				t := &testing.T{}
-				st := learnedState(t, fs, "ci16_le", 0.2)
+				st := learnedState(b, fs, "ci16_le", 0.2)
 				s := baseScenario(fs, "ci16_le", 0.2)
 				if jam {
 					s.Captures[0].Emitters = []synth.Emitter{{Kind: synth.KindSwept, JNDB: 10, LowHz: -0.3 * fs, HighHz: 0.3 * fs, PeriodS: 12e-6}}
