@@ -60,13 +60,46 @@ func (d NoiseBand) Detect(in *BlockInput, out []Finding) []Finding {
 			ex = append(ex, in.excess(i))
 		}
 		in.scratch2 = ex
-		half := medianScratch(&in.scratch, ex) / 2
+		med := medianScratch(&in.scratch, ex)
+		half := med / 2
 		lowEdge := edge(in, lo, -1, half)
 		highEdge := edge(in, hi, +1, half)
 		out = append(out, Finding{Detector: d.Name(), Class: ClassNarrowbandNoise, LowHz: lowEdge, HighHz: highEdge,
-			OffsetHz: (lowEdge + highEdge) / 2, JN: in.bandPower(lo-1, hi+1) / in.NoisePower})
+			OffsetHz: (lowEdge + highEdge) / 2, JN: (in.bandPower(lo-1, hi+1) - tonesWithin(in, out, lo, hi, med)) / in.NoisePower})
 	}
 	return out
+}
+
+// tonesWithin is the power the block's CW findings (already in out: the
+// CW detector runs first) put into bins lo…hi beyond the band's own
+// median excess med per bin: a tone inside a noise band is its own
+// emitter, and counted into the band's J/N it would make the band's level
+// follow the tone's keying (the tracker then dates the band by the tone).
+// Each tone holds its Hann main lobe, ±2 bins (common practice).
+//
+// Not in a compressed block (low-bit samples, clipping): there the tone
+// and the band drive the quantizer together and their intermodulation
+// products are bands whose level follows both (nonlinear.go weighs them
+// against the band's level with the tone in it).
+func tonesWithin(in *BlockInput, out []Finding, lo, hi int, med float64) float64 {
+	if in.Compressed {
+		return 0
+	}
+	var s float64
+	for i := range out {
+		if out[i].Class != ClassCW {
+			continue
+		}
+		for _, t := range out[i].Tones {
+			k := in.F.Bin(t.OffsetHz)
+			if k < lo || k > hi {
+				continue
+			}
+			a, b := max(k-2, lo), min(k+2, hi)
+			s += max(in.bandPower(a, b)-float64(b-a+1)*med, 0)
+		}
+	}
+	return s
 }
 
 // edge walks from bin k in direction dir to where the excess falls below
