@@ -1,7 +1,11 @@
 // Package metrics is what the quietband daemon exposes: Prometheus metrics
 // on a registry of its own, the HTTP endpoints (/metrics, /healthz,
 // /readyz, /api/events) and, in the subpackage eventlog, the durable event
-// log.
+// log. Beside them, what the daemon and replay make of the captures, so
+// that a tool or a test imports it without the binary: the ledger of what
+// the log holds (ledger), the site baseline file (baseline), the daemon's
+// work (monitor), the replay driver (replay), the analyst's report
+// (report) and the machine's measurements (bench).
 //
 // Metric names follow the Prometheus naming rules: the quietband_ prefix,
 // base units (seconds, bytes; dB quantities carry _db, _dbfs or _dbhz as
