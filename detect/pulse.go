@@ -866,7 +866,7 @@ func pulseFootprint(c, x *Finding, g *grid) bool {
 		// A hopper: each channel's main lobe and spectrum.
 		bw := 1 / math.Max(c.Pulse.WidthS, 1e-9)
 		for _, ch := range c.Pulse.Channels {
-			if overlaps(lo, hi, ch-bw-2*g.bin, ch+bw+2*g.bin) {
+			if overlaps(lo, hi, ch-bw-2*g.bin, ch+bw+2*g.bin) && jn <= c.JN {
 				return true
 			}
 			one := *c
@@ -878,7 +878,10 @@ func pulseFootprint(c, x *Finding, g *grid) bool {
 		return false
 	}
 	if overlaps(lo, hi, c.LowHz-2*g.bin, c.HighHz+2*g.bin) {
-		return true
+		// Within its main lobe: anything no stronger than its peak (a
+		// steady tone stronger than the pulses' peak is not their
+		// spectrum, whatever band the train was measured over).
+		return jn <= c.JN
 	}
 	band := math.Max(hi-lo, 1.5*g.bin)
 	if class == ClassCW {
@@ -1105,6 +1108,11 @@ func (d *Pulse) margin(in *BlockInput) float64 {
 	return math.Max(500e3, 4*in.F.Fs/float64(in.F.N))
 }
 
+// regionPfa is the probability under noise alone at which a run of SK-high
+// bins is still searched for pulses (about one region in 10⁶ of noise:
+// three flagged bins within eleven, at the default SK false-alarm rate).
+const regionPfa = 1e-6
+
 // maxRegions bounds the sub-bands searched per block.
 const maxRegions = 6
 
@@ -1163,8 +1171,13 @@ func (d *Pulse) regions(in *BlockInput) [][2]float64 {
 				flagged++
 			}
 		}
-		if flagged < 2 {
-			continue // a lone bin: noise
+		// Noise alone flags a bin with probability SKPfa: a run whose
+		// count of flagged bins is that likely under noise (binomial
+		// tail P(X ≥ flagged) over its span above regionPfa, Abramowitz
+		// & Stegun 26.5.24 as in binomialThreshold) is not searched — on
+		// a clean band, a sub-band search every few blocks for nothing.
+		if flagged < 2 || mathext.RegIncBeta(float64(flagged), float64(hi-lo+1-flagged+1), in.Cfg.SKPfa) > regionPfa {
+			continue
 		}
 		out = addRegion(out, [2]float64{f.Offset(lo) - margin, f.Offset(hi) + margin})
 	}

