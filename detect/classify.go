@@ -87,7 +87,7 @@ func (e *trackedEvent) finding() Finding {
 		x.Tones = append([]ToneParam(nil), e.tones...)
 		x.JN = 0
 		for _, t := range x.Tones {
-			x.JN += math.Pow(10, t.JNDB/10)
+			x.JN += fromDB(t.JNDB)
 		}
 	}
 	return x

@@ -127,7 +127,7 @@ func cwFootprint(c, x *Finding, g *grid) bool {
 		return false
 	}
 	for _, t := range c.Tones {
-		tj := math.Pow(10, t.JNDB/10)
+		tj := fromDB(t.JNDB)
 		d := 0.0
 		switch {
 		case t.OffsetHz < lo:

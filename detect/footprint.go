@@ -82,7 +82,7 @@ func explainTones(x *Finding, c *Finding, g *grid) bool {
 	kept := x.Tones[:0]
 	one := &g.tone
 	for _, t := range x.Tones {
-		jn := math.Pow(10, t.JNDB/10)
+		jn := fromDB(t.JNDB)
 		*one = Finding{Class: ClassCW, LowHz: t.OffsetHz - g.bin, HighHz: t.OffsetHz + g.bin, OffsetHz: t.OffsetHz, JN: jn}
 		if explains(c, one, g) {
 			continue
@@ -105,7 +105,7 @@ func (x *Finding) setTones(bin float64) {
 	}
 	lo, hi, total := math.Inf(1), math.Inf(-1), 0.0
 	for _, t := range x.Tones {
-		lo, hi, total = math.Min(lo, t.OffsetHz), math.Max(hi, t.OffsetHz), total+math.Pow(10, t.JNDB/10)
+		lo, hi, total = math.Min(lo, t.OffsetHz), math.Max(hi, t.OffsetHz), total+fromDB(t.JNDB)
 	}
 	x.LowHz, x.HighHz, x.OffsetHz, x.JN = lo-bin, hi+bin, strongestTone(x.Tones).OffsetHz, total
 }
@@ -262,11 +262,11 @@ func (e *trackedEvent) retone(tones []ToneParam, bin float64) {
 	}
 	var all, kept float64
 	for _, t := range e.tones {
-		all += math.Pow(10, t.JNDB/10)
+		all += fromDB(t.JNDB)
 	}
 	lo, hi := math.Inf(1), math.Inf(-1)
 	for _, t := range tones {
-		kept += math.Pow(10, t.JNDB/10)
+		kept += fromDB(t.JNDB)
 		lo, hi = math.Min(lo, t.OffsetHz), math.Max(hi, t.OffsetHz)
 	}
 	if all > 0 {
