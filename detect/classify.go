@@ -286,15 +286,28 @@ func (e *trackedEvent) setBand(f *Features, x Finding) {
 }
 
 // frameExcess is the excess power of a frame in the event band over the
-// thermal floor (the block's floor without any wideband rise).
-func (e *trackedEvent) frameExcess(frame []float32, in *BlockInput) float64 {
+// thermal floor (the block's floor without any wideband rise, summed over
+// the band by floorIn).
+func (e *trackedEvent) frameExcess(frame []float32, floor float64) float64 {
 	var s float64
 	for _, b := range e.bandBins {
-		for k := b[0]; k <= b[1]; k++ {
-			s += float64(frame[k]) - in.Floor[k]/in.Rise
+		for _, v := range frame[b[0] : b[1]+1] {
+			s += float64(v)
 		}
 	}
-	return s
+	return s - floor
+}
+
+// floorIn is the thermal floor summed over the event's bins, Σ Floor_k/Rise
+// (the same for every frame of a block: frameExcess subtracts it once).
+func (e *trackedEvent) floorIn(in *BlockInput) float64 {
+	var s float64
+	for _, b := range e.bandBins {
+		for _, v := range in.Floor[b[0] : b[1]+1] {
+			s += v
+		}
+	}
+	return s / in.Rise
 }
 
 // The start and end of an event within blocks come from the per-frame
@@ -312,16 +325,17 @@ func (e *trackedEvent) frameExcess(frame []float32, in *BlockInput) float64 {
 func (t *tracker) frameActivity(in *BlockInput, e *trackedEvent, prev bool) int {
 	f := in.F
 	lvl := e.frameLevel / 2
+	floor := e.floorIn(in)
 	act := t.act[:0]
 	if prev && t.prevF.Frames > 0 && t.prevF.N == f.N {
 		n := f.N
 		for i := 0; i < t.prevF.Frames; i++ {
-			act = append(act, e.frameExcess(t.prev[i*n:(i+1)*n], in)-lvl)
+			act = append(act, e.frameExcess(t.prev[i*n:(i+1)*n], floor)-lvl)
 		}
 	}
 	first := len(act)
 	for i := 0; i < f.Frames; i++ {
-		act = append(act, e.frameExcess(f.Frame(i), in)-lvl)
+		act = append(act, e.frameExcess(f.Frame(i), floor)-lvl)
 	}
 	t.act = act
 	return first
