@@ -53,8 +53,9 @@ type Event struct {
 	// OpenAtEnd says that the interference was still present at the end
 	// of the capture (see Pipeline.Process): its episode goes on into the
 	// input's next capture, and the daemon shows it as active until a
-	// capture without it. It is not part of the record.
-	OpenAtEnd bool `json:"-"`
+	// capture without it. In the record (open_at_end, added for issue 18)
+	// so that a restarted daemon shows what was active when it stopped.
+	OpenAtEnd bool `json:"open_at_end,omitempty"`
 }
 
 // Params holds the class-specific parameters; only those of the event's
@@ -154,7 +155,12 @@ type Impact struct {
 // CaptureRecord is the body of a `kind: "capture"` record: written after
 // the capture's events, it marks the capture done.
 type CaptureRecord struct {
-	Capture    string  `json:"capture"`
+	Capture string `json:"capture"`
+	// Input is the daemon's watched folder (its name, the metrics' input
+	// label) the capture was found in; empty for replay's paths. With
+	// it a restarted daemon restores each input's live state from its
+	// latest capture in the log.
+	Input      string  `json:"input,omitempty"`
 	SHA256     string  `json:"sha256,omitempty"`
 	Format     string  `json:"format,omitempty"`
 	SampleRate float64 `json:"sample_rate_hz,omitempty"`

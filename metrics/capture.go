@@ -45,7 +45,31 @@ func (s *Set) ObserveCapture(c Capture) {
 	if c.Elapsed > 0 {
 		s.realtime.Set(c.Duration.Seconds() / c.Elapsed.Seconds())
 	}
-	s.lastCapture.Set(float64(c.At.UnixNano()) / 1e9)
+	s.setLive(c)
+}
+
+// Restore sets the live state (the gauges, not the counters) of an input
+// from its latest analysed capture as the event log holds it (see
+// LastCaptures), so that a restarted daemon shows what was active, the
+// time of the last capture and the satellites as they were when it
+// stopped, instead of zeros until the next capture. A quarantined record
+// changes nothing, as in ObserveCapture.
+func (s *Set) Restore(c Capture) {
+	if c.Record.Status != detect.StatusOK {
+		return
+	}
+	s.setLive(c)
+}
+
+// setLive sets the gauges that describe an input's latest analysed
+// capture.
+func (s *Set) setLive(c Capture) {
+	s.mu.Lock()
+	if c.At.After(s.lastAt) {
+		s.lastAt = c.At
+		s.lastCapture.Set(float64(c.At.UnixNano()) / 1e9)
+	}
+	s.mu.Unlock()
 	if c.Record.Start != nil {
 		s.startTime.WithLabelValues(c.Input).Set(float64(c.Record.Start.UnixNano()) / 1e9)
 	}

@@ -4,6 +4,7 @@ import (
 	"runtime"
 	"runtime/debug"
 	"sync"
+	"time"
 
 	"github.com/prometheus/client_golang/prometheus"
 	"github.com/prometheus/client_golang/prometheus/collectors"
@@ -79,8 +80,9 @@ type Set struct {
 	fallingBehind prometheus.Gauge
 	watcherUp     prometheus.Gauge
 
-	mu   sync.Mutex
-	prns map[string]map[int]bool // PRNs exposed per input
+	mu     sync.Mutex
+	prns   map[string]map[int]bool // PRNs exposed per input
+	lastAt time.Time               // lastCapture's value
 }
 
 // New makes a Set.

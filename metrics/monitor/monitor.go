@@ -188,6 +188,18 @@ func New(cfg Config, log *slog.Logger) (*Monitor, error) {
 		WatchRescans:    func() uint64 { return m.watcher.Stats().Rescans },
 		WatchOverflows:  func() uint64 { return m.watcher.Stats().Overflows },
 	}})
+	// Restore each input's live state from its latest capture in the log
+	// (issue 18: a restart kept no alert firing and made the stale-monitor
+	// alert compute time() - 0).
+	last, err := metrics.LastCaptures(cfg.LogPath, names)
+	if err != nil {
+		return fail(fmt.Errorf("reading the event log's latest captures: %w", err))
+	}
+	for _, c := range last {
+		c.Satellites = m.pipe.GNSS != nil
+		m.set.Restore(c)
+		log.Info("quietband run: live state restored from the event log", "input", c.Input, "capture", c.Record.Capture, "written", c.At)
+	}
 	m.commit = &eventlog.Committer{Log: l, Retry: appendRetry, Logger: log, Failed: m.set.EventLogWriteFailed, Writable: m.set.SetEventLogWritable}
 	m.server, err = metrics.NewServer(metrics.ServerOptions{Listen: cfg.Listen, WebConfigFile: cfg.WebConfigFile,
 		Gatherer: m.set.Registry(), Ready: m.notReady, Recent: m.recent, Logger: log.With("component", "http")})

@@ -8,9 +8,11 @@ import (
 	"fmt"
 	"io"
 	"log/slog"
+	"math"
 	"net/http"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"sync"
 	"syscall"
@@ -612,5 +614,70 @@ func TestRunQuarantinesUnreadableRaw(t *testing.T) {
 	}
 	if len(caps) != 2 {
 		t.Errorf("records for %d captures, want 2 (notes.txt is no capture): %v", len(caps), caps)
+	}
+}
+
+// liveLines returns the exposition's lines of the live-state gauges (what
+// a restart must keep), by series.
+func liveLines(t *testing.T, base string) map[string]string {
+	t.Helper()
+	code, body := httpGet(t, base+"/metrics")
+	if code != http.StatusOK {
+		t.Fatalf("/metrics: %d", code)
+	}
+	out := map[string]string{}
+	for _, line := range strings.Split(body, "\n") {
+		for _, p := range []string{"quietband_interference_active{", "quietband_jn_db{", "quietband_noise_floor_dbfs{",
+			"quietband_satellites_acquired{", "quietband_cn0_dbhz{", "quietband_last_capture_timestamp_seconds "} {
+			if strings.HasPrefix(line, p) {
+				i := strings.LastIndexByte(line, ' ')
+				out[line[:i]] = line[i+1:]
+			}
+		}
+	}
+	return out
+}
+
+// Issue 18 item 1: after a restart every interference_active read 0 and
+// the last-capture timestamp 0 until new captures arrived (firing alerts
+// resolved, the stale-monitor alert computed time() - 0). The live state
+// is restored from the event log.
+func TestRestartKeepsTheAlertFiringAndTheLastCaptureTime(t *testing.T) {
+	s := newSite(t, nil)
+	rd := startDaemon(t, s)
+	monitortest.Drop(t, filepath.Join(s.in, "a.ci8"), monitortest.CI8(20, false))
+	monitortest.WaitFor(t, 20*time.Second, "a.ci8", func() bool { return monitortest.CountCaptures(t, s.logPath) == 1 })
+	monitortest.Drop(t, filepath.Join(s.in, "tone.ci8"), monitortest.CI8(21, true))
+	monitortest.WaitFor(t, 20*time.Second, "tone.ci8", func() bool { return monitortest.CountCaptures(t, s.logPath) == 2 })
+	before := liveLines(t, rd.base)
+	if err := rd.stop(); err != nil {
+		t.Fatal(err)
+	}
+	cw := `quietband_interference_active{class="cw",input="roof"}`
+	if before[cw] != "1" {
+		t.Fatalf("before the restart %s = %q, want 1 (the tone is open at the capture's end)", cw, before[cw])
+	}
+
+	rd = startDaemon(t, s)
+	after := liveLines(t, rd.base)
+	for k, v := range before {
+		if k == "quietband_last_capture_timestamp_seconds" {
+			continue
+		}
+		if after[k] != v {
+			t.Errorf("after the restart %s = %q, want %q as before it", k, after[k], v)
+		}
+	}
+	for k := range after {
+		if _, ok := before[k]; !ok {
+			t.Errorf("after the restart %s appeared", k)
+		}
+	}
+	// The last capture's time: the log file's write, within a second of
+	// the analysis' end (the record is written just before).
+	b, _ := strconv.ParseFloat(before["quietband_last_capture_timestamp_seconds"], 64)
+	a, _ := strconv.ParseFloat(after["quietband_last_capture_timestamp_seconds"], 64)
+	if b == 0 || math.Abs(a-b) > 1 {
+		t.Errorf("last_capture_timestamp_seconds: %v after the restart, %v before (want within 1 s)", a, b)
 	}
 }

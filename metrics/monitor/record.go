@@ -112,7 +112,7 @@ func (m *Monitor) handle(ctx context.Context, w ingest.Found) error {
 			sha, _ = m.hashData(w.DataPath, follow, id, idOK)
 		}
 		res, events = nil, nil
-		rec = detect.CaptureRecord{Capture: name, SHA256: sha, Status: detect.StatusQuarantined,
+		rec = detect.CaptureRecord{Capture: name, Input: w.Input, SHA256: sha, Status: detect.StatusQuarantined,
 			Error: "analysis could not be recorded: " + err.Error()}
 		recs, err = m.commit.Commit(ctx, []eventlog.Item{{Kind: eventlog.KindCapture, Body: rec}})
 	}

@@ -62,15 +62,20 @@ func (o Outcome) Items() []eventlog.Item {
 // ended during the analysis (nothing is recorded then).
 func Analyse(ctx context.Context, pipe *detect.Pipeline, f ingest.Found, opts ...detect.Option) (Outcome, error) {
 	if f.Problem != nil {
-		return Outcome{Record: Quarantined(f.Name, f.Problem), Err: f.Problem}, nil
+		rec := Quarantined(f.Name, f.Problem)
+		rec.Input = f.Input
+		return Outcome{Record: rec, Err: f.Problem}, nil
 	}
 	res, err := pipe.Process(ctx, f.Capture, f.Name, opts...)
 	switch {
 	case ctx.Err() != nil:
 		return Outcome{}, ctx.Err()
 	case err != nil:
-		return Outcome{Record: Quarantined(f.Name, err), Err: err}, nil
+		rec := Quarantined(f.Name, err)
+		rec.Input = f.Input
+		return Outcome{Record: rec, Err: err}, nil
 	}
+	res.Record.Input = f.Input
 	return Outcome{Events: res.Events, Record: res.Record, Result: res}, nil
 }
 
