@@ -316,3 +316,51 @@ func permissionFlip(t *testing.T, sub string) {
 	}
 	monitortest.CheckOnce(t, s.logPath, meanwhile+2) // no record for the folder itself
 }
+
+// TestFaultsOneWriterPerLog (issue 17, item 1): a second daemon on a log
+// that one is writing, whether through another state folder or after the
+// first one's ledger.db was deleted, must not start: it exits at once
+// naming the process that holds the log, and the log keeps every capture
+// exactly once (seq order and chain: monitortest.CheckLog).
+func TestFaultsOneWriterPerLog(t *testing.T) {
+	shared := filepath.Join(t.TempDir(), "logs", "events.jsonl")
+	a := newSite(t, "log: {path: "+shared+"}\n")
+	pa := startProcess(t, "run", "--config", a.cfgPath)
+	monitortest.Drop(t, filepath.Join(a.in, "first.ci8"), monitortest.CI8(11, true))
+	monitortest.WaitFor(t, 20*time.Second, "the first capture recorded", func() bool { return monitortest.CountCaptures(t, shared) >= 1 })
+
+	second := func(t *testing.T, cfg string) {
+		t.Helper()
+		p := startProcess(t, "run", "--config", cfg)
+		code := p.wait(t, 5*time.Second)
+		out := p.out.String()
+		holder := "pid " + strconv.Itoa(pa.cmd.Process.Pid)
+		if code == 0 || !strings.Contains(out, shared) || !strings.Contains(out, holder) {
+			t.Errorf("second daemon: exit %d; want a failure naming the log %s and its holder (%s); output:\n%s",
+				code, shared, holder, monitortest.Tail(out, 5))
+		}
+		t.Logf("second daemon: exit %d: %s", code, strings.TrimSpace(monitortest.Tail(out, 1)))
+	}
+	t.Run("another state folder", func(t *testing.T) {
+		b := newSite(t, "log: {path: "+shared+"}\n")
+		// The same captures in the second site's input: were it to run,
+		// they would be recorded twice.
+		monitortest.Drop(t, filepath.Join(b.in, "first.ci8"), monitortest.CI8(11, true))
+		second(t, b.cfgPath)
+	})
+	t.Run("ledger deleted", func(t *testing.T) {
+		if err := os.Remove(filepath.Join(a.state, "ledger.db")); err != nil {
+			t.Fatal(err)
+		}
+		second(t, a.cfgPath)
+	})
+	for i := range 3 {
+		monitortest.Drop(t, filepath.Join(a.in, fmt.Sprintf("after%d.ci8", i)), monitortest.CI8(uint64(20+i), false))
+	}
+	monitortest.WaitFor(t, 20*time.Second, "the later captures", func() bool { return monitortest.CountCaptures(t, shared) >= 4 })
+	pa.cmd.Process.Signal(syscall.SIGTERM)
+	if code := pa.wait(t, 20*time.Second); code != 0 {
+		t.Errorf("first daemon: exit %d after SIGTERM, want 0", code)
+	}
+	monitortest.CheckOnce(t, shared, 4)
+}

@@ -75,6 +75,7 @@ type Log struct {
 	recovered int64    // bytes cut by the last recovery
 	failed    error    // non-nil: the cause of the failed state
 	closed    bool
+	lock      *writerLock // one writer per log: held from Open to Close
 }
 
 // Open opens the log whose active file is path, creating it (mode 0640)
@@ -89,6 +90,10 @@ type Log struct {
 // lines, or a break of the chain within the active file, is corruption:
 // Open returns an error naming the file and line (wrapping a *VerifyError)
 // and changes nothing.
+//
+// A log has one writer: Open first takes the log's lock (LockName), and
+// while another Log holds it, in this process or another, Open changes
+// nothing and returns an error wrapping ErrLocked that names the holder.
 func Open(path string, opt Options) (*Log, error) {
 	l := &Log{path: filepath.Clean(path), opt: opt, logger: opt.Logger}
 	if l.logger == nil {
@@ -97,7 +102,13 @@ func Open(path string, opt Options) (*Log, error) {
 	if opt.MaxBytes < 0 {
 		return nil, fmt.Errorf("eventlog: negative MaxBytes %d", opt.MaxBytes)
 	}
+	lock, err := lockLog(l.path)
+	if err != nil {
+		return nil, err
+	}
+	l.lock = lock
 	if err := l.recover(); err != nil {
+		lock.release()
 		return nil, err
 	}
 	return l, nil
@@ -393,7 +404,8 @@ func (l *Log) Reopen() error {
 	return nil
 }
 
-// Close closes the active file. Later appends return ErrClosed.
+// Close closes the active file and releases the log's lock. Later appends
+// return ErrClosed.
 func (l *Log) Close() error {
 	l.mu.Lock()
 	defer l.mu.Unlock()
@@ -401,6 +413,7 @@ func (l *Log) Close() error {
 		return nil
 	}
 	l.closed = true
+	defer l.lock.release()
 	if l.f == nil {
 		return nil
 	}
