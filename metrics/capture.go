@@ -91,6 +91,11 @@ func (s *Set) setLive(c Capture) {
 		s.knownActive.WithLabelValues(c.Input, class).Set(b2f(ok))
 	}
 	open := openAtEnd(news)
+	// A C/N0 drop is a statement about the satellites, not interference
+	// (issue 18): cn0_drop_active says it; interference_active's cn0_drop
+	// series stays, at 0, for its readers.
+	delete(open, detect.ClassCN0Drop)
+	s.observeCN0Drop(c.Input, c.Events)
 	for _, class := range detect.Classes {
 		jn, ok := open[class]
 		s.active.WithLabelValues(c.Input, class).Set(b2f(ok))
@@ -159,6 +164,58 @@ func openAtEnd(events []detect.Event) map[string]float64 {
 		}
 	}
 	return out
+}
+
+// NoExplanation is cn0_drop_active's explained_by for a C/N0 drop that no
+// interference of the capture explains: the satellite signal is degraded
+// (obstruction, antenna, cable).
+const NoExplanation = "none"
+
+// CN0DropCauses are the values of cn0_drop_active's explained_by label:
+// none and every interference class.
+func CN0DropCauses() []string {
+	out := []string{NoExplanation}
+	for _, c := range detect.Classes {
+		if c != detect.ClassCN0Drop {
+			out = append(out, c)
+		}
+	}
+	return out
+}
+
+// observeCN0Drop sets the C/N0-drop series of an input from the events of
+// its latest analysed capture: its drop and what explains it, the class
+// of the strongest (largest J/N) event the drop is linked to (Related) or
+// none.
+func (s *Set) observeCN0Drop(input string, events []detect.Event) {
+	var drop *detect.Event
+	for i := range events {
+		if events[i].Class == detect.ClassCN0Drop && events[i].OpenAtEnd {
+			drop = &events[i]
+			break
+		}
+	}
+	cause := ""
+	if drop != nil {
+		cause = NoExplanation
+		best := math.Inf(-1)
+		for _, e := range events {
+			if e.Class != detect.ClassCN0Drop && slices.Contains(drop.Related, e.ID) && e.JNDB > best {
+				cause, best = e.Class, e.JNDB
+			}
+		}
+	}
+	for _, c := range CN0DropCauses() {
+		s.cn0DropActive.WithLabelValues(input, c).Set(b2f(c == cause))
+	}
+	if cause != "" && !slices.Contains(CN0DropCauses(), cause) {
+		s.cn0DropActive.WithLabelValues(input, cause).Set(1)
+	}
+	if drop != nil && drop.Params.DropDB != nil {
+		s.cn0DropDB.WithLabelValues(input).Set(*drop.Params.DropDB)
+	} else {
+		s.cn0DropDB.DeleteLabelValues(input)
+	}
 }
 
 // SpoofingKinds are the kinds of a spoofing event (params.kind), the

@@ -63,17 +63,21 @@ type Set struct {
 	satellites  *prometheus.GaugeVec
 	startTime   *prometheus.GaugeVec
 	// Spoofing: per input and kind, the latest capture's spoofing event.
-	spoofActive *prometheus.GaugeVec   // input, kind
-	spoofPRNs   *prometheus.GaugeVec   // input
-	spoofOver   *prometheus.GaugeVec   // input
-	spoofDelay  *prometheus.GaugeVec   // input
-	events      *prometheus.CounterVec // class
-	captures    *prometheus.CounterVec // result
-	samples     prometheus.Counter
-	bytes       prometheus.Counter
-	processing  prometheus.Histogram
-	realtime    prometheus.Gauge
-	lastCapture prometheus.Gauge
+	spoofActive *prometheus.GaugeVec // input, kind
+	spoofPRNs   *prometheus.GaugeVec // input
+	spoofOver   *prometheus.GaugeVec // input
+	spoofDelay  *prometheus.GaugeVec // input
+	// A C/N0 drop: a statement about the satellites, with or without a
+	// cause, apart from interference_active.
+	cn0DropActive *prometheus.GaugeVec   // input, explained_by
+	cn0DropDB     *prometheus.GaugeVec   // input
+	events        *prometheus.CounterVec // class
+	captures      *prometheus.CounterVec // result
+	samples       prometheus.Counter
+	bytes         prometheus.Counter
+	processing    prometheus.Histogram
+	realtime      prometheus.Gauge
+	lastCapture   prometheus.Gauge
 
 	logErrors     prometheus.Counter
 	logWritable   prometheus.Gauge
@@ -94,7 +98,7 @@ func New(opt Options) *Set {
 		return g
 	}
 	s.active = gauge("interference_active",
-		"1 while an interference of the class is open at the end of the input's latest analysed capture, else 0.", "input", "class")
+		"1 while an interference of the class is open at the end of the input's latest analysed capture, else 0. A C/N0 drop is no interference: its series (class cn0_drop) stays 0, see cn0_drop_active.", "input", "class")
 	s.knownActive = gauge("known_emitter_active",
 		"1 while an emitter the site's configuration lists as known (detect known_emitters) is open at the end of the input's latest analysed capture, else 0; such events raise no interference_active.", "input", "class")
 	s.jn = gauge("jn_db",
@@ -108,6 +112,10 @@ func New(opt Options) *Set {
 	s.cn0Mean = gauge("cn0_mean_dbhz", "Mean of the C/N0 values in dB-Hz of the (up to) four strongest satellites of the latest capture.", "input")
 	s.satellites = gauge("satellites_acquired", "Satellites acquired in the latest capture.", "input")
 	s.startTime = gauge("capture_start_timestamp_seconds", "Start time of the latest analysed capture (its first sample), Unix seconds.", "input")
+	s.cn0DropActive = gauge("cn0_drop_active",
+		"1 while the input's latest analysed capture shows the satellites' C/N0 dropped below the site's baseline, else 0; explained_by names the class of the interference that explains the drop, or none (obstruction, antenna, cable: satellite signal degraded).", "input", "explained_by")
+	s.cn0DropDB = gauge("cn0_drop_db",
+		"C/N0 drop of the input's latest analysed capture below the site's baseline, dB (mean over the satellites); absent while none.", "input")
 	s.spoofActive = gauge("spoofing_active",
 		"1 while the input's latest analysed capture has a spoofing event of the kind (counterfeit: false signals; meaconing: the band re-radiated), else 0.", "input", "kind")
 	s.spoofPRNs = gauge("spoofing_prns", "Satellites (PRNs) named by the spoofing event of the input's latest analysed capture; 0 when it has none.", "input")
@@ -121,7 +129,7 @@ func New(opt Options) *Set {
 		s.reg.MustRegister(c)
 		return c
 	}
-	s.events = counter("events_total", "Interference events found in analysed captures, by class.", "class")
+	s.events = counter("events_total", "Events found in analysed captures, by class (interference, spoofing, and cn0_drop: a C/N0 drop, with or without interference).", "class")
 	s.captures = counter("captures_total", "Captures recorded in the event log, by result (ok or quarantined).", "result")
 	s.samples = counter("samples_total", "Complex samples analysed.").WithLabelValues()
 	s.bytes = counter("bytes_total", "Bytes of sample data analysed.").WithLabelValues()
@@ -178,6 +186,9 @@ func New(opt Options) *Set {
 		}
 		for _, k := range SpoofingKinds {
 			s.spoofActive.WithLabelValues(in, k).Set(0)
+		}
+		for _, c := range CN0DropCauses() {
+			s.cn0DropActive.WithLabelValues(in, c).Set(0)
 		}
 		s.spoofPRNs.WithLabelValues(in).Set(0)
 	}

@@ -120,7 +120,7 @@ func TestExposition(t *testing.T) {
 		return b.String()
 	}
 	want := `
-# HELP quietband_interference_active 1 while an interference of the class is open at the end of the input's latest analysed capture, else 0.
+# HELP quietband_interference_active 1 while an interference of the class is open at the end of the input's latest analysed capture, else 0. A C/N0 drop is no interference: its series (class cn0_drop) stays 0, see cn0_drop_active.
 # TYPE quietband_interference_active gauge
 ` + classes("mast", nil) + classes("roof", map[string]bool{"cw": true}) + `
 # HELP quietband_jn_db J/N of the open interference of the class (largest if several): interference over noise power in the capture bandwidth, in dB; absent while none is open.
@@ -147,7 +147,7 @@ quietband_satellites_acquired{input="roof"} 5
 # TYPE quietband_captures_total counter
 quietband_captures_total{result="ok"} 3
 quietband_captures_total{result="quarantined"} 1
-# HELP quietband_events_total Interference events found in analysed captures, by class.
+# HELP quietband_events_total Events found in analysed captures, by class (interference, spoofing, and cn0_drop: a C/N0 drop, with or without interference).
 # TYPE quietband_events_total counter
 quietband_events_total{class="cn0_drop"} 0
 quietband_events_total{class="cw"} 2
@@ -285,7 +285,7 @@ quietband_spoofing_power_over_authentic_db{input="roof"} 4
 # HELP quietband_spoofing_delay_seconds Delay of a meacon's re-radiated copies after the authentic signals in the input's latest capture, seconds; absent unless meaconing.
 # TYPE quietband_spoofing_delay_seconds gauge
 quietband_spoofing_delay_seconds{input="roof"} 1.5e-06
-# HELP quietband_interference_active 1 while an interference of the class is open at the end of the input's latest analysed capture, else 0.
+# HELP quietband_interference_active 1 while an interference of the class is open at the end of the input's latest analysed capture, else 0. A C/N0 drop is no interference: its series (class cn0_drop) stays 0, see cn0_drop_active.
 # TYPE quietband_interference_active gauge
 `
 	var b strings.Builder
@@ -439,4 +439,82 @@ func TestKnownEmitterRaisesNoAlert(t *testing.T) {
 	if get("active", detect.ClassCW) != 1 || get("known", detect.ClassCW) != 1 {
 		t.Errorf("known spur and a new tone: interference_active %v, known_emitter_active %v; want 1 and 1", get("active", detect.ClassCW), get("known", detect.ClassCW))
 	}
+}
+
+// Issue 18 item 2: a blocked sky was alerted as jamming (cn0_drop was a
+// series of interference_active). A C/N0 drop has its own series, named by
+// the interference that explains it (the event's related ids), or none:
+// satellite signal degraded.
+func TestBlockedSkyIsNotJamming(t *testing.T) {
+	drop := func(db float64, related ...string) detect.Event {
+		e := openEvent(detect.ClassCN0Drop, 0, 100000, 9)
+		e.ID, e.Related, e.Params.DropDB = "drop", related, &db
+		return e
+	}
+	cw := openEvent(detect.ClassCW, 0, 100000, 20)
+	cw.ID = "cw1"
+	band := openEvent(detect.ClassNarrowbandNoise, 0, 100000, 12)
+	band.ID = "band1"
+	for _, tc := range []struct {
+		name   string
+		events []detect.Event
+		cause  string  // explained_by set to 1 ("" none at all)
+		dropDB float64 // NaN: no series
+		cw     float64 // interference_active{class="cw"}
+	}{
+		{"obstruction: drop alone", []detect.Event{drop(9.6)}, NoExplanation, 9.6, 0},
+		{"drop with a jammer", []detect.Event{band, cw, drop(7, "cw1", "band1")}, detect.ClassCW, 7, 1},
+		{"clean", nil, "", math.NaN(), 0},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			s := newTestSet(t, false)
+			s.ObserveCapture(Capture{Input: "roof", Record: okRecord("a.ci8", 40), Events: tc.events, At: time.Unix(1, 0)})
+			if v := testutil.ToFloat64(s.active.WithLabelValues("roof", detect.ClassCN0Drop)); v != 0 {
+				t.Errorf("interference_active{class=cn0_drop} = %v, want 0 (a C/N0 drop is no interference)", v)
+			}
+			if hasSeries(t, s, "quietband_jn_db", "class", detect.ClassCN0Drop) {
+				t.Error("jn_db{class=cn0_drop} present: a C/N0 drop has no J/N")
+			}
+			if v := testutil.ToFloat64(s.active.WithLabelValues("roof", detect.ClassCW)); v != tc.cw {
+				t.Errorf("interference_active{class=cw} = %v, want %v", v, tc.cw)
+			}
+			for _, c := range CN0DropCauses() {
+				want := b2f(c == tc.cause)
+				if v := testutil.ToFloat64(s.cn0DropActive.WithLabelValues("roof", c)); v != want {
+					t.Errorf("cn0_drop_active{explained_by=%q} = %v, want %v", c, v, want)
+				}
+			}
+			n := testutil.CollectAndCount(s.cn0DropDB)
+			if math.IsNaN(tc.dropDB) != (n == 0) {
+				t.Fatalf("cn0_drop_db series: %d", n)
+			}
+			if n > 0 {
+				if v := testutil.ToFloat64(s.cn0DropDB.WithLabelValues("roof")); v != tc.dropDB {
+					t.Errorf("cn0_drop_db = %v, want %v", v, tc.dropDB)
+				}
+			}
+		})
+	}
+}
+
+// hasSeries tells whether the family name has a series with label = value.
+func hasSeries(t *testing.T, s *Set, name, label, value string) bool {
+	t.Helper()
+	fams, err := s.Registry().Gather()
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, f := range fams {
+		if f.GetName() != name {
+			continue
+		}
+		for _, m := range f.GetMetric() {
+			for _, l := range m.GetLabel() {
+				if l.GetName() == label && l.GetValue() == value {
+					return true
+				}
+			}
+		}
+	}
+	return false
 }

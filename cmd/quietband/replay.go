@@ -167,13 +167,16 @@ func printEvents(w io.Writer, events []detect.Event) {
 	tw := tabwriter.NewWriter(w, 2, 4, 2, ' ', 0)
 	fmt.Fprintln(tw, "CAPTURE\tCLASS\tSTART\tDURATION\tOFFSET\tBANDWIDTH\tJ/N\tC/N0 LOSS\tDETAIL")
 	for _, e := range events {
-		loss := "-"
-		if e.Impact != nil {
-			loss = fmt.Sprintf("%.1f dB", e.Impact.CN0DegradationDB)
+		loss, jn := "-", "-"
+		if l, ok := report.Loss(e); ok {
+			loss = fmt.Sprintf("%.1f dB", l)
 		}
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%.1f ms\t%+.1f kHz\t%.1f kHz\t%.1f dB\t%s\t%s\n",
+		if v, ok := report.JN(e); ok {
+			jn = fmt.Sprintf("%.1f dB", v)
+		}
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%.1f ms\t%+.1f kHz\t%.1f kHz\t%s\t%s\t%s\n",
 			e.Capture, e.Class, e.Start.Format("15:04:05.000"), e.End.Sub(e.Start.Time).Seconds()*1e3,
-			e.OffsetHz/1e3, e.BandwidthHz/1e3, e.JNDB, loss, report.Detail(e))
+			e.OffsetHz/1e3, e.BandwidthHz/1e3, jn, loss, report.Detail(e))
 	}
 	tw.Flush()
 }

@@ -88,6 +88,10 @@ func CSVRow(e detect.Event) []string {
 	if l, ok := Loss(e); ok {
 		loss = num(l)
 	}
+	jn := ""
+	if v, ok := JN(e); ok {
+		jn = num(v)
+	}
 	params, err := json.Marshal(e.Params)
 	if err != nil {
 		panic(fmt.Sprintf("report: marshal of event params: %v", err))
@@ -96,7 +100,7 @@ func CSVRow(e detect.Event) []string {
 		e.Capture, e.ID, e.Episode, e.Class, when(e.Start), when(e.End), dur,
 		strconv.FormatInt(e.SampleStart, 10), strconv.FormatInt(e.SampleCount, 10),
 		num(e.OffsetHz), center, num(e.BandwidthHz), lower, upper,
-		num(e.JNDB), num(e.PowerDBFS), loss,
+		jn, num(e.PowerDBFS), loss,
 		strings.Join(e.Detectors, " "), strings.Join(e.Related, " "), string(params),
 	}
 }

@@ -66,7 +66,15 @@ func TestCSV(t *testing.T) {
 		if row[col["capture"]] != e.Capture || row[col["id"]] != e.ID || row[col["class"]] != e.Class || row[col["episode"]] != e.Episode {
 			t.Errorf("row %d: %q", i, row)
 		}
-		if num(row, "offset_hz") != e.OffsetHz || num(row, "bandwidth_hz") != e.BandwidthHz || num(row, "jn_db") != e.JNDB ||
+		// A cn0_drop is no interference and has no J/N (issue 18 item 2).
+		if e.Class == detect.ClassCN0Drop {
+			if row[col["jn_db"]] != "" {
+				t.Errorf("row %d: cn0_drop with a J/N %q", i, row[col["jn_db"]])
+			}
+		} else if num(row, "jn_db") != e.JNDB {
+			t.Errorf("row %d: jn_db %q", i, row[col["jn_db"]])
+		}
+		if num(row, "offset_hz") != e.OffsetHz || num(row, "bandwidth_hz") != e.BandwidthHz ||
 			num(row, "power_dbfs") != e.PowerDBFS || int64(num(row, "sample_start")) != e.SampleStart || int64(num(row, "sample_count")) != e.SampleCount {
 			t.Errorf("row %d numbers do not read back: %q", i, row)
 		}

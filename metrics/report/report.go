@@ -387,7 +387,7 @@ func eventRowOf(i int, e detect.Event) eventRow {
 		Offset:    fmt.Sprintf("%+.1f", e.OffsetHz/1e3),
 		Absolute:  "–",
 		Bandwidth: fmt.Sprintf("%.1f", e.BandwidthHz/1e3),
-		JN:        f1(e.JNDB), Power: f1(e.PowerDBFS), Loss: "–",
+		JN:        "–", Power: f1(e.PowerDBFS), Loss: "–",
 		Detail: Detail(e), Detectors: strings.Join(e.Detectors, ", "), ID: e.ID}
 	if !e.Start.IsZero() {
 		row.Start = e.Start.UTC().Format("15:04:05.000")
@@ -398,10 +398,23 @@ func eventRowOf(i int, e detect.Event) eventRow {
 	if e.CenterHz != nil {
 		row.Absolute = fmt.Sprintf("%.6f", *e.CenterHz/1e6)
 	}
+	if jn, ok := JN(e); ok {
+		row.JN = f1(jn)
+	}
 	if l, ok := Loss(e); ok {
 		row.Loss = f1(l)
 	}
 	return row
+}
+
+// JN is an event's J/N in dB, when it has one: a cn0_drop is a statement
+// about the satellites, not an interference, and has none (issue 18; its
+// record's jn_db, kept for readers of the log, is not shown as one).
+func JN(e detect.Event) (float64, bool) {
+	if e.Class == detect.ClassCN0Drop || math.IsNaN(e.JNDB) {
+		return 0, false
+	}
+	return e.JNDB, true
 }
 
 // Loss is the C/N0 loss an event stands for: the predicted degradation
@@ -535,8 +548,8 @@ func (a *classAcc) add(e detect.Event, rate float64) {
 		a.worstJN = math.Inf(-1)
 	}
 	a.n++
-	if !math.IsNaN(e.JNDB) {
-		a.worstJN, a.hasJN = math.Max(a.worstJN, e.JNDB), true
+	if jn, ok := JN(e); ok {
+		a.worstJN, a.hasJN = math.Max(a.worstJN, jn), true
 	}
 	if l, ok := Loss(e); ok {
 		if !a.hasLoss || l > a.worstLoss {

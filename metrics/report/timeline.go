@@ -58,7 +58,10 @@ func (t *timeline) add(rec detect.CaptureRecord, events []detect.Event) {
 	}
 	t.captures = append(t.captures, c)
 	for _, e := range events {
-		ev := tlEvent{class: e.Class, jn: e.JNDB, capIdx: int(idx), t0: math.NaN(), t1: math.NaN()}
+		ev := tlEvent{class: e.Class, jn: math.NaN(), capIdx: int(idx), t0: math.NaN(), t1: math.NaN()}
+		if jn, ok := JN(e); ok {
+			ev.jn = jn
+		}
 		if !e.Start.IsZero() && !e.End.IsZero() {
 			ev.t0, ev.t1 = unix(e.Start.Time), unix(e.End.Time)
 		}
