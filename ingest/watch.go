@@ -34,6 +34,18 @@ const (
 	NotifyPoll     = "poll"     // no events, rescans only (network file systems)
 )
 
+// ErrHalfPair is wrapped by the problem of a capture found as half of a
+// SigMF pair that waited its input's MetadataWait for the other half.
+// Such a capture is incomplete, not bad: it is not to be moved away, and
+// it is found again, whole, when the other half arrives.
+var ErrHalfPair = errors.New("half of a SigMF pair")
+
+// halfPairError is a half pair's problem: its message, and ErrHalfPair.
+type halfPairError struct{ msg string }
+
+func (e *halfPairError) Error() string        { return e.msg }
+func (e *halfPairError) Is(target error) bool { return target == ErrHalfPair }
+
 // WatchInput is one watched folder and what its raw files cannot say.
 type WatchInput struct {
 	Name string // the input's name, carried into every capture found
@@ -47,6 +59,11 @@ type WatchInput struct {
 	// unchanged before it counts as complete when no close-after-write or
 	// rename event says so. 0: DefaultSettle.
 	Settle time.Duration
+	// MetadataWait is how long half of a SigMF pair (data without its
+	// metadata, or metadata without its data) waits for the other half
+	// before it is handed out with a problem wrapping ErrHalfPair.
+	// 0: WatchConfig.OrphanAfter.
+	MetadataWait time.Duration
 }
 
 // WatchConfig configures a Watcher.
@@ -160,6 +177,9 @@ func NewWatcher(cfg WatchConfig) (*Watcher, error) {
 	for i, in := range cfg.Inputs {
 		if in.Settle <= 0 {
 			in.Settle = DefaultSettle
+		}
+		if in.MetadataWait <= 0 {
+			in.MetadataWait = cfg.OrphanAfter
 		}
 		if in.Name == "" {
 			return nil, fmt.Errorf("ingest: watcher: input %d (%s) has no name", i, in.Root)
@@ -599,16 +619,18 @@ func (w *Watcher) evaluate(c *candidate, now time.Time) (item *readyItem, done b
 	switch {
 	case meta.exists && data.exists:
 		return w.item(c, c.key, nil, now), true
-	case meta.exists: // data missing: give it one settle time more
-		if now.Sub(c.completeAt) < settle {
+	case meta.exists: // data missing: a half pair, like data without metadata
+		if now.Sub(c.completeAt) < c.in.MetadataWait {
 			return nil, false
 		}
-		return w.item(c, c.key, nil, now), true
+		return w.item(c, c.key, &CaptureError{File: meta.path,
+			Problem: &halfPairError{"SigMF metadata without its data file " + filepath.Base(data.path)}}, now), true
 	default: // data without metadata
-		if now.Sub(c.completeAt) < w.cfg.OrphanAfter {
+		if now.Sub(c.completeAt) < c.in.MetadataWait {
 			return nil, false
 		}
-		return w.item(c, data.path, captureErr(data.path, "SigMF data file without its metadata %s", filepath.Base(meta.path)), now), true
+		return w.item(c, data.path, &CaptureError{File: data.path,
+			Problem: &halfPairError{"SigMF data file without its metadata " + filepath.Base(meta.path)}}, now), true
 	}
 }
 

@@ -2,6 +2,7 @@ package ingest
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"log/slog"
 	"math/rand/v2"
@@ -497,20 +498,28 @@ func TestWatchIncompletePairs(t *testing.T) {
 	h := startWatcher(t, WatchConfig{Notify: NotifyInotify, RescanInterval: -1, OrphanAfter: 400 * time.Millisecond,
 		Inputs: []WatchInput{{Name: "site", Root: root, Raw: testRaw, Settle: 200 * time.Millisecond}}})
 	rng := rand.New(rand.NewPCG(21, 22))
-	// Metadata without data: handed out after a settle time, and Open says
-	// the data is missing.
+	// Metadata without data, and data without metadata: half pairs, each
+	// a problem wrapping ErrHalfPair once it has waited OrphanAfter (the
+	// input's MetadataWait), not before (issue 17, item 2).
+	t0 := time.Now()
 	if err := WriteMeta(filepath.Join(root, "nodata"+MetaExt), testMeta(time.Time{})); err != nil {
 		t.Fatal(err)
 	}
 	wk := h.take(1, 10*time.Second)[0]
-	if wk.Name != "nodata.sigmf-meta" || wk.Problem == nil || !strings.Contains(wk.Problem.Error(), "cannot read data") {
-		t.Errorf("metadata alone: %s problem %v, want a missing-data problem", wk.Name, wk.Problem)
+	if wk.Name != "nodata.sigmf-meta" || !errors.Is(wk.Problem, ErrHalfPair) || !strings.Contains(wk.Problem.Error(), "without its data file") {
+		t.Errorf("metadata alone: %s problem %v, want a half-pair problem", wk.Name, wk.Problem)
 	}
-	// Data without metadata: a problem once it has waited OrphanAfter.
+	if d := time.Since(t0); d < 400*time.Millisecond {
+		t.Errorf("metadata alone handed out after %v, before OrphanAfter (400ms)", d)
+	}
+	t0 = time.Now()
 	writeFile(t, filepath.Join(root, "nometa"+DataExt), ci8Bytes(rng, 10))
 	wk = h.take(1, 10*time.Second)[0]
-	if wk.Name != "nometa.sigmf-data" || wk.Problem == nil || !strings.Contains(wk.Problem.Error(), "without its metadata") {
-		t.Errorf("data alone: %s problem %v, want an orphan problem", wk.Name, wk.Problem)
+	if wk.Name != "nometa.sigmf-data" || !errors.Is(wk.Problem, ErrHalfPair) || !strings.Contains(wk.Problem.Error(), "without its metadata") {
+		t.Errorf("data alone: %s problem %v, want a half-pair problem", wk.Name, wk.Problem)
+	}
+	if d := time.Since(t0); d < 400*time.Millisecond {
+		t.Errorf("data alone handed out after %v, before OrphanAfter (400ms)", d)
 	}
 	// Its metadata arrives late: now it is a capture.
 	if err := WriteMeta(filepath.Join(root, "nometa"+MetaExt), testMeta(time.Time{})); err != nil {

@@ -56,6 +56,10 @@ type inputConfig struct {
 	LOSide     string        `yaml:"lo_side"`
 	Pattern    string        `yaml:"pattern"`
 	Settle     time.Duration `yaml:"settle"`
+	// MetadataWait is how long half of a SigMF pair waits for the other
+	// half before it is recorded as quarantined (never moved away; the
+	// pair is analysed when it is whole). 0: ingest.DefaultOrphanAfter.
+	MetadataWait time.Duration `yaml:"metadata_wait"`
 }
 
 type logConfig struct {
@@ -260,6 +264,12 @@ func (c *runConfig) fill() error {
 		if in.Settle < 0 {
 			return fmt.Errorf("inputs[%d] (%s): settle %v must be positive", i, in.Name, in.Settle)
 		}
+		if in.MetadataWait == 0 {
+			in.MetadataWait = ingest.DefaultOrphanAfter
+		}
+		if in.MetadataWait < 0 {
+			return fmt.Errorf("inputs[%d] (%s): metadata_wait %v must be positive", i, in.Name, in.MetadataWait)
+		}
 		if fs := in.analysedRate(); fs > 0 {
 			if err := c.Detect.Defaults(fs).Validate(); err != nil {
 				return fmt.Errorf("detect (for input %s at %g samples/s): %w", in.Name, fs, err)
@@ -415,7 +425,7 @@ func (in inputConfig) rawSettings() ingest.RawSettings {
 // sameInput reports whether two inputs watch the same folder the same way
 // (a change needs a restart).
 func sameInput(a, b inputConfig) bool {
-	return a.Name == b.Name && a.Path == b.Path && a.Settle == b.Settle && a.rawSettings() == b.rawSettings()
+	return a.Name == b.Name && a.Path == b.Path && a.Settle == b.Settle && a.MetadataWait == b.MetadataWait && a.rawSettings() == b.rawSettings()
 }
 
 // notify is the watcher's event source for the configuration.
@@ -438,7 +448,7 @@ func (c *runConfig) monitor() monitor.Config {
 		m.AnchorEvery = *c.Log.AnchorEvery
 	}
 	for _, in := range c.Inputs {
-		m.Inputs = append(m.Inputs, monitor.Input{Name: in.Name, Path: in.Path, Raw: in.rawSettings(), Settle: in.Settle})
+		m.Inputs = append(m.Inputs, monitor.Input{Name: in.Name, Path: in.Path, Raw: in.rawSettings(), Settle: in.Settle, MetadataWait: in.MetadataWait})
 	}
 	return m
 }

@@ -364,3 +364,41 @@ func TestFaultsOneWriterPerLog(t *testing.T) {
 	}
 	monitortest.CheckOnce(t, shared, 4)
 }
+
+// TestFaultsLateMetadata (issue 17, item 2): a SigMF data file whose
+// metadata arrives after the input's metadata_wait, with a quarantine
+// folder. The half pair is recorded as waiting past its time but never
+// moved; when the metadata comes the pair is analysed (its tone found)
+// and the record says it resolves the earlier quarantine.
+func TestFaultsLateMetadata(t *testing.T) {
+	s := newSite(t, "quarantine_dir: QDIR\n")
+	cfg := bytes.Replace(monitortest.MustRead(t, s.cfgPath), []byte("QDIR"), []byte(filepath.Join(s.dir, "quarantine")), 1)
+	cfg = bytes.Replace(cfg, []byte("    settle: 150ms\n"), []byte("    settle: 150ms\n    metadata_wait: 1s\n"), 1)
+	os.WriteFile(s.cfgPath, cfg, 0o644)
+	p := startProcess(t, "run", "--config", s.cfgPath)
+	data := filepath.Join(s.in, "late.sigmf-data")
+	monitortest.Drop(t, data, monitortest.CI8(31, true))
+	monitortest.WaitFor(t, 20*time.Second, "the half pair recorded as waiting past its time", func() bool { return monitortest.CountCaptures(t, s.logPath) >= 1 })
+	time.Sleep(700 * time.Millisecond) // a quarantine move would be done by now
+	if _, err := os.Stat(data); err != nil {
+		t.Fatalf("the data file waiting for its metadata was moved away: %v", err)
+	}
+	meta := fmt.Sprintf(`{"global":{"core:datatype":"ci8","core:sample_rate":%g,"core:version":"1.0.0"},"captures":[{"core:sample_start":0}],"annotations":[]}`, monitortest.Rate)
+	monitortest.Drop(t, filepath.Join(s.in, "late.sigmf-meta"), []byte(meta))
+	monitortest.WaitFor(t, 20*time.Second, "the whole pair analysed", func() bool { return monitortest.CountCaptures(t, s.logPath) >= 2 })
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	p.wait(t, 20*time.Second)
+	recs := monitortest.CheckLog(t, s.logPath)
+	caps := monitortest.CaptureRecords(recs)
+	half, whole := caps["late.sigmf-data"], caps["late.sigmf-meta"]
+	if len(half) != 1 || half[0].Status != detect.StatusQuarantined {
+		t.Errorf("half pair: %+v, want one quarantined record", half)
+	}
+	if len(whole) != 1 || whole[0].Status != detect.StatusOK || whole[0].Events == 0 {
+		t.Fatalf("whole pair: %+v, want one ok record with the tone", whole)
+	}
+	if !strings.Contains(strings.Join(whole[0].Notes, " "), "late.sigmf-data") {
+		t.Errorf("whole pair's notes %q do not say that it resolves the quarantine of late.sigmf-data", whole[0].Notes)
+	}
+	t.Logf("half pair: %q; whole pair: %d events, notes %q", half[0].Error, whole[0].Events, whole[0].Notes)
+}

@@ -52,6 +52,8 @@ type Input struct {
 	Path   string             // the folder, watched recursively
 	Raw    ingest.RawSettings // what its raw files cannot say
 	Settle time.Duration      // see ingest.WatchInput
+	// MetadataWait: see ingest.WatchInput.
+	MetadataWait time.Duration
 }
 
 // Retention retires analysed captures older than Days (0: never), deleted
@@ -175,7 +177,7 @@ func New(cfg Config, log *slog.Logger) (*Monitor, error) {
 		}
 		m.inputs[in.Name] = in
 		names = append(names, in.Name)
-		watch = append(watch, ingest.WatchInput{Name: in.Name, Root: in.Path, Raw: in.Raw, Settle: in.Settle})
+		watch = append(watch, ingest.WatchInput{Name: in.Name, Root: in.Path, Raw: in.Raw, Settle: in.Settle, MetadataWait: in.MetadataWait})
 	}
 	m.watcher, err = ingest.NewWatcher(ingest.WatchConfig{Inputs: watch, RescanInterval: cfg.RescanInterval,
 		QueueSize: cfg.QueueSize, Notify: cfg.Notify, Logger: log})

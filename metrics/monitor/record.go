@@ -80,6 +80,16 @@ func (m *Monitor) handle(ctx context.Context, w ingest.Found) error {
 			return nil
 		}
 	}
+	if w.Problem == nil && w.DataPath != w.Path && rec.SHA256 != "" {
+		note, err := m.halfPairResolved(name, rec.SHA256)
+		if err != nil {
+			return err
+		}
+		if note != "" {
+			rec.Notes = append(rec.Notes, note)
+			m.log.Info("quietband run: half pair completed; its quarantine is resolved", "capture", name, "input", w.Input)
+		}
+	}
 
 	var items []eventlog.Item
 	var events []detect.Event
@@ -155,7 +165,7 @@ func (m *Monitor) handle(ctx context.Context, w ingest.Found) error {
 
 	if rec.Status == detect.StatusQuarantined {
 		m.log.Warn("quietband run: capture quarantined", "capture", name, "input", w.Input, "reason", rec.Error)
-		if m.cfg.QuarantineDir != "" {
+		if m.cfg.QuarantineDir != "" && movable(w) {
 			m.moveAway(w, filepath.Join(m.cfg.QuarantineDir, w.Input), "quarantine")
 		}
 		return nil

@@ -116,16 +116,17 @@ func MustRead(t testing.TB, path string) []byte {
 
 // Record is a record of the event log, decoded.
 type Record struct {
-	Seq     uint64 `json:"seq"`
-	Kind    string `json:"kind"`
-	ID      string `json:"id"`
-	Class   string `json:"class"`
-	Capture string `json:"capture"`
-	SHA256  string `json:"sha256"`
-	Status  string `json:"status"`
-	Error   string `json:"error"`
-	Events  int    `json:"events"`
-	Samples int64  `json:"samples"`
+	Seq     uint64   `json:"seq"`
+	Kind    string   `json:"kind"`
+	ID      string   `json:"id"`
+	Class   string   `json:"class"`
+	Capture string   `json:"capture"`
+	SHA256  string   `json:"sha256"`
+	Status  string   `json:"status"`
+	Error   string   `json:"error"`
+	Events  int      `json:"events"`
+	Samples int64    `json:"samples"`
+	Notes   []string `json:"notes"`
 }
 
 // ReadLog reads the event log at path (every segment). A malformed line
