@@ -207,15 +207,22 @@ const (
 
 // Stats summarise a whole capture.
 type Stats struct {
-	PowerDBFS      float64     `json:"power_dbfs"`
-	NoiseFloorDBFS float64     `json:"noise_floor_dbfs"`
-	AGCDeviationDB float64     `json:"agc_deviation_db"`
-	SKMax          float64     `json:"sk_max"`
-	ClipFraction   float64     `json:"clip_fraction"`
-	KurtosisRatio  float64     `json:"kurtosis_ratio"`
-	Baseline       string      `json:"baseline"` // "learning", "learned" or "loaded"
-	Satellites     []Satellite `json:"satellites"`
-	GNSSSkipped    string      `json:"gnss_skipped,omitempty"`
+	PowerDBFS      float64 `json:"power_dbfs"`
+	NoiseFloorDBFS float64 `json:"noise_floor_dbfs"`
+	AGCDeviationDB float64 `json:"agc_deviation_db"`
+	// PowerOverBaselineDB is the capture's total in-band power over the
+	// site baseline's, 10·log10(P/P_base) dB: what a receiver's AGC would
+	// follow (Bastide et al. 2003), not the noise floor. It is
+	// agc_deviation_db under a name that says what it is (issue 18; the
+	// old field stays for readers of the log), absent while no baseline
+	// power is known (agc_deviation_db reads 0 then).
+	PowerOverBaselineDB *float64    `json:"power_over_baseline_db,omitempty"`
+	SKMax               float64     `json:"sk_max"`
+	ClipFraction        float64     `json:"clip_fraction"`
+	KurtosisRatio       float64     `json:"kurtosis_ratio"`
+	Baseline            string      `json:"baseline"` // "learning", "learned" or "loaded"
+	Satellites          []Satellite `json:"satellites"`
+	GNSSSkipped         string      `json:"gnss_skipped,omitempty"`
 	// Quantization names the few levels a low-bit front end's samples
 	// take ("2-bit: levels ±1, ±3"), and OccupancyLevelDB the input level
 	// read from the magnitude-bit occupancy (REFERENCES §12.3: σ over the

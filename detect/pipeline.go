@@ -520,6 +520,7 @@ func (s *statsAcc) stats(basePower float64) Stats {
 	}
 	if basePower > 0 && p > 0 {
 		st.AGCDeviationDB = 10 * math.Log10(p/basePower)
+		st.PowerOverBaselineDB = ptr(st.AGCDeviationDB)
 	}
 	if !math.IsInf(s.skMax, 0) {
 		st.SKMax = s.skMax

@@ -119,6 +119,11 @@ func (s *Set) setLive(c Capture) {
 		s.power.WithLabelValues(c.Input).Set(st.PowerDBFS)
 		s.noiseFloor.WithLabelValues(c.Input).Set(st.NoiseFloorDBFS)
 		s.agc.WithLabelValues(c.Input).Set(st.AGCDeviationDB)
+		if v := st.PowerOverBaselineDB; v != nil {
+			s.overBase.WithLabelValues(c.Input).Set(*v)
+		} else {
+			s.overBase.DeleteLabelValues(c.Input)
+		}
 		s.skMax.WithLabelValues(c.Input).Set(st.SKMax)
 		s.clip.WithLabelValues(c.Input).Set(st.ClipFraction)
 		if c.Satellites && st.GNSSSkipped == "" {

@@ -56,6 +56,7 @@ type Set struct {
 	power       *prometheus.GaugeVec // input
 	noiseFloor  *prometheus.GaugeVec
 	agc         *prometheus.GaugeVec
+	overBase    *prometheus.GaugeVec
 	skMax       *prometheus.GaugeVec
 	clip        *prometheus.GaugeVec
 	cn0         *prometheus.GaugeVec // input, prn
@@ -105,7 +106,8 @@ func New(opt Options) *Set {
 		"J/N of the open interference of the class (largest if several): interference over noise power in the capture bandwidth, in dB; absent while none is open.", "input", "class")
 	s.power = gauge("power_dbfs", "Mean power of the latest capture, dB relative to full scale.", "input")
 	s.noiseFloor = gauge("noise_floor_dbfs", "Noise floor of the latest capture (robust to narrow interference), dB relative to full scale.", "input")
-	s.agc = gauge("agc_deviation_db", "Power of the latest capture over the site baseline's power, in dB (0 while the baseline is learned).", "input")
+	s.agc = gauge("agc_deviation_db", "In-band power over baseline: the latest capture's total in-band power over the site baseline's, in dB (0 while the baseline is learned); kept for readers, the same as power_over_baseline_db.", "input")
+	s.overBase = gauge("power_over_baseline_db", "In-band power over baseline: the latest capture's total in-band power over the site baseline's, in dB, what a receiver's AGC follows; absent while no baseline power is known.", "input")
 	s.skMax = gauge("sk_max", "Largest spectral kurtosis estimate over the bins and blocks of the latest capture (1 for Gaussian noise).", "input")
 	s.clip = gauge("clip_ratio", "Fraction of the latest capture's samples at a saturated code.", "input")
 	s.cn0 = gauge("cn0_dbhz", "C/N0 of the satellite in the latest capture, dB-Hz (absent when not acquired).", "input", "prn")

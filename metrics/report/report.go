@@ -172,7 +172,10 @@ func (r *Report) Add(c Capture) error {
 		row.Start = rec.Start.UTC().Format("2006-01-02 15:04:05")
 	}
 	if st := rec.Stats; st != nil {
-		row.Power, row.Floor, row.AGC = f1(st.PowerDBFS), f1(st.NoiseFloorDBFS), signed(st.AGCDeviationDB, 2)
+		row.Power, row.Floor = f1(st.PowerDBFS), f1(st.NoiseFloorDBFS)
+		if v, ok := PowerOverBaseline(st); ok {
+			row.AGC = signed(v, 2)
+		}
 		if c := detect.StrongestMean(st.Satellites, detect.Strongest); !math.IsNaN(c) {
 			row.CN0 = f1(c)
 		}
@@ -370,7 +373,9 @@ func facts(rec detect.CaptureRecord) []fact {
 	if st := rec.Stats; st != nil {
 		add("power", f1(st.PowerDBFS)+" dBFS")
 		add("noise floor", f1(st.NoiseFloorDBFS)+" dBFS")
-		add("floor deviation", signed(st.AGCDeviationDB, 2)+" dB")
+		if v, ok := PowerOverBaseline(st); ok {
+			add(PowerOverBaselineWords, signed(v, 2)+" dB")
+		}
 		add("SK max", fmt.Sprintf("%.3g", st.SKMax))
 		add("clipped", fmt.Sprintf("%.3g %%", st.ClipFraction*100))
 		add("baseline", st.Baseline)
@@ -405,6 +410,29 @@ func eventRowOf(i int, e detect.Event) eventRow {
 		row.Loss = f1(l)
 	}
 	return row
+}
+
+// PowerOverBaselineWords names stats.power_over_baseline_db (and the
+// older agc_deviation_db) the one way the report, the timeline, the
+// dashboard and the metrics' help say it (issue 18: it was "floor dev.",
+// "noise-floor deviation" and "AGC deviation").
+const PowerOverBaselineWords = "in-band power over baseline"
+
+// PowerOverBaseline is the capture's total in-band power over the site
+// baseline's in dB (stats.power_over_baseline_db), when a baseline power
+// was known; from a log written before that field, agc_deviation_db
+// unless the baseline was still being learned (when it read 0).
+func PowerOverBaseline(st *detect.Stats) (float64, bool) {
+	if st == nil {
+		return 0, false
+	}
+	if st.PowerOverBaselineDB != nil {
+		return *st.PowerOverBaselineDB, true
+	}
+	if st.Baseline == "" || st.Baseline == "learning" {
+		return 0, false
+	}
+	return st.AGCDeviationDB, true
 }
 
 // JN is an event's J/N in dB, when it has one: a cn0_drop is a statement
@@ -684,7 +712,7 @@ func (r *Report) Close() error {
 		CSS: template.CSS(cb.String()), Script: template.JS(script),
 		Captures: r.n, Quarantined: len(r.quar), Events: r.all.n, WithSections: len(r.sections),
 		Timeline: picture{File: tlFile, Width: TimelineWidth, Height: TimelineHeight, Alt: "site timeline",
-			Caption: "Events by class, J/N, C/N0 of the strongest four satellites and the noise-floor deviation from the baseline, per capture; dashed lines mark quarantined captures."},
+			Caption: "Events by class, J/N, C/N0 of the strongest four satellites and the in-band power over the baseline, per capture; dashed lines mark quarantined captures."},
 		Quar: r.quar, Rows: r.rows, Sections: r.sections}
 	p.Analysed = p.Captures - p.Quarantined
 	p.CSP = "default-src 'none'; img-src 'self'; style-src '" + cspHash(cb.String()) + "'; script-src '" + cspHash(string(script)) + "'; base-uri 'none'; form-action 'none'"

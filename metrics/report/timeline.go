@@ -54,7 +54,9 @@ func (t *timeline) add(rec detect.CaptureRecord, events []detect.Event) {
 	}
 	if rec.Stats != nil {
 		c.cn0 = detect.StrongestMean(rec.Stats.Satellites, detect.Strongest)
-		c.agc = rec.Stats.AGCDeviationDB
+		if v, ok := PowerOverBaseline(rec.Stats); ok {
+			c.agc = v
+		}
 	}
 	t.captures = append(t.captures, c)
 	for _, e := range events {
@@ -226,7 +228,7 @@ func series(xs, ys []float64) []plotter.XYs {
 // TimelineWidth × TimelineHeight PNG: events as bars on one lane per
 // class (quarantined captures on a lane of their own), J/N of each event
 // by class, the mean C/N0 of the strongest four satellites per capture,
-// and the noise-floor deviation from the baseline (stats.agc_deviation_db).
+// and the in-band power over the baseline (PowerOverBaseline).
 // Quarantined captures are marked by a dashed line on every panel.
 func (t *timeline) write(w io.Writer) (Layout, error) {
 	cv, dc := canvas(TimelineWidth, TimelineHeight)
@@ -312,7 +314,7 @@ func (t *timeline) write(w io.Writer) (Layout, error) {
 	}
 	pj.Y.Min, pj.Y.Max = math.Floor(jlo-2), math.Ceil(jhi+4)
 
-	// Panels 3 and 4: per-capture C/N0 and floor deviation.
+	// Panels 3 and 4: per-capture C/N0 and in-band power over baseline.
 	cn0 := make([]float64, len(t.captures))
 	agc := make([]float64, len(t.captures))
 	mid := make([]float64, len(t.captures))
@@ -324,7 +326,7 @@ func (t *timeline) write(w io.Writer) (Layout, error) {
 		}
 	}
 	pc := newPlot("", "", "C/N0 top 4 (dB-Hz)")
-	pa := newPlot("", xlabel, "floor dev. (dB)")
+	pa := newPlot("", xlabel, PowerOverBaselineWords+" (dB)")
 	for _, pl := range []struct {
 		p   *plot.Plot
 		ys  []float64
