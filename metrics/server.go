@@ -38,6 +38,10 @@ type ServerOptions struct {
 	// Recent serves /api/events; nil answers it with 404.
 	Recent *Recent
 	Logger *slog.Logger
+	// MaxConns and MaxConnsPerClient bound the connections held open at
+	// once, in all and from one remote address; 0: from the process's
+	// open-file limit (connBounds).
+	MaxConns, MaxConnsPerClient int
 }
 
 // Server serves the daemon's HTTP endpoints:
@@ -77,6 +81,15 @@ func NewServer(opt ServerOptions) (*Server, error) {
 	if err != nil {
 		return nil, fmt.Errorf("listening on %s: %w", opt.Listen, err)
 	}
+	total, perClient := connBounds(openFileLimit())
+	if opt.MaxConns > 0 {
+		total = opt.MaxConns
+	}
+	if opt.MaxConnsPerClient > 0 {
+		perClient = opt.MaxConnsPerClient
+	}
+	ln = newBoundedListener(ln, total, perClient, log)
+	log.Debug("metrics: HTTP connections bounded", "connections", total, "per_client", perClient)
 	s := &Server{opt: opt, ln: ln, log: log}
 	mux := http.NewServeMux()
 	mux.Handle("GET /metrics", promhttp.HandlerFor(opt.Gatherer, promhttp.HandlerOpts{

@@ -111,8 +111,9 @@ type Monitor struct {
 	abandonProc context.CancelFunc
 	lastHead    time.Time
 	lastSweep   time.Time
-	processed   atomic.Int64 // captures recorded by this run
-	hashes      atomic.Int64 // data files read whole to hash them (not by analysis)
+	processed   atomic.Int64      // captures recorded by this run
+	retries     map[string]*retry // captures to try again (transient failures), by input and name
+	hashes      atomic.Int64      // data files read whole to hash them (not by analysis)
 }
 
 // New opens the ledger (taking its lock, so that a second daemon on the
@@ -121,7 +122,7 @@ type Monitor struct {
 // segments, loads the baseline and sets up the watcher, metrics and HTTP
 // server (not yet serving: Run does).
 func New(cfg Config, log *slog.Logger) (*Monitor, error) {
-	m := &Monitor{cfg: cfg, log: log, grace: shutdownGrace, sweepEvery: retentionEvery, inputs: map[string]Input{}}
+	m := &Monitor{cfg: cfg, log: log, grace: shutdownGrace, sweepEvery: retentionEvery, inputs: map[string]Input{}, retries: map[string]*retry{}}
 	// The capture in hand runs under procCtx: a stop cancels it after the
 	// grace time, a second one at once (Abandon).
 	m.procCtx, m.abandonProc = context.WithCancel(context.Background())
@@ -293,6 +294,12 @@ loop:
 			break loop
 		case <-tick.C:
 			m.housekeeping(time.Now())
+			if e := m.retryDue(procCtx, time.Now()); e != nil {
+				if procCtx.Err() == nil {
+					err = e
+				}
+				break loop
+			}
 		}
 	}
 	stopWatcher()

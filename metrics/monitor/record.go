@@ -68,6 +68,9 @@ func (m *Monitor) handle(ctx context.Context, w ingest.Found) error {
 		m.log.Info("quietband run: capture abandoned; it is analysed again on the next start", "capture", name)
 		return err
 	}
+	if out.Err != nil && ingest.Transient(out.Err) && m.retryLater(w, out.Err) {
+		return nil
+	}
 	res, rec := out.Result, out.Record
 	if rec.Status == detect.StatusQuarantined {
 		if !hashed {
