@@ -32,6 +32,9 @@ type Sources struct {
 	// WatchRescans and WatchOverflows count the watcher's full rescans
 	// and lost-event overflows.
 	WatchRescans, WatchOverflows func() uint64
+	// FolderReadable tells whether an input's watched folder exists and
+	// can be read (watched_folder_readable).
+	FolderReadable func(input string) bool
 }
 
 // Options configure a Set.
@@ -167,6 +170,14 @@ func New(opt Options) *Set {
 		s.reg.MustRegister(prometheus.NewCounterFunc(prometheus.CounterOpts{Namespace: Namespace, Name: "watcher_overflows_total",
 			Help: "Times the kernel's file-event queue overflowed (events lost, rescan forced)."},
 			func() float64 { return float64(src.WatchOverflows()) }))
+	}
+
+	if src.FolderReadable != nil {
+		for _, in := range opt.Inputs {
+			s.reg.MustRegister(prometheus.NewGaugeFunc(prometheus.GaugeOpts{Namespace: Namespace, Name: "watched_folder_readable",
+				Help:        "1 while the input's watched folder exists and can be read, else 0 (the daemon is not ready then).",
+				ConstLabels: prometheus.Labels{"input": in}}, func() float64 { return b2f(src.FolderReadable(in)) }))
+		}
 	}
 
 	version, revision := buildVersion()

@@ -170,11 +170,10 @@ func New(cfg Config, log *slog.Logger) (*Monitor, error) {
 	var names []string
 	var watch []ingest.WatchInput
 	for _, in := range cfg.Inputs {
-		if _, err := os.Stat(in.Path); errors.Is(err, os.ErrNotExist) {
-			log.Warn("quietband run: watched folder missing; creating it", "input", in.Name, "path", in.Path)
-			if err := os.MkdirAll(in.Path, 0o755); err != nil {
-				return fail(fmt.Errorf("input %s: %w", in.Name, err))
-			}
+		// A mistyped folder is an error, not a healthy daemon watching
+		// nothing (issue 18 item 4).
+		if err := FolderProblem(in.Path); err != nil {
+			return fail(fmt.Errorf("input %s: %w", in.Name, err))
 		}
 		m.inputs[in.Name] = in
 		names = append(names, in.Name)
@@ -190,6 +189,7 @@ func New(cfg Config, log *slog.Logger) (*Monitor, error) {
 		EventLogLastSeq: m.elog.LastSeq,
 		WatchRescans:    func() uint64 { return m.watcher.Stats().Rescans },
 		WatchOverflows:  func() uint64 { return m.watcher.Stats().Overflows },
+		FolderReadable:  func(input string) bool { return FolderProblem(m.inputs[input].Path) == nil },
 	}})
 	// Restore each input's live state from its latest capture in the log
 	// (issue 18: a restart kept no alert firing and made the stale-monitor
@@ -233,6 +233,11 @@ func (m *Monitor) notReady() []string {
 		why = append(why, "event log not writable: "+err.Error())
 	} else if m.commit.Failing() {
 		why = append(why, "event log append failing; retrying")
+	}
+	for _, in := range m.cfg.Inputs {
+		if err := FolderProblem(in.Path); err != nil {
+			why = append(why, fmt.Sprintf("input %s: %v", in.Name, err))
+		}
 	}
 	if m.behind.Load() {
 		why = append(why, fmt.Sprintf("falling behind: captures wait longer than %v for analysis", m.cfg.FallingBehindAfter))

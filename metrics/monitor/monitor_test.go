@@ -685,3 +685,59 @@ func TestRestartKeepsTheAlertFiringAndTheLastCaptureTime(t *testing.T) {
 		t.Errorf("last_capture_timestamp_seconds: %v after the restart, %v before (want within 1 s)", a, b)
 	}
 }
+
+// Issue 18 item 4: a mistyped --watch folder looked healthy (no warning,
+// /readyz 200, watcher gauge 1; the folder was created). A watched folder
+// that does not exist, or is not a folder, is an error at start naming it;
+// one that goes away makes the daemon not ready while it lasts.
+func TestMistypedWatchFolderIsAnError(t *testing.T) {
+	for _, tc := range []struct {
+		name string
+		make func(p string)
+		want string
+	}{
+		{"missing", func(string) {}, "does not exist"},
+		{"a file", func(p string) { os.WriteFile(p, []byte("x"), 0o644) }, "is not a folder"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			s := newSite(t, nil)
+			bad := filepath.Join(s.dir, "captrues")
+			tc.make(bad)
+			s.cfg.Inputs[0].Path = bad
+			if _, err := New(s.cfg, slog.New(slog.NewTextHandler(io.Discard, nil))); err == nil {
+				t.Fatal("New: no error")
+			} else if !strings.Contains(err.Error(), bad) || !strings.Contains(err.Error(), tc.want) || !strings.Contains(err.Error(), "input roof") {
+				t.Errorf("error %q does not name the input, the folder and %q", err, tc.want)
+			}
+			if _, err := os.Stat(bad); tc.name == "missing" && err == nil {
+				t.Error("the mistyped folder was created")
+			}
+		})
+	}
+
+	s := newSite(t, nil)
+	rd := startDaemon(t, s)
+	if code, body := httpGet(t, rd.base+"/readyz"); code != http.StatusOK {
+		t.Fatalf("/readyz: %d %s", code, body)
+	}
+	gone := s.in + ".away"
+	if err := os.Rename(s.in, gone); err != nil {
+		t.Fatal(err)
+	}
+	code, body := httpGet(t, rd.base+"/readyz")
+	if code != http.StatusServiceUnavailable || !strings.Contains(body, "input roof") || !strings.Contains(body, s.in) {
+		t.Errorf("/readyz with the folder gone: %d %s", code, body)
+	}
+	if _, m := httpGet(t, rd.base+"/metrics"); !strings.Contains(m, `quietband_watched_folder_readable{input="roof"} 0`) {
+		t.Error("watched_folder_readable not 0 with the folder gone")
+	}
+	if err := os.Rename(gone, s.in); err != nil {
+		t.Fatal(err)
+	}
+	if code, body := httpGet(t, rd.base+"/readyz"); code != http.StatusOK {
+		t.Errorf("/readyz with the folder back: %d %s", code, body)
+	}
+	if _, m := httpGet(t, rd.base+"/metrics"); !strings.Contains(m, `quietband_watched_folder_readable{input="roof"} 1`) {
+		t.Error("watched_folder_readable not 1 with the folder back")
+	}
+}
