@@ -177,6 +177,12 @@ type CaptureRecord struct {
 	Error          string   `json:"error,omitempty"`
 	Events         int      `json:"events"`
 	Stats          *Stats   `json:"stats,omitempty"`
+	// Config is the fingerprint of the effective detection configuration
+	// and code version the capture was analysed with (Pipeline.Fingerprint,
+	// folded into the event ids too): a capture with this SHA-256 and this
+	// fingerprint is already recorded, and appending it again to the same
+	// log records nothing new (issue 18 item 5).
+	Config string `json:"config_fingerprint,omitempty"`
 	// Fault, when set, says that the front end, not the sky, explains the
 	// samples (an ok capture may carry one: what could be analysed was).
 	Fault *Fault `json:"fault,omitempty"`

@@ -372,7 +372,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 	}
 
 	rec := CaptureRecord{Capture: name, SHA256: sha, Format: c.Format.String(), SampleRate: c.FileSampleRate,
-		Samples: c.FileSamples, Status: StatusOK, Events: len(res.Events), Stats: &stats, Fault: fault}
+		Samples: c.FileSamples, Status: StatusOK, Events: len(res.Events), Stats: &stats, Fault: fault, Config: fp}
 	if c.Decimation > 1 {
 		rec.AnalysisRateHz = ptr(fs)
 	}

@@ -201,6 +201,9 @@ func printSummary(w io.Writer, s *replay.Summary, logPath string) {
 	if logPath != "" {
 		fmt.Fprintf(w, "event log: %s\n", logPath)
 	}
+	if n := s.AlreadyRecorded; n > 0 {
+		fmt.Fprintf(w, "%d of the %d capture(s) already recorded in the event log with the same data (SHA-256) and configuration: nothing new written for them\n", n, s.Captures)
+	}
 }
 
 // progressBar draws done of total as a bar of width cells with the count.

@@ -145,8 +145,12 @@ type Options struct {
 	// Workers is the number of CPUs to analyse with (Placement); the
 	// records do not depend on it.
 	Workers int
-	// Log, when set, takes each capture's records, one batch a capture.
+	// Log, when set, takes each capture's records, one batch a capture;
+	// a capture it already holds (Recorded) is not written again.
 	Log *eventlog.Log
+	// AlreadyRecorded, when set, is told of each capture that Log already
+	// holds (nothing is written for it).
+	AlreadyRecorded func(ingest.Found, Outcome)
 	// Observer, when set, gives the block observer of each capture about
 	// to be analysed (nil: none), for pictures.
 	Observer func(ingest.Found) detect.BlockObserver
@@ -161,6 +165,9 @@ type Options struct {
 // Summary is what a replay found.
 type Summary struct {
 	Captures, Bad int            // captures, and those quarantined
+	// AlreadyRecorded counts the captures the log already held: nothing
+	// was written for them.
+	AlreadyRecorded int
 	Events        []detect.Event // every event, in order
 	ByClass       map[string]int // events by class
 	Samples       int64          // complex samples analysed
@@ -186,6 +193,12 @@ func Run(ctx context.Context, o Options) (*Summary, error) {
 		case err == nil:
 			state.Baselines = b
 		case !errors.Is(err, os.ErrNotExist):
+			return nil, err
+		}
+	}
+	var recorded Recorded
+	if o.Log != nil {
+		if recorded, err = RecordedIn(o.Log.Path()); err != nil {
 			return nil, err
 		}
 	}
@@ -222,10 +235,18 @@ func Run(ctx context.Context, o Options) (*Summary, error) {
 			sum.Samples += f.Capture.Samples
 			sum.Signal += f.Capture.Duration()
 		}
-		if o.Log != nil {
+		switch {
+		case o.Log == nil:
+		case recorded.Has(out.Record):
+			sum.AlreadyRecorded++
+			if o.AlreadyRecorded != nil {
+				o.AlreadyRecorded(f, out)
+			}
+		default:
 			if _, err := o.Log.AppendBatch(out.Items()); err != nil {
 				return nil, err
 			}
+			recorded.Add(out.Record)
 		}
 		if o.Done != nil {
 			if err := o.Done(f, out); err != nil {
