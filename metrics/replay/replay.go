@@ -164,15 +164,15 @@ type Options struct {
 
 // Summary is what a replay found.
 type Summary struct {
-	Captures, Bad int            // captures, and those quarantined
+	Captures, Bad int // captures, and those quarantined
 	// AlreadyRecorded counts the captures the log already held: nothing
 	// was written for them.
 	AlreadyRecorded int
-	Events        []detect.Event // every event, in order
-	ByClass       map[string]int // events by class
-	Samples       int64          // complex samples analysed
-	Signal        time.Duration  // capture time analysed
-	Busy          time.Duration  // wall-clock time of the analysis
+	Events          []detect.Event // every event, in order
+	ByClass         map[string]int // events by class
+	Samples         int64          // complex samples analysed
+	Signal          time.Duration  // capture time analysed
+	Busy            time.Duration  // wall-clock time of the analysis
 }
 
 // Run analyses every capture under o.Paths, in order (see the package
