@@ -56,8 +56,10 @@ type WatchInput struct {
 	// is handed out with its problem, never passed over.
 	Raw RawSettings
 	// Settle is how long a file's size and modification time must stay
-	// unchanged before it counts as complete when no close-after-write or
-	// rename event says so. 0: DefaultSettle.
+	// unchanged before it counts as complete when no rename event says
+	// so; after a close-after-write event, min(Settle, DefaultSettle)
+	// (a recorder may append in several open–append–close rounds).
+	// 0: DefaultSettle.
 	Settle time.Duration
 	// MetadataWait is how long half of a SigMF pair (data without its
 	// metadata, or metadata without its data) waits for the other half
@@ -98,9 +100,12 @@ type WatchStats struct {
 // complete, opened (Found.Capture) or with its problem, in time order
 // within a batch, on a bounded channel.
 //
-// A file is complete when a close-after-write or rename-into-place event
-// says so (inotify), or when its size and modification time have not changed
-// for the input's settle time. A SigMF pair is complete when both files are;
+// A file is complete when a rename-into-place event says so (inotify), when
+// it was closed after writing (inotify) and has not changed since for the
+// settle time or DefaultSettle, whichever is shorter (a close alone is not
+// enough: a recorder may open, append and close again each second), or
+// when its size and modification time have not changed for the input's
+// settle time. A SigMF pair is complete when both files are;
 // by convention the data file is written first and the metadata renamed
 // into place last, so the metadata is the trigger. Files and folders whose
 // name starts with '.' are ignored (writers' temporary files), and symbolic
@@ -333,7 +338,8 @@ type fsOp uint8
 
 const (
 	opWritten  fsOp = iota + 1 // a file was created or written: not complete yet
-	opComplete                 // closed after writing, or renamed into place
+	opComplete                 // renamed into place
+	opClosed                   // closed after writing: complete once unchanged for closedQuiet (a recorder may append in rounds)
 	opGone                     // a file was deleted or moved away
 	opDir                      // a folder was made: watch and scan it
 	opDirMoved                 // a folder was moved in: its files are in place
@@ -367,10 +373,20 @@ type fileState struct {
 	ino         uint64
 	stableSince time.Time // since when size and mtime are unchanged
 	closed      bool      // complete by event since the last change
+	// closedWrite: closed after writing since the last change; complete
+	// once unchanged for closedQuiet(settle) (issue 17, item 4).
+	closedWrite bool
 }
 
+// closedQuiet is how long a file closed after writing must stay unchanged
+// to be complete: the settle time, at most DefaultSettle. A recorder that
+// opens, appends and closes its file each round (each second, say) closes
+// it many times; a quiet period longer than its rounds sees it whole.
+func closedQuiet(settle time.Duration) time.Duration { return min(settle, DefaultSettle) }
+
 func (f *fileState) complete(now time.Time, settle time.Duration) bool {
-	return f.exists && (f.closed || now.Sub(f.stableSince) >= settle)
+	quiet := now.Sub(f.stableSince)
+	return f.exists && (f.closed || (f.closedWrite && quiet >= closedQuiet(settle)) || quiet >= settle)
 }
 
 // observe stats the file and records a change. It reports whether the
@@ -395,6 +411,7 @@ func (f *fileState) observe(now time.Time) bool {
 	first := !f.exists
 	f.exists, f.size, f.mtime, f.ino = true, st.Size(), st.ModTime(), ino
 	f.closed = f.link // making a link is atomic: in place once it exists
+	f.closedWrite = false
 	f.stableSince = now
 	if first && st.ModTime().Before(now) {
 		// Unchanged since its modification time.
@@ -534,6 +551,11 @@ func (w *Watcher) handle(ev fsEvent) {
 			f.closed = f.exists
 		case ev.op == opComplete:
 			f.closed = f.exists
+		case ev.op == opClosed:
+			// Complete once unchanged for closedQuiet since the last
+			// change (observe set stableSince).
+			f.closed = false
+			f.closedWrite = f.exists
 		case ev.op == opWritten:
 			// Being written: wait for the close, or a settle time from now.
 			f.closed = false

@@ -164,8 +164,10 @@ func (n *inotifyNotifier) dispatch(wd int32, mask uint32, name string) bool {
 		op = opDirGone
 	case isDir:
 		return true
-	case mask&(unix.IN_CLOSE_WRITE|unix.IN_MOVED_TO) != 0:
+	case mask&unix.IN_MOVED_TO != 0:
 		op = opComplete
+	case mask&unix.IN_CLOSE_WRITE != 0:
+		op = opClosed
 	case mask&(unix.IN_CREATE|unix.IN_MODIFY) != 0:
 		op = opWritten
 	case mask&(unix.IN_DELETE|unix.IN_MOVED_FROM) != 0:

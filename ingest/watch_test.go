@@ -23,7 +23,8 @@ import (
 
 // watchModes are the event sources; every behaviour test runs on each.
 // With inotify the settle time is an hour, so only the close-after-write
-// and rename events can hand a capture out: that checks they are used.
+// (and then DefaultSettle unchanged) and rename events can hand a capture
+// out: that checks they are used.
 var watchModes = []struct {
 	notify string
 	settle time.Duration

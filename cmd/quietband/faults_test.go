@@ -482,3 +482,64 @@ func TestFaultsDescriptorsExhausted(t *testing.T) {
 	t.Logf("%d slow clients under a 128-file limit: %d captures analysed, none quarantined; first scrape after they left answered in %v",
 		clients, n, took.Round(time.Millisecond))
 }
+
+// TestFaultsAppendRounds (issue 17, item 4): a recorder that opens, appends
+// and closes its file each round (here every 300 ms, five rounds, settle
+// 1 s). The capture is analysed once, whole: one capture record with every
+// sample, its tone once.
+func TestFaultsAppendRounds(t *testing.T) {
+	s := newSite(t, "")
+	cfg := bytes.Replace(monitortest.MustRead(t, s.cfgPath), []byte("settle: 150ms"), []byte("settle: 1s"), 1)
+	os.WriteFile(s.cfgPath, cfg, 0o644)
+	p := startProcess(t, "run", "--config", s.cfgPath)
+	listenAddr(t, p)
+	data := monitortest.CI8(51, true)
+	const rounds = 5
+	path := filepath.Join(s.in, "rounds.ci8")
+	step := len(data) / rounds &^ 1
+	for i := range rounds {
+		end := (i + 1) * step
+		if i == rounds-1 {
+			end = len(data)
+		}
+		f, err := os.OpenFile(path, os.O_WRONLY|os.O_APPEND|os.O_CREATE, 0o644)
+		if err != nil {
+			t.Fatal(err)
+		}
+		f.Write(data[i*step : end])
+		f.Close()
+		time.Sleep(300 * time.Millisecond)
+	}
+	monitortest.WaitFor(t, 20*time.Second, "the capture recorded", func() bool { return monitortest.CountCaptures(t, s.logPath) >= 1 })
+	time.Sleep(2 * time.Second) // any later analysis of it would be done by now
+	recs := monitortest.CheckLog(t, s.logPath)
+	caps := monitortest.CaptureRecords(recs)
+	rs := caps["rounds.ci8"]
+	events := 0
+	for _, r := range recs {
+		if r.Kind == "event" {
+			events++
+		}
+	}
+	if len(rs) != 1 || rs[0].Samples != int64(len(data)/2) || events != rs[0].Events || events == 0 {
+		t.Fatalf("capture records %+v, %d events in the log; want one record of %d samples with its tone", rs, events, len(data)/2)
+	}
+	t.Logf("%d append rounds: %d capture record(s), %d event(s)", rounds, len(rs), events)
+
+	// The recorder comes back after the capture was recorded: its new
+	// record says which one it replaces.
+	f, err := os.OpenFile(path, os.O_WRONLY|os.O_APPEND, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	f.Write(monitortest.CI8(52, false))
+	f.Close()
+	monitortest.WaitFor(t, 20*time.Second, "the grown capture recorded", func() bool { return monitortest.CountCaptures(t, s.logPath) >= 2 })
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	p.wait(t, 20*time.Second)
+	rs = monitortest.CaptureRecords(monitortest.CheckLog(t, s.logPath))["rounds.ci8"]
+	if len(rs) != 2 || !strings.Contains(strings.Join(rs[1].Notes, " "), "replaces the earlier record of this capture (data SHA-256 "+rs[0].SHA256) {
+		t.Fatalf("after the capture grew: %+v; want a second record whose note names the first's SHA-256", rs)
+	}
+	t.Logf("grown: %d → %d samples, note %q", rs[0].Samples, rs[1].Samples, rs[1].Notes[len(rs[1].Notes)-1])
+}

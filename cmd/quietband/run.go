@@ -33,8 +33,10 @@ same detectors as 'quietband replay', appends the events and a capture record
 to the event log (one fsynced write per capture), and serves Prometheus
 metrics, /healthz, /readyz and /api/events.
 
-A capture is complete when it was closed after writing, renamed into place,
-or left unchanged for the input's settle time; a SigMF pair when both files
+A capture is complete when it was renamed into place, closed after writing
+and then left unchanged for the input's settle time (at most 2 s: a recorder
+may append in several rounds), or left unchanged for the settle time; a SigMF
+pair when both files
 are (the metadata last). Captures already recorded in the event log are not
 analysed again; after a crash, those without a capture record are. A capture
 that cannot be read is recorded as quarantined with the reason. What is done

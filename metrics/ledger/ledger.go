@@ -133,6 +133,16 @@ func (e *Entry) SHAFor(id FileID, ok bool) (string, bool) {
 	return e.fileSHA, true
 }
 
+// Latest returns the SHA-256 of the content of the capture's latest record
+// (of a content recorded before, its first record counts), "" if none has
+// one. A record of other content replaces it (issue 17, item 4).
+func (e *Entry) Latest() string {
+	if len(e.outcomes) == 0 {
+		return ""
+	}
+	return e.outcomes[len(e.outcomes)-1].sha
+}
+
 // record applies a capture record: content sha has the outcome reason, and
 // the data file had identity *file (nil: not known).
 func (e *Entry) record(sha, reason string, file *FileID) {

@@ -40,11 +40,13 @@ func (m *Monitor) handle(ctx context.Context, w ingest.Found) error {
 	id, idOK := ledger.Identify(w.DataPath, follow)
 	sha, hashed := "", false
 	prevReason, retrying := "", false
+	replaces := "" // SHA-256 of the content of the capture's latest record
 	ent, known, err := m.ledger.Lookup(name)
 	if err != nil {
 		return err
 	}
 	if known {
+		replaces = ent.Latest()
 		var ok bool
 		if sha, ok = ent.SHAFor(id, idOK); !ok {
 			var stable bool
@@ -82,6 +84,13 @@ func (m *Monitor) handle(ctx context.Context, w ingest.Found) error {
 			m.log.Debug("quietband run: still quarantined for the recorded reason", "capture", name)
 			return nil
 		}
+	}
+	if replaces != "" && rec.SHA256 != "" && rec.SHA256 != replaces && !retrying {
+		// The capture changed after it was recorded (a recorder came back
+		// to it): this record is its current one.
+		rec.Notes = append(rec.Notes, "replaces the earlier record of this capture (data SHA-256 "+replaces+
+			"): the data changed after that record was written, and this record is the current one")
+		m.log.Info("quietband run: capture changed after it was recorded; its new record replaces the earlier one", "capture", name, "input", w.Input)
 	}
 	if w.Problem == nil && w.DataPath != w.Path && rec.SHA256 != "" {
 		note, err := m.halfPairResolved(name, rec.SHA256)
