@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"runtime"
 	"text/tabwriter"
@@ -36,6 +37,9 @@ factor above 1 keeps up.`, errOut)
 	}
 	if _, err := ingest.ParseFormat(*format); err != nil {
 		return fmt.Errorf("--format: %w", err)
+	}
+	if !(*rate > 0) || math.IsInf(*rate, 0) {
+		return fmt.Errorf("--rate %g: give the recorder's sample rate in samples/s, above 0 (e.g. 10e6)", *rate)
 	}
 	if *seconds <= 0 || *captures < 1 || *repeat < 1 {
 		return fmt.Errorf("--seconds must be > 0, --captures and --repeat ≥ 1")

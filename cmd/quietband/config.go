@@ -162,13 +162,21 @@ func decodeRunConfig(r io.Reader, cfg *runConfig) error {
 	dec := yaml.NewDecoder(r)
 	dec.KnownFields(true)
 	if err := dec.Decode(cfg); err != nil && !errors.Is(err, io.EOF) {
-		// "field x not found in type main.inputConfig" → unknown key "x".
-		return errors.New(unknownField.ReplaceAllString(err.Error(), `unknown key "$1"`))
+		// "field x not found in type main.inputConfig" → unknown key "x";
+		// a duration without a unit asks for one (issue 18: settle: 2).
+		msg := unknownField.ReplaceAllString(err.Error(), `unknown key "$1"`)
+		msg = unitlessDuration.ReplaceAllString(msg, "$1 is a duration without a unit: write it with one, e.g. ${1}s (units: ms, s, m, h)")
+		msg = badDuration.ReplaceAllString(msg, "$1 is not a duration: write it like 500ms, 2s, 5m or 1h")
+		return errors.New(msg)
 	}
 	return nil
 }
 
-var unknownField = regexp.MustCompile(`field (\S+) not found in type \S+`)
+var (
+	unknownField     = regexp.MustCompile(`field (\S+) not found in type \S+`)
+	unitlessDuration = regexp.MustCompile("cannot unmarshal !!(?:int|float) `([^`]*)` into time.Duration")
+	badDuration      = regexp.MustCompile("cannot unmarshal !!\\w+ `([^`]*)` into time.Duration")
+)
 
 // fill sets defaults and checks the values.
 func (c *runConfig) fill() error {

@@ -51,7 +51,7 @@ and says where the captures and the event log are. Nothing is transmitted.`, err
 		return err
 	}
 	fmt.Fprintln(out)
-	printEvents(out, sum.Events)
+	printEvents(out, sum)
 	printSummary(out, sum, logPath)
 	fmt.Fprintf(out, "check the log with: quietband verify %s\n", logPath)
 	return nil

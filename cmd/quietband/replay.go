@@ -71,8 +71,12 @@ as quarantined, and replay goes on; the exit status is 1 if any was bad.`, errOu
 	if err != nil {
 		return err
 	}
+	if sum.Captures == 0 {
+		// An empty or mistyped folder is no clean sky (issue 18).
+		return fmt.Errorf("no captures found in %s (SigMF pairs, or raw files: .ci8, .cu8, .ci16, .cf32 ... or any name with --format and --pattern)", strings.Join(fs.Args(), " "))
+	}
 	if !*asJSON {
-		printEvents(out, sum.Events)
+		printEvents(out, sum)
 		printSummary(out, sum, *logPath)
 	}
 	if sum.Bad > 0 {
@@ -159,9 +163,20 @@ func replayCaptures(ctx context.Context, o replayOptions) (*replay.Summary, erro
 	return sum, nil
 }
 
-func printEvents(w io.Writer, events []detect.Event) {
+// printEvents prints a replay's events as a table, or, when it found
+// none, says why: no capture analysed (all quarantined) is no statement
+// about the sky.
+func printEvents(w io.Writer, sum *replay.Summary) {
+	events := sum.Events
 	if len(events) == 0 {
-		fmt.Fprintln(w, "no interference found")
+		switch ok := sum.Captures - sum.Bad; {
+		case sum.Captures == 0:
+			fmt.Fprintln(w, "no captures found")
+		case ok == 0:
+			fmt.Fprintf(w, "no capture could be analysed: %d quarantined (reasons above)\n", sum.Bad)
+		default:
+			fmt.Fprintf(w, "no interference found in %d analysed capture(s)\n", ok)
+		}
 		return
 	}
 	tw := tabwriter.NewWriter(w, 2, 4, 2, ' ', 0)

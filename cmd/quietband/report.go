@@ -51,5 +51,10 @@ are listed without pictures. Writes index.html and the PNG pictures into
 	}
 	fmt.Fprintf(out, "%d capture(s) from %s, %d drawn, %d not found or changed; report: %s\n",
 		sum.Captures, pos[0], sum.Drawn, sum.Missing, filepath.Join(*outDir, "index.html"))
+	if sum.Analysed > 0 && sum.Missing == sum.Analysed {
+		// Nothing could be drawn: most likely the wrong --captures (issue
+		// 18: it exited 0 with a report of empty cards).
+		return fmt.Errorf("none of the %d analysed capture(s) the log names was found under %s: give --captures, the folder the log's capture names are relative to", sum.Analysed, *root)
+	}
 	return nil
 }

@@ -3,6 +3,7 @@ package main
 import (
 	"fmt"
 	"io"
+	"os"
 	"time"
 
 	"quietband/metrics/eventlog"
@@ -28,6 +29,13 @@ wrong) and exits 1, or a one-line summary and exits 0.`, errOut)
 		return errUsage
 	}
 	paths := fs.Args()
+	for _, p := range paths {
+		// A missing file is named, not taken as "no files given" (issue 18).
+		if _, err := os.Stat(p); err != nil {
+			fmt.Fprintf(out, "BAD  %v\n", err)
+			return exitCode(1)
+		}
+	}
 	if len(paths) == 1 {
 		segs, err := eventlog.Segments(paths[0])
 		if err != nil {

@@ -27,6 +27,7 @@ type RebuildOptions struct {
 // RebuildSummary counts what Rebuild did.
 type RebuildSummary struct {
 	Captures int // capture records in the log
+	Analysed int // of them, status ok (the captures to read again)
 	Drawn    int // captures drawn
 	Missing  int // captures not found, unreadable or changed
 }
@@ -79,6 +80,7 @@ func Rebuild(ctx context.Context, o RebuildOptions) (RebuildSummary, error) {
 		delete(pending, rec.Capture)
 		c := Capture{Record: rec, Events: events}
 		if rec.Status == detect.StatusOK {
+			sum.Analysed++
 			s, note, err := redraw(ctx, pipe, o.Captures, rec)
 			if err != nil {
 				return err
