@@ -92,7 +92,15 @@ func NewServer(opt ServerOptions) (*Server, error) {
 	log.Debug("metrics: HTTP connections bounded", "connections", total, "per_client", perClient)
 	s := &Server{opt: opt, ln: ln, log: log}
 	mux := http.NewServeMux()
-	mux.Handle("GET /metrics", promhttp.HandlerFor(opt.Gatherer, promhttp.HandlerOpts{
+	var handler http.Handler = mux
+	gatherer := opt.Gatherer
+	if opt.WebConfigFile != "" {
+		g := newAuthGuard(opt.WebConfigFile, mux, log)
+		reg := prometheus.NewRegistry()
+		reg.MustRegister(g.ok)
+		handler, gatherer = g, prometheus.Gatherers{opt.Gatherer, reg}
+	}
+	mux.Handle("GET /metrics", promhttp.HandlerFor(gatherer, promhttp.HandlerOpts{
 		ErrorLog: slogPrintln{log}, MaxRequestsInFlight: 4, Timeout: 30 * time.Second}))
 	mux.HandleFunc("GET /healthz", func(w http.ResponseWriter, _ *http.Request) {
 		plain(w, http.StatusOK, "ok\n")
@@ -101,7 +109,7 @@ func NewServer(opt ServerOptions) (*Server, error) {
 	mux.HandleFunc("GET /api/events", s.events)
 	mux.HandleFunc("GET /{$}", s.landing)
 	s.srv = &http.Server{
-		Handler:           mux,
+		Handler:           handler,
 		ReadHeaderTimeout: 10 * time.Second,
 		ReadTimeout:       30 * time.Second,
 		WriteTimeout:      60 * time.Second,

@@ -543,3 +543,53 @@ func TestFaultsAppendRounds(t *testing.T) {
 	}
 	t.Logf("grown: %d → %d samples, note %q", rs[0].Samples, rs[1].Samples, rs[1].Notes[len(rs[1].Notes)-1])
 }
+
+// TestFaultsWebConfigEmptied (issue 17, item 11): the basic-auth web
+// configuration emptied, then deleted, under a running daemon: /metrics
+// and /api/events stay closed to a request without credentials and open
+// to the configured user.
+func TestFaultsWebConfigEmptied(t *testing.T) {
+	auth := filepath.Join(t.TempDir(), "web.yml")
+	// bcrypt (cost 10) of "scrape-secret", as metrics' tests use.
+	good := "basic_auth_users:\n  scraper: $2a$10$vgLZvuNPNtZTdHarJloWmOtrpYRh2.fkaVA96FNrQmET/6lYs7wTy\n"
+	os.WriteFile(auth, []byte(good), 0o600)
+	s := newSite(t, "web_config_file: "+auth+"\n")
+	p := startProcess(t, "run", "--config", s.cfgPath)
+	addr := listenAddr(t, p)
+	get := func(path string, creds bool) int {
+		req, _ := http.NewRequest("GET", "http://"+addr+path, nil)
+		if creds {
+			req.SetBasicAuth("scraper", "scrape-secret")
+		}
+		resp, err := http.DefaultClient.Do(req)
+		if err != nil {
+			t.Fatal(err)
+		}
+		resp.Body.Close()
+		return resp.StatusCode
+	}
+	for _, step := range []struct {
+		name string
+		do   func()
+	}{
+		{"emptied", func() { os.WriteFile(auth, nil, 0o600) }},
+		{"deleted", func() { os.Remove(auth) }},
+	} {
+		step.do()
+		for _, path := range []string{"/metrics", "/api/events"} {
+			if code := get(path, false); code == 200 {
+				t.Errorf("web config %s: %s without credentials answered 200", step.name, path)
+			} else {
+				t.Logf("web config %s: %s without credentials: %d", step.name, path, code)
+			}
+		}
+		if step.name == "emptied" {
+			if code := get("/metrics", true); code != 200 {
+				t.Errorf("web config emptied: /metrics with the last good credentials: %d, want 200", code)
+			}
+		}
+	}
+	if !strings.Contains(p.out.String(), "keeping the users of the last good one") {
+		t.Errorf("no log line saying the last good users are kept")
+	}
+}
