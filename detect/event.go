@@ -172,11 +172,17 @@ type CaptureRecord struct {
 	LOSide         string   `json:"lo_side,omitempty"`
 	CenterHz       *float64 `json:"center_hz,omitempty"`
 	Start          *Time    `json:"start,omitempty"`
-	Samples        int64    `json:"samples"`
-	Status         string   `json:"status"`
-	Error          string   `json:"error,omitempty"`
-	Events         int      `json:"events"`
-	Stats          *Stats   `json:"stats,omitempty"`
+	// TimeSource says where start (and so every event time) came from:
+	// "core:datetime", "settings" (a raw input's configured start) or
+	// "file modification time" (a raw file's, less its duration: a guess);
+	// absent when the capture has no time, and its events' times are then
+	// the zero time (issue 18 item 7).
+	TimeSource string `json:"time_source,omitempty"`
+	Samples    int64  `json:"samples"`
+	Status     string `json:"status"`
+	Error      string `json:"error,omitempty"`
+	Events     int    `json:"events"`
+	Stats      *Stats `json:"stats,omitempty"`
 	// Config is the fingerprint of the effective detection configuration
 	// and code version the capture was analysed with (Pipeline.Fingerprint,
 	// folded into the event ids too): a capture with this SHA-256 and this

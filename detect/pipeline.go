@@ -386,6 +386,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 	}
 	if t := c.Start(); !t.IsZero() {
 		rec.Start = &Time{t}
+		rec.TimeSource = c.TimeSource
 	}
 	res.Record = rec
 	res.Elapsed = time.Since(t0)

@@ -88,7 +88,18 @@ type Capture struct {
 	DataBytes int64
 	Segments  []Segment // at least one, ascending SampleStart
 	Meta      *Meta     // nil for raw files
+	// TimeSource says where the start time came from (TimeFromMetadata,
+	// TimeFromSettings, TimeFromFileMtime), "" when the capture has none.
+	TimeSource string
 }
+
+// Where a capture's start time came from (Capture.TimeSource; the capture
+// record's time_source).
+const (
+	TimeFromMetadata  = "core:datetime"          // the SigMF metadata
+	TimeFromSettings  = "settings"               // the raw input's configured start
+	TimeFromFileMtime = "file modification time" // a raw file's mtime minus its duration
+)
 
 // FileSample is the index in the data file of the sample on which complex
 // sample n is centred.
@@ -269,6 +280,9 @@ func openSigMF(path string, raw RawSettings) (*Capture, error) {
 		// samples before the first segment have no stated parameters.
 		c.Segments = append([]Segment{{}}, c.Segments...)
 	}
+	if !c.Segments[0].Start.IsZero() {
+		c.TimeSource = TimeFromMetadata
+	}
 	return c, nil
 }
 
@@ -364,9 +378,11 @@ func openRaw(path string, raw RawSettings) (*Capture, error) {
 		return nil, err
 	}
 	start := raw.Start
+	c.TimeSource = TimeFromSettings
 	if start.IsZero() {
+		c.TimeSource = ""
 		if st, err := os.Stat(path); err == nil {
-			start = st.ModTime().UTC().Add(-c.Duration())
+			start, c.TimeSource = st.ModTime().UTC().Add(-c.Duration()), TimeFromFileMtime
 		}
 	}
 	c.Segments = []Segment{{CenterHz: raw.CenterHz, HasCenter: raw.HasCenter, Start: start.UTC()}}

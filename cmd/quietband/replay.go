@@ -189,8 +189,13 @@ func printEvents(w io.Writer, sum *replay.Summary) {
 		if v, ok := report.JN(e); ok {
 			jn = fmt.Sprintf("%.1f dB", v)
 		}
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%.1f ms\t%+.1f kHz\t%.1f kHz\t%s\t%s\t%s\n",
-			e.Capture, e.Class, e.Start.Format("15:04:05.000"), e.End.Sub(e.Start.Time).Seconds()*1e3,
+		start, dur := "-", "-" // a capture without a time (no core:datetime)
+		if !e.Start.IsZero() {
+			start = e.Start.Format("15:04:05.000")
+			dur = fmt.Sprintf("%.1f ms", e.End.Sub(e.Start.Time).Seconds()*1e3)
+		}
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%+.1f kHz\t%.1f kHz\t%s\t%s\t%s\n",
+			e.Capture, e.Class, start, dur,
 			e.OffsetHz/1e3, e.BandwidthHz/1e3, jn, loss, report.Detail(e))
 	}
 	tw.Flush()

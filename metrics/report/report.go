@@ -353,6 +353,11 @@ func facts(rec detect.CaptureRecord) []fact {
 	add := func(k, v string) { fs = append(fs, fact{k, v}) }
 	if rec.Start != nil && !rec.Start.IsZero() {
 		add("start", rec.Start.UTC().Format(detect.TimeLayout))
+		if rec.TimeSource != "" {
+			add("time from", rec.TimeSource)
+		}
+	} else if rec.Status == detect.StatusOK {
+		add("start", "unknown: the capture states no time (no core:datetime); its events have no times")
 	}
 	if rec.SampleRate > 0 {
 		add("duration", fmt.Sprintf("%.3f s", float64(rec.Samples)/rec.SampleRate))
@@ -410,6 +415,15 @@ func eventRowOf(i int, e detect.Event) eventRow {
 		row.Loss = f1(l)
 	}
 	return row
+}
+
+// offAxisNote is the timeline caption's sentence on captures left off its
+// time axis (timeline.dropOutliers).
+func offAxisNote(n int) string {
+	if n == 0 {
+		return ""
+	}
+	return fmt.Sprintf(" %d capture(s) dated far from the others (see each capture's time source) are drawn after the capture before them, not at their time.", n)
 }
 
 // PowerOverBaselineWords names stats.power_over_baseline_db (and the
@@ -712,7 +726,7 @@ func (r *Report) Close() error {
 		CSS: template.CSS(cb.String()), Script: template.JS(script),
 		Captures: r.n, Quarantined: len(r.quar), Events: r.all.n, WithSections: len(r.sections),
 		Timeline: picture{File: tlFile, Width: TimelineWidth, Height: TimelineHeight, Alt: "site timeline",
-			Caption: "Events by class, J/N, C/N0 of the strongest four satellites and the in-band power over the baseline, per capture; dashed lines mark quarantined captures."},
+			Caption: "Events by class, J/N, C/N0 of the strongest four satellites and the in-band power over the baseline, per capture; dashed lines mark quarantined captures." + offAxisNote(r.tl.offAxis)},
 		Quar: r.quar, Rows: r.rows, Sections: r.sections}
 	p.Analysed = p.Captures - p.Quarantined
 	p.CSP = "default-src 'none'; img-src 'self'; style-src '" + cspHash(cb.String()) + "'; script-src '" + cspHash(string(script)) + "'; base-uri 'none'; form-action 'none'"

@@ -5,6 +5,7 @@ import (
 	"image/color"
 	"io"
 	"math"
+	"sort"
 	"time"
 
 	"gonum.org/v1/plot"
@@ -19,6 +20,8 @@ import (
 // numbers each, however many captures there are.
 type timeline struct {
 	noTime   bool // some capture has no start time: x is the capture index
+	offAxis  int  // captures dated far from the rest (outliers): drawn in order, not at their time
+	outliers bool // dropOutliers ran
 	captures []tlCapture
 	events   []tlEvent
 }
@@ -89,6 +92,7 @@ func unix(t time.Time) float64 { return float64(t.UnixNano()) / 1e9 }
 
 // ranges places the captures on the x axis and returns the axis range.
 func (t *timeline) ranges() (xs []float64, lo, hi float64) {
+	t.dropOutliers()
 	lo, hi = math.Inf(1), math.Inf(-1)
 	next := math.NaN() // end of the previous capture placed
 	for i, c := range t.captures {
@@ -114,6 +118,67 @@ func (t *timeline) ranges() (xs []float64, lo, hi float64) {
 	}
 	pad := math.Max((hi-lo)*0.02, 1)
 	return xs, lo - pad, hi + pad
+}
+
+// outlierGapFactor and minOutlierGap set how far from the rest a capture's
+// time must lie to be left off the time axis: a gap between consecutive
+// capture starts larger than outlierGapFactor times their median gap, and
+// larger than minOutlierGap, splits the captures into groups, and only the
+// largest group keeps its times (issue 18 item 7: one capture dated by its
+// file's modification time squeezed a month of captures into one line).
+const (
+	outlierGapFactor = 50
+	minOutlierGap    = 6 * 3600 // seconds
+)
+
+// dropOutliers takes the captures outside the largest group of capture
+// times (see outlierGapFactor) off the time axis: they are drawn after the
+// capture before them, like a capture without a time, and counted in
+// offAxis. Idempotent.
+func (t *timeline) dropOutliers() {
+	if t.outliers {
+		return
+	}
+	t.outliers = true
+	var idx []int
+	for i, c := range t.captures {
+		if c.hasStart {
+			idx = append(idx, i)
+		}
+	}
+	if len(idx) < 3 || t.noTime {
+		return
+	}
+	sort.Slice(idx, func(a, b int) bool { return t.captures[idx[a]].x < t.captures[idx[b]].x })
+	gaps := make([]float64, 0, len(idx)-1)
+	for k := 1; k < len(idx); k++ {
+		gaps = append(gaps, t.captures[idx[k]].x-t.captures[idx[k-1]].x)
+	}
+	med := append([]float64(nil), gaps...)
+	sort.Float64s(med)
+	limit := math.Max(outlierGapFactor*med[len(med)/2], minOutlierGap)
+	// The largest run of captures whose consecutive gaps stay within limit.
+	bestFrom, bestTo, from := 0, 0, 0
+	for k := 1; k <= len(idx); k++ {
+		if k == len(idx) || gaps[k-1] > limit {
+			if k-from > bestTo-bestFrom {
+				bestFrom, bestTo = from, k
+			}
+			from = k
+		}
+	}
+	for k, i := range idx {
+		if k < bestFrom || k >= bestTo {
+			t.captures[i].hasStart = false
+			t.offAxis++
+		}
+	}
+	// Their events go with their capture's slot.
+	for j := range t.events {
+		if !t.captures[t.events[j].capIdx].hasStart {
+			t.events[j].t0, t.events[j].t1 = math.NaN(), math.NaN()
+		}
+	}
 }
 
 // bars draws horizontal bars [x0, x1] on lanes, at least 3 pixels wide.
