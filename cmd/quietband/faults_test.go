@@ -593,3 +593,117 @@ func TestFaultsWebConfigEmptied(t *testing.T) {
 		t.Errorf("no log line saying the last good users are kept")
 	}
 }
+
+// TestFaultsCrashAtPoints extends the SIGKILL trials with kills at chosen
+// points (issue 17): strace(1) delivers SIGKILL to the daemon on entering
+// the first system call of a kind, in a run where that call is made only
+// at the point: rename(2) while rotating the log (every capture has a
+// tone, so no baseline is saved; no quarantine folder), pwrite64(2) or
+// fdatasync(2) of a ledger commit (bbolt's writes; the log uses write and
+// fsync; the ledger made by a first run), and rename(2) while moving a
+// quarantined capture (a log too large to rotate). After a restart without
+// strace: every capture has exactly one record, the bad ones quarantined,
+// no event id twice, the log verifies, and the events are those of a run
+// never interrupted.
+func TestFaultsCrashAtPoints(t *testing.T) {
+	if _, err := exec.LookPath("strace"); err != nil {
+		t.Skip("strace not found: the kills at chosen points need it")
+	}
+	const good, bad = 16, 3
+	burst := func(t *testing.T, in string, withBad bool) {
+		for i := range good {
+			monitortest.Drop(t, filepath.Join(in, fmt.Sprintf("p%02d.ci8", i)), monitortest.CI8(uint64(8000+i), true))
+			if withBad && i%5 == 2 {
+				monitortest.Drop(t, filepath.Join(in, fmt.Sprintf("bad%02d.ci8", i)), []byte{1, 2, 3})
+			}
+			time.Sleep(5 * time.Millisecond)
+		}
+	}
+	ref := newSite(t, "log_format: json\n")
+	p := startProcess(t, "run", "--config", ref.cfgPath)
+	burst(t, ref.in, false)
+	monitortest.WaitFor(t, 30*time.Second, "the clean run", func() bool { return monitortest.CountCaptures(t, ref.logPath) >= good })
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	p.wait(t, 20*time.Second)
+	want := monitortest.EventKeys(t, ref.logPath)
+	if len(want) < good {
+		t.Fatalf("the clean run found %d events, want one per capture at least", len(want))
+	}
+
+	type point struct {
+		name, extra, inject  string
+		withBad, ledgerFirst bool
+	}
+	var points []point
+	for _, mb := range []int{2048, 4096, 6144, 8192} {
+		points = append(points, point{name: fmt.Sprintf("rotation at %d bytes", mb), extra: fmt.Sprintf("log:\n  max_bytes: %d\n", mb), inject: "/^rename"})
+	}
+	for _, sc := range []string{"pwrite64", "fdatasync"} {
+		points = append(points, point{name: "ledger " + sc, inject: sc, ledgerFirst: true},
+			point{name: "ledger " + sc + ", rotating", extra: "log:\n  max_bytes: 4096\n", inject: sc, ledgerFirst: true})
+	}
+	points = append(points, point{name: "quarantine move", extra: "quarantine_dir: QDIR\n", inject: "/^rename", withBad: true},
+		point{name: "quarantine move, ledger made", extra: "quarantine_dir: QDIR\n", inject: "/^rename", withBad: true, ledgerFirst: true})
+	for _, pt := range points {
+		t.Run(pt.name, func(t *testing.T) {
+			t.Parallel()
+			s := newSite(t, "log_format: json\n"+strings.ReplaceAll(pt.extra, "QDIR", filepath.Join(t.TempDir(), "quarantine")))
+			if pt.ledgerFirst {
+				p := startProcess(t, "run", "--config", s.cfgPath)
+				monitortest.WaitFor(t, 10*time.Second, "the daemon up", func() bool { return strings.Contains(p.out.String(), "quietband run: started") })
+				p.cmd.Process.Signal(syscall.SIGTERM)
+				p.wait(t, 20*time.Second)
+			}
+			p, err := startProcessAs(t, "strace", nil, "-f", "-qq", "-o", "/dev/null", "-e", "trace="+pt.inject,
+				"-e", "inject="+pt.inject+":signal=KILL", os.Args[0], "run", "--config", s.cfgPath)
+			if err != nil {
+				t.Fatal(err)
+			}
+			go burst(t, s.in, pt.withBad)
+			select {
+			case <-p.done:
+			case <-time.After(30 * time.Second):
+				t.Fatalf("the daemon never reached %s", pt.inject)
+			}
+			atKill := monitortest.CountCaptures(t, s.logPath)
+			time.Sleep(200 * time.Millisecond) // the burst is written by now
+			n := good
+			if pt.withBad {
+				n += bad
+			}
+			p = startProcess(t, "run", "--config", s.cfgPath)
+			monitortest.WaitFor(t, 30*time.Second, "every capture after the restart", func() bool { return monitortest.CountCaptures(t, s.logPath) >= n })
+			monitortest.WaitFor(t, 10*time.Second, "the daemon up", func() bool { return strings.Contains(p.out.String(), "quietband run: started") })
+			time.Sleep(300 * time.Millisecond) // a record twice would be written by now
+			p.cmd.Process.Signal(syscall.SIGTERM)
+			if code := p.wait(t, 20*time.Second); code != 0 {
+				t.Errorf("exit %d after SIGTERM", code)
+			}
+			caps := monitortest.CaptureRecords(monitortest.CheckLog(t, s.logPath))
+			if len(caps) != n {
+				t.Errorf("%d captures recorded, want %d", len(caps), n)
+			}
+			for name, rs := range caps {
+				wantStatus := detect.StatusOK
+				if strings.HasPrefix(name, "bad") {
+					wantStatus = detect.StatusQuarantined
+				}
+				if len(rs) != 1 || rs[0].Status != wantStatus {
+					t.Errorf("%s: %+v, want one %s record", name, rs, wantStatus)
+				}
+			}
+			got := monitortest.EventKeys(t, s.logPath)
+			for k, c := range got {
+				if want[k] != c {
+					t.Errorf("event %s: %d times, the clean run has it %d times", k, c, want[k])
+				}
+			}
+			for k := range want {
+				if got[k] == 0 {
+					t.Errorf("event %s of the clean run is missing", k)
+				}
+			}
+			t.Logf("killed on entering %s with %d of %d captures recorded; after the restart each once", pt.inject, atKill, n)
+		})
+	}
+}

@@ -52,7 +52,7 @@ func lockLog(path string) (*writerLock, error) {
 	host, _ := os.Hostname()
 	id := "pid " + strconv.Itoa(os.Getpid()) + " host " + host + " since " + time.Now().UTC().Format(time.RFC3339) + "\n"
 	if err := f.Truncate(0); err == nil {
-		f.WriteAt([]byte(id), 0) // the holder's name is a courtesy: the lock is the flock
+		f.Write([]byte(id)) // at offset 0 (just opened); the holder's name is a courtesy: the lock is the flock
 	}
 	return &writerLock{f: f}, nil
 }
