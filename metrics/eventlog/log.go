@@ -377,8 +377,9 @@ func (l *Log) setFile(f *os.File) {
 	}
 }
 
-// Reopen closes the active file and opens it again, re-running the recovery
-// that Open does (for instance on SIGHUP, or once disk space is back after
+// Reopen closes the active file and opens it again (after Reattach deals
+// with an active file moved, deleted or cut outside), re-running the
+// recovery that Open does (for instance on SIGHUP, or once disk space is back after
 // a failed append). If recovery succeeds the failed state is cleared. A
 // record whose append reported an error may or may not be in the log
 // afterwards, depending on how far its write got; LastSeq tells.
@@ -387,6 +388,14 @@ func (l *Log) Reopen() error {
 	defer l.mu.Unlock()
 	if l.closed {
 		return ErrClosed
+	}
+	if l.f != nil {
+		// The active file moved away, deleted or cut first: keep what it
+		// held (Reattach), or the recovery below would start the seqs over.
+		if _, err := l.reattach(); err != nil {
+			l.failed = fmt.Errorf("reattaching %s: %w", l.path, err)
+			return l.failed
+		}
 	}
 	var cerr error
 	if l.f != nil {

@@ -328,6 +328,11 @@ loop:
 // housekeeping runs between captures, about once a second.
 func (m *Monitor) housekeeping(now time.Time) {
 	m.set.SetWatcherRunning(m.watcher.Running())
+	// The active file moved away, deleted or cut outside the daemon:
+	// keep its records and go on (eventlog.Log.Reattach logs what it did).
+	if _, err := m.elog.Reattach(); err != nil {
+		m.log.Error("quietband run: event log changed outside the daemon and cannot be taken up again", "err", err)
+	}
 	m.set.SetEventLogWritable(m.elog.Err() == nil && !m.commit.Failing())
 	if m.watcher.Stats().Backlog == 0 {
 		m.setBehind(false)
