@@ -96,25 +96,32 @@ type colors []color.Color
 
 func (c colors) Colors() []color.Color { return c }
 
-// ClassColor is the colour of an event class in every picture and table:
-// saturated hues chosen to stand apart from the spectrogram ramp (none is
-// within 60 RGB units of any ramp colour).
+// ClassColor is the colour of an event class in every picture and table.
+// The seven colours stand apart for the common colour-vision deficiencies
+// as well as for normal vision: simulated protanopia, deuteranopia and
+// tritanopia (Machado, Oliveira & Fernandes 2009, severity 1) keep every
+// pair at least 30 CIELAB ΔE*ab apart (35 at the closest pair;
+// TestPaletteColourVision), every colour is at least L* 50, so that it shows
+// on the spectrogram's dark end, and none is within 60 RGB units of any
+// ramp colour (TestPalette). Found by a search over a 17-step RGB grid
+// under those constraints (issue 18: cw and cn0_drop were 13 ΔE apart
+// under deuteranopia).
 func ClassColor(class string) color.NRGBA {
 	switch class {
 	case detect.ClassCW:
-		return color.NRGBA{0xff, 0x3d, 0x8b, 0xff}
+		return color.NRGBA{0xdd, 0x44, 0x22, 0xff} // vermilion
 	case detect.ClassSwept:
-		return color.NRGBA{0xb2, 0x66, 0xff, 0xff}
+		return color.NRGBA{0xaa, 0x44, 0xff, 0xff} // violet
 	case detect.ClassPulsed:
-		return color.NRGBA{0x39, 0xe6, 0x39, 0xff}
+		return color.NRGBA{0x66, 0xff, 0xaa, 0xff} // mint
 	case detect.ClassWidebandNoise:
-		return color.NRGBA{0xff, 0x7a, 0x1a, 0xff}
+		return color.NRGBA{0xee, 0xcc, 0x00, 0xff} // yellow
 	case detect.ClassNarrowbandNoise:
-		return color.NRGBA{0x00, 0xd5, 0xff, 0xff}
+		return color.NRGBA{0xcc, 0xee, 0xff, 0xff} // pale blue
 	case detect.ClassCN0Drop:
-		return color.NRGBA{0xff, 0x2a, 0x2a, 0xff}
+		return color.NRGBA{0x66, 0x77, 0xbb, 0xff} // slate blue
 	case detect.ClassSpoofing:
-		return color.NRGBA{0xd4, 0xff, 0x00, 0xff}
+		return color.NRGBA{0xbb, 0x66, 0x77, 0xff} // dusty rose
 	}
 	return color.NRGBA{0xe0, 0xe0, 0xe0, 0xff}
 }

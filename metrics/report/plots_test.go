@@ -114,14 +114,21 @@ func TestSpectrogramGeometry(t *testing.T) {
 	xTone := l.XPixel(toneHz)
 	colPx := float64(ob.summary.ColBins) * ob.summary.BinHz() / (l.XRight - l.XLeft) * (l.Right - l.Left)
 	tol := math.Max(2, colPx) + 1
-	cw := ClassColor(detect.ClassCW)
+	nearClassColor := func(c color.Color) bool {
+		for _, class := range detect.Classes {
+			if colorDist(c, ClassColor(class)) < 60 {
+				return true
+			}
+		}
+		return false
+	}
 	hits, rows := 0, 0
 	for y := l.YPixel(onS + 0.01); y < l.YPixel(dur-0.005); y += 7 {
 		best, bestL := -1.0, -1.0
 		for x := math.Ceil(l.Left); x < l.Right; x++ {
 			c := img.At(int(x), int(y))
-			if colorDist(c, cw) < 60 {
-				continue // the CW event's box
+			if nearClassColor(c) {
+				continue // an event's box
 			}
 			if lum := luminance(c); lum > bestL {
 				best, bestL = x, lum
@@ -140,7 +147,7 @@ func TestSpectrogramGeometry(t *testing.T) {
 	rowPx := ob.summary.FrameSeconds() * float64(ob.summary.RowFrames) / (l.YBottom - l.YTop) * (l.Bottom - l.Top)
 	first := -1.0
 	for y := math.Ceil(l.Top); y < l.Bottom; y++ {
-		if c := img.At(int(math.Round(xTone)), int(y)); luminance(c) > 200 && colorDist(c, cw) > 60 {
+		if c := img.At(int(math.Round(xTone)), int(y)); luminance(c) > 200 && !nearClassColor(c) {
 			first = y
 			break
 		}
