@@ -134,6 +134,9 @@ func findRaw(raw RawSettings, ignored func(path string), paths ...string) ([]Fou
 		if !st.IsDir() {
 			root = filepath.Dir(path)
 			switch {
+			case strings.EqualFold(filepath.Ext(path), MetaExt):
+				// A SigMF capture named by its metadata file (as the
+				// event log and the tables name captures).
 			case IsSidecar(path):
 				out = append(out, found(Found{Path: path, DataPath: path, Problem: captureErr(path, "not a capture: a %s file travels beside captures and holds no samples", filepath.Ext(path))}))
 				continue
