@@ -287,17 +287,10 @@ func (c *runConfig) fill() error {
 	if err := c.Detect.Defaults(detectCheckRate).Validate(); err != nil {
 		return fmt.Errorf("detect: %w", err)
 	}
-	abs := func(p string) string {
-		a, err := filepath.Abs(p)
-		if err != nil {
-			return filepath.Clean(p)
-		}
-		return a
-	}
 	inside := func(what, p string) error {
 		for _, in := range c.Inputs {
-			rel, err := filepath.Rel(abs(in.Path), abs(p))
-			if err == nil && rel != ".." && !strings.HasPrefix(rel, ".."+string(filepath.Separator)) {
+			// Links resolved first: a link into a watched folder is in it.
+			if monitor.Within(p, in.Path) {
 				return fmt.Errorf("%s %s lies inside the watched folder of input %s (%s): files moved there would be found again", what, p, in.Name, in.Path)
 			}
 		}

@@ -757,3 +757,30 @@ func TestFaultsLogRotatedOutside(t *testing.T) {
 func countAll(t *testing.T, path string) int {
 	return len(monitortest.CaptureRecords(monitortest.ReadLog(t, path)))
 }
+
+// TestFaultsRetentionLinkIntoWatched (issue 17, item 12): retention.dir,
+// quarantine_dir or the log given as a symbolic link (or below one) into a
+// watched folder is refused at start like the direct path, naming the
+// setting: captures moved there would be found and analysed again.
+func TestFaultsRetentionLinkIntoWatched(t *testing.T) {
+	for _, c := range []struct{ name, yaml string }{
+		{"retention.dir", "retention: {days: 1, action: move, dir: LINK}\n"},
+		{"retention.dir", "retention: {days: 1, action: move, dir: LINK/archive}\n"},
+		{"quarantine_dir", "quarantine_dir: LINK/q\n"},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			s := newSite(t, "")
+			link := filepath.Join(s.dir, "elsewhere")
+			if err := os.Symlink(s.in, link); err != nil {
+				t.Fatal(err)
+			}
+			os.WriteFile(s.cfgPath, append(monitortest.MustRead(t, s.cfgPath), strings.ReplaceAll(c.yaml, "LINK", link)...), 0o644)
+			var out, errOut bytes.Buffer
+			code := runMain([]string{"run", "--config", s.cfgPath}, &out, &errOut)
+			if code == 0 || !strings.Contains(errOut.String(), c.name) || !strings.Contains(errOut.String(), "watched folder") {
+				t.Errorf("exit %d, stderr %q; want a refusal naming %s inside the watched folder", code, monitortest.Tail(errOut.String(), 3), c.name)
+			}
+			t.Logf("%s through a link: exit %d: %s", c.name, code, strings.TrimSpace(monitortest.Tail(errOut.String(), 1)))
+		})
+	}
+}
