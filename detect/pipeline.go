@@ -242,6 +242,23 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 	if silent {
 		notes = append(notes, "no interference analysis: the front end delivered no signal ("+fault.Kind+")")
 		tr.events = nil
+		// What the satellite meter made of a constant is neither
+		// interference mitigated nor satellites lost.
+		measured.Notes = nil
+	}
+	if fault != nil && fault.Kind == FaultUnnormalised {
+		// Its level is the converter's scaling (ingest's detail: every
+		// dBFS figure is off), not a floor rise: no wideband_noise and
+		// no power over the site's; the spectral shapes are analysed.
+		kept := tr.events[:0]
+		for _, ev := range tr.events {
+			if ev.class != ClassWidebandNoise {
+				kept = append(kept, ev)
+			}
+		}
+		tr.events = kept
+		stats.AGCDeviationDB, stats.PowerOverBaselineDB = 0, nil
+		notes = append(notes, "no wideband_noise and no power over the site's: the samples are unnormalised, so their level is the converter's scaling")
 	}
 	if hasCenter {
 		inverted := stats.SpectrumInverted != nil && *stats.SpectrumInverted
