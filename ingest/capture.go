@@ -91,6 +91,41 @@ type Capture struct {
 	// TimeSource says where the start time came from (TimeFromMetadata,
 	// TimeFromSettings, TimeFromFileMtime), "" when the capture has none.
 	TimeSource string
+	// TimeProblem, when set, says why the capture has no start time
+	// although its source gave one (see trustTime): a sentence for the
+	// capture record's notes.
+	TimeProblem string
+}
+
+// lastWritableTime is the last instant RFC 3339 can write: its years have
+// four digits (RFC 3339, section 5.6, date-fullyear = 4DIGIT).
+var lastWritableTime = time.Date(9999, 12, 31, 23, 59, 59, 999999999, time.UTC)
+
+// trustTime drops the start times of a capture that would end after
+// lastWritableTime (issue 17, item 13: a capture dated 9999-12-31T23:59:59.9Z
+// gave an event ending in year 10000, which RFC 3339 readers reject, and
+// with it the whole log or answer): the capture is analysed without a
+// start time, and TimeProblem says so.
+func (c *Capture) trustTime() {
+	start := c.Start()
+	if start.IsZero() {
+		return
+	}
+	last := start
+	for _, s := range c.Segments {
+		if s.Start.After(last) {
+			last = s.Start
+		}
+	}
+	if !last.Add(c.Duration()).After(lastWritableTime) {
+		return
+	}
+	c.TimeProblem = fmt.Sprintf("start time not used: from %s (%s) the capture would end after %s, which RFC 3339 cannot write",
+		c.TimeSource, start.UTC().Format(time.RFC3339Nano), lastWritableTime.Format(time.RFC3339))
+	for i := range c.Segments {
+		c.Segments[i].Start = time.Time{}
+	}
+	c.TimeSource = ""
 }
 
 // Where a capture's start time came from (Capture.TimeSource; the capture
@@ -215,10 +250,15 @@ func captureErr(file string, format string, args ...any) error {
 // for a missing setting the setting to give.
 func Open(path string, raw RawSettings) (*Capture, error) {
 	ext := strings.ToLower(filepath.Ext(path))
+	open := openRaw
 	if ext == MetaExt || ext == DataExt {
-		return openSigMF(path, raw)
+		open = openSigMF
 	}
-	return openRaw(path, raw)
+	c, err := open(path, raw)
+	if err == nil {
+		c.trustTime()
+	}
+	return c, err
 }
 
 func openSigMF(path string, raw RawSettings) (*Capture, error) {

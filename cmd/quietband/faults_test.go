@@ -784,3 +784,40 @@ func TestFaultsRetentionLinkIntoWatched(t *testing.T) {
 		})
 	}
 }
+
+// TestFaultsTimeOutOfRange (issue 17, item 13): a SigMF capture dated
+// 9999-12-31T23:59:59.999Z with a tone in it (ending in year 10000). Every time the log holds is one
+// an RFC 3339 reader accepts (Go's time.RFC3339: four-digit years), and the
+// capture record says why it has no start time.
+func TestFaultsTimeOutOfRange(t *testing.T) {
+	s := newSite(t, "")
+	p := startProcess(t, "run", "--config", s.cfgPath)
+	monitortest.Drop(t, filepath.Join(s.in, "late.sigmf-data"), monitortest.CI8(61, true))
+	meta := fmt.Sprintf(`{"global":{"core:datatype":"ci8","core:sample_rate":%g,"core:version":"1.0.0"},"captures":[{"core:sample_start":0,"core:datetime":"9999-12-31T23:59:59.999Z"}],"annotations":[]}`, monitortest.Rate)
+	monitortest.Drop(t, filepath.Join(s.in, "late.sigmf-meta"), []byte(meta))
+	monitortest.WaitFor(t, 20*time.Second, "the capture recorded", func() bool { return monitortest.CountCaptures(t, s.logPath) >= 1 })
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	p.wait(t, 20*time.Second)
+	times := 0
+	segs, _ := eventlog.Segments(s.logPath)
+	for _, seg := range segs {
+		for _, line := range bytes.Split(bytes.TrimSpace(monitortest.MustRead(t, seg)), []byte("\n")) {
+			var m map[string]any
+			json.Unmarshal(line, &m)
+			for _, k := range []string{"start", "end"} {
+				if v, ok := m[k].(string); ok {
+					times++
+					if _, err := time.Parse(time.RFC3339, v); err != nil {
+						t.Errorf("%s record %v: %s %q is not RFC 3339: %v", m["kind"], m["seq"], k, v, err)
+					}
+				}
+			}
+		}
+	}
+	caps := monitortest.CaptureRecords(monitortest.ReadLog(t, s.logPath))
+	rs := caps["late.sigmf-meta"]
+	if len(rs) != 1 || rs[0].Events == 0 || !strings.Contains(strings.Join(rs[0].Notes, " "), "core:datetime") {
+		t.Errorf("capture record %+v: want one with its tone and a note on its core:datetime", rs)
+	}
+	t.Logf("%d times in the log, all RFC 3339; notes %q", times, rs[0].Notes)
+}

@@ -76,6 +76,9 @@ func Analyse(ctx context.Context, pipe *detect.Pipeline, f ingest.Found, opts ..
 		return Outcome{Record: rec, Err: err}, nil
 	}
 	res.Record.Input = f.Input
+	if f.Capture.TimeProblem != "" {
+		res.Record.Notes = append(res.Record.Notes, f.Capture.TimeProblem)
+	}
 	return Outcome{Events: res.Events, Record: res.Record, Result: res}, nil
 }
 
