@@ -155,7 +155,7 @@ func findRaw(raw RawSettings, ignored func(path string), paths ...string) ([]Fou
 		}
 		err = filepath.WalkDir(root, func(p string, d fs.DirEntry, err error) error {
 			if err != nil {
-				out = append(out, found(Found{Path: p, DataPath: p, Problem: captureErr(p, "cannot read: %v", unwrapPathError(err))}))
+				out = append(out, found(Found{Path: p, DataPath: p, Problem: captureErr(p, "cannot read: %w", unwrapPathError(err))}))
 				if d != nil && d.IsDir() {
 					return fs.SkipDir
 				}

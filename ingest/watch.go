@@ -13,6 +13,7 @@ import (
 	"strings"
 	"sync"
 	"sync/atomic"
+	"syscall"
 	"time"
 
 	"github.com/fsnotify/fsnotify"
@@ -116,11 +117,14 @@ type WatchStats struct {
 // them again; nothing is dropped. A capture whose files change after it was
 // handed out is handed out again.
 type Watcher struct {
-	cfg    WatchConfig
-	log    *slog.Logger
-	inputs []*watchInput
-	queue  chan Found
-	tick   time.Duration
+	// unwatchable are the folders reported as beyond the system's path
+	// length limit (each once).
+	unwatchable map[string]bool
+	cfg         WatchConfig
+	log         *slog.Logger
+	inputs      []*watchInput
+	queue       chan Found
+	tick        time.Duration
 
 	rescanReq chan struct{}
 	inject    chan fsEvent // tests: synthetic events
@@ -753,6 +757,9 @@ func (w *Watcher) addTree(in *watchInput, dir string) {
 			return fs.SkipDir
 		}
 		if err := w.note.add(p); err != nil {
+			if errors.Is(err, syscall.ENAMETOOLONG) {
+				return fs.SkipDir // beyond the path limit: rescans cannot cover it either (scan reports it)
+			}
 			w.log.Error("watcher: cannot watch folder; it is covered by rescans only", "dir", p, "err", err)
 		}
 		return nil
@@ -778,6 +785,20 @@ func (w *Watcher) scan(in *watchInput, dir string, prune, placed bool) {
 		}
 		key, sigmf := keyOf(f.Path)
 		seen[key] = true
+		if f.Problem != nil && errors.Is(f.Problem, syscall.ENAMETOOLONG) {
+			// A folder whose path passes the system's limit (issue 17,
+			// item 15): no capture, and nothing below it can be opened.
+			// Reported once, clearly; not handed out.
+			if w.unwatchable == nil {
+				w.unwatchable = map[string]bool{}
+			}
+			if !w.unwatchable[f.Path] {
+				w.unwatchable[f.Path] = true
+				w.log.Error("watcher: folder not watchable: its path is longer than the system allows (ENAMETOOLONG); captures below it are not seen",
+					"input", in.Name, "dir", f.Path, "path_bytes", len(f.Path))
+			}
+			continue
+		}
 		if f.Problem != nil && !asCandidate(f.Path, sigmf) {
 			// Not a capture at all (unreadable folder, not a regular
 			// file ...): hand out the problem once per state.

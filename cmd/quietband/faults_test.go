@@ -821,3 +821,59 @@ func TestFaultsTimeOutOfRange(t *testing.T) {
 	}
 	t.Logf("%d times in the log, all RFC 3339; notes %q", times, rs[0].Notes)
 }
+
+// deepTree makes folders below root whose paths pass 4,096 bytes (the
+// Linux PATH_MAX), made relative to their parent (mkdirat(2)), and a
+// capture at the bottom; it returns how long the capture's path is.
+func deepTree(t *testing.T, root string, capture []byte) int {
+	t.Helper()
+	fd, err := syscall.Open(root, syscall.O_RDONLY|syscall.O_DIRECTORY, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	n := len(root)
+	name := strings.Repeat("d", 250)
+	for n < 4400 {
+		if err := syscall.Mkdirat(fd, name, 0o755); err != nil {
+			t.Fatal(err)
+		}
+		next, err := syscall.Openat(fd, name, syscall.O_RDONLY|syscall.O_DIRECTORY, 0)
+		syscall.Close(fd)
+		if err != nil {
+			t.Fatal(err)
+		}
+		fd, n = next, n+1+len(name)
+	}
+	defer syscall.Close(fd)
+	f, err := syscall.Openat(fd, "deep.ci8", syscall.O_WRONLY|syscall.O_CREAT, 0o644)
+	if err != nil {
+		t.Fatal(err)
+	}
+	syscall.Write(f, capture)
+	syscall.Close(f)
+	return n + len("/deep.ci8")
+}
+
+// TestFaultsPathTooLong (issue 17, item 15): a tree whose paths pass the
+// system's limit. The folder beyond it is reported once as not watchable,
+// nothing is recorded for it (it is no capture), and captures beside it
+// are analysed.
+func TestFaultsPathTooLong(t *testing.T) {
+	s := newSite(t, "")
+	n := deepTree(t, s.in, monitortest.CI8(71, true))
+	t.Cleanup(func() { exec.Command("rm", "-rf", s.in).Run() })
+	p := startProcess(t, "run", "--config", s.cfgPath)
+	monitortest.Drop(t, filepath.Join(s.in, "beside.ci8"), monitortest.CI8(72, false))
+	monitortest.WaitFor(t, 20*time.Second, "the capture beside it", func() bool { return monitortest.CountCaptures(t, s.logPath) >= 1 })
+	time.Sleep(1500 * time.Millisecond) // three rescans
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	p.wait(t, 20*time.Second)
+	caps := monitortest.CaptureRecords(monitortest.CheckLog(t, s.logPath))
+	if len(caps) != 1 || len(caps["beside.ci8"]) != 1 {
+		t.Errorf("records %v, want only beside.ci8's", caps)
+	}
+	if c := strings.Count(p.out.String(), "not watchable"); c != 1 {
+		t.Errorf("%d reports of a folder not watchable, want 1", c)
+	}
+	t.Logf("capture at a path of %d bytes: folder reported once as not watchable, no record for it", n)
+}
