@@ -9,6 +9,7 @@ import (
 
 	"quietband/ingest"
 	"quietband/ingest/synth"
+	"quietband/metrics/report"
 )
 
 func init() {
@@ -104,8 +105,8 @@ The scenario is a built-in one (--scenario, see --list) or a YAML file
 			return err
 		}
 		for _, t := range truths {
-			fmt.Fprintf(out, "%s/%s  %s %.3g MS/s %d samples, %d satellites, %d emitters\n",
-				dir, t.Capture, t.Format, t.SampleRate/1e6, t.Samples, len(t.Satellites), len(t.Emitters))
+			fmt.Fprintf(out, "%s/%s  %s %s, %d samples, %s, %s\n", dir, t.Capture, t.Format, report.SI(t.SampleRate, "S/s"),
+				t.Samples, report.Count(len(t.Satellites), "satellite"), report.Count(len(t.Emitters), "emitter"))
 		}
 	}
 	return nil

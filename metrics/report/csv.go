@@ -67,7 +67,7 @@ func CSVRow(e detect.Event) []string {
 		if math.IsNaN(v) || math.IsInf(v, 0) {
 			return ""
 		}
-		return strconv.FormatFloat(v, 'g', -1, 64)
+		return strconv.FormatFloat(v, 'f', -1, 64) // full precision, plain notation (no 1.5e+09)
 	}
 	when := func(t detect.Time) string {
 		if t.IsZero() {

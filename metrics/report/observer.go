@@ -97,6 +97,10 @@ type Summary struct {
 	// pulses or pulse pairs, at most MaxPulses of the PulsesSeen.
 	Pulses     []int64
 	PulsesSeen int
+	// PairsSeen counts, of PulsesSeen, the arrivals of pulse pairs (two
+	// pulses each), so that the picture's count and the event's pulses
+	// (which counts both of a pair) say the same.
+	PairsSeen int
 }
 
 // NewObserver returns an Observer; Begin prepares it for a capture.
@@ -212,6 +216,9 @@ func (o *Observer) Block(in *detect.BlockInput, findings []detect.Finding) {
 		}
 		for _, g := range fd.Pulse.Groups {
 			s.PulsesSeen++
+			if fd.Pulse.PairSpacingS > 0 {
+				s.PairsSeen++
+			}
 			if len(s.Pulses) < MaxPulses {
 				s.Pulses = append(s.Pulses, g)
 			}

@@ -201,7 +201,7 @@ func (b blankTicks) Ticks(lo, hi float64) []plot.Tick {
 
 func freqAxisLabel(s *Summary) string {
 	if s.HasCenter {
-		return fmt.Sprintf("frequency: offset from centre (MHz), absolute below; centre %.6f MHz", s.CenterHz/1e6)
+		return "frequency: offset from centre (MHz), absolute below; centre " + MHz(s.CenterHz)
 	}
 	return "frequency offset from centre (MHz); centre unknown"
 }
@@ -619,6 +619,28 @@ func (t tickMarks) Thumbnail(c *draw.Canvas) {
 	c.StrokeLine2(draw.LineStyle{Color: t.color, Width: pxLen(1.5)}, x, c.Min.Y, x, c.Max.Y)
 }
 
+// PulseArrivals says what the envelope's marks count in the event table's
+// unit, pulses (issue 18: "677 pulse arrivals" beside "1352 pulses"): an
+// arrival of a pulse pair is two pulses.
+func PulseArrivals(s *Summary) string {
+	single := s.PulsesSeen - s.PairsSeen
+	switch {
+	case s.PairsSeen == 0:
+		return fmt.Sprintf("%s detected", Count(s.PulsesSeen, "pulse"))
+	case single == 0:
+		return fmt.Sprintf("%s detected (%s)", Count(2*s.PairsSeen, "pulse"), Count(s.PairsSeen, "pair"))
+	}
+	return fmt.Sprintf("%s detected (%s, %d single)", Count(2*s.PairsSeen+single, "pulse"), Count(s.PairsSeen, "pair"), single)
+}
+
+// Count is n and the noun, with an s unless n is 1.
+func Count(n int, noun string) string {
+	if n == 1 {
+		return "1 " + noun
+	}
+	return fmt.Sprintf("%d %ss", n, noun)
+}
+
 // WriteEnvelope draws the power envelope (mean frame power and peak
 // sample power per point, dBFS) against time with the detected pulse
 // arrivals marked at the top, as an EnvelopeWidth × EnvelopeHeight PNG.
@@ -655,7 +677,7 @@ func WriteEnvelope(w io.Writer, s *Summary, title string) (Layout, error) {
 			tm.xs = append(tm.xs, float64(g)/s.SampleRate*1e3)
 		}
 		p.Add(tm)
-		lbl := fmt.Sprintf("%d pulse arrivals", s.PulsesSeen)
+		lbl := PulseArrivals(s)
 		if s.PulsesSeen > len(s.Pulses) {
 			lbl += fmt.Sprintf(" (first %d marked)", len(s.Pulses))
 		}

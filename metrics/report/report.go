@@ -275,7 +275,7 @@ func (r *Report) pictures(sec *section, meta *captureMeta, base string, rec dete
 			SKWidth, SKHeight,
 			func(w io.Writer) (Layout, error) { return WriteSK(w, s, "Spectral kurtosis · "+title) }},
 		{"envelope", "power envelope of " + rec.Capture,
-			"Power envelope: mean frame power and peak sample power; marks at the top are detected pulse arrivals.",
+			"Power envelope: mean frame power and peak sample power; marks at the top are the detected pulse arrivals (a pulse pair marked once, counted as two pulses, as in the events table).",
 			EnvelopeWidth, EnvelopeHeight,
 			func(w io.Writer) (Layout, error) { return WriteEnvelope(w, s, "Power envelope · "+title) }},
 	}
@@ -352,7 +352,7 @@ func facts(rec detect.CaptureRecord) []fact {
 	var fs []fact
 	add := func(k, v string) { fs = append(fs, fact{k, v}) }
 	if rec.Start != nil && !rec.Start.IsZero() {
-		add("start", rec.Start.UTC().Format(detect.TimeLayout))
+		add("start", rec.Start.UTC().Format("2006-01-02 15:04:05.000 UTC"))
 		if rec.TimeSource != "" {
 			add("time from", rec.TimeSource)
 		}
@@ -364,7 +364,7 @@ func facts(rec detect.CaptureRecord) []fact {
 		add("sample rate", fmt.Sprintf("%.6g MS/s", rec.SampleRate/1e6))
 	}
 	if rec.CenterHz != nil {
-		add("centre", fmt.Sprintf("%.6f MHz", *rec.CenterHz/1e6))
+		add("centre", MHz(*rec.CenterHz))
 	} else {
 		add("centre", "unknown")
 	}
@@ -406,7 +406,7 @@ func eventRowOf(i int, e detect.Event) eventRow {
 		row.Duration = "–"
 	}
 	if e.CenterHz != nil {
-		row.Absolute = fmt.Sprintf("%.6f", *e.CenterHz/1e6)
+		row.Absolute = Trim(*e.CenterHz/1e6, 6)
 	}
 	if jn, ok := JN(e); ok {
 		row.JN = f1(jn)
@@ -491,8 +491,12 @@ func Detail(e detect.Event) string {
 		}
 		return fmt.Sprintf("%d tone(s): %s", len(p.Tones), strings.Join(s, ", "))
 	case detect.ClassSwept:
-		return fmt.Sprintf("%s sweep, period %s µs, %s … %s MHz, %s Hz/s", p.Shape, num(p.SweepPeriodS, 1e6, "%.2f"),
-			num(p.SweepLowHz, 1e-6, "%+.3f"), num(p.SweepHighHz, 1e-6, "%+.3f"), num(p.SweepRateHzPerS, 1, "%.3g"))
+		rate := "?"
+		if p.SweepRateHzPerS != nil {
+			rate = SI(*p.SweepRateHzPerS, "Hz/s")
+		}
+		return fmt.Sprintf("%s sweep, period %s µs, %s … %s MHz, %s", p.Shape, num(p.SweepPeriodS, 1e6, "%.2f"),
+			num(p.SweepLowHz, 1e-6, "%+.3f"), num(p.SweepHighHz, 1e-6, "%+.3f"), rate)
 	case detect.ClassPulsed:
 		n := "?"
 		if p.Pulses != nil {
@@ -535,14 +539,14 @@ func f1(v float64) string {
 	if math.IsNaN(v) || math.IsInf(v, 0) {
 		return "–"
 	}
-	return fmt.Sprintf("%.1f", v)
+	return noNegZero(fmt.Sprintf("%.1f", v))
 }
 
 func signed(v float64, prec int) string {
 	if math.IsNaN(v) || math.IsInf(v, 0) {
 		return "–"
 	}
-	return fmt.Sprintf("%+.*f", prec, v)
+	return noNegZero(fmt.Sprintf("%+.*f", prec, v))
 }
 
 // slug makes a capture name into a file-name part: letters, digits, '.',
