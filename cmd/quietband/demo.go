@@ -46,7 +46,8 @@ and says where the captures and the event log are. Nothing is transmitted.`, err
 	}
 	logPath := filepath.Join(*dir, "events.jsonl")
 	sum, err := replayCaptures(context.Background(), replayOptions{paths: []string{capDir}, raw: ingest.RawSettings{},
-		logPath: logPath, out: out, errOut: errOut, reportDir: *reportDir, reportAll: *reportDir != ""})
+		logPath: logPath, out: out, errOut: errOut, reportDir: *reportDir, reportAll: *reportDir != "",
+		source: "the demo's captures (quietband demo: " + s.Description + ")"})
 	if err != nil {
 		return err
 	}

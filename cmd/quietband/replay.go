@@ -38,6 +38,7 @@ type replayOptions struct {
 	reportAll         bool
 	annotate, inPlace bool
 	csvPath           string
+	source            string // the report's source line ("": the paths)
 }
 
 func runReplay(args []string, out, errOut io.Writer) error {
@@ -102,7 +103,11 @@ func replayCaptures(ctx context.Context, o replayOptions) (*replay.Summary, erro
 	case o.reportAll && o.reportDir == "":
 		return nil, errors.New("--report-all goes with --report DIR")
 	}
-	outs, err := report.NewOutputs(report.OutputOptions{Dir: o.reportDir, All: o.reportAll, Source: strings.Join(o.paths, " "),
+	source := o.source
+	if source == "" {
+		source = strings.Join(o.paths, " ")
+	}
+	outs, err := report.NewOutputs(report.OutputOptions{Dir: o.reportDir, All: o.reportAll, Source: source,
 		Annotate: o.annotate, InPlace: o.inPlace, CSV: o.csvPath, Messages: o.errOut, Prefix: "quietband replay: "})
 	if err != nil {
 		return nil, err
