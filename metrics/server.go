@@ -19,8 +19,12 @@ import (
 )
 
 // DefaultListen is the default address of the HTTP endpoints: loopback
-// only, so that exposing them is an explicit setting.
-const DefaultListen = "127.0.0.1:9464"
+// only, so that exposing them is an explicit setting. Port 7461 lies
+// outside the 9100–10000 range of the Prometheus project's default port
+// allocations list for exporters (checked from memory, not against the
+// list itself) and is, as far as we know, no widely used product's
+// default (issue 18: 9464 was a well-known exporter's).
+const DefaultListen = "127.0.0.1:7461"
 
 // MaxEvents is the most records /api/events returns per request.
 const MaxEvents = 1000

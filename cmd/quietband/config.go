@@ -196,7 +196,7 @@ func (c *runConfig) fill() error {
 		c.Listen = metrics.DefaultListen
 	}
 	if _, _, err := net.SplitHostPort(c.Listen); err != nil {
-		return fmt.Errorf("listen %q: want host:port (e.g. %s, or :9464 for every interface): %w", c.Listen, metrics.DefaultListen, err)
+		return fmt.Errorf("listen %q: want host:port (e.g. %s, or :7461 for every interface): %w", c.Listen, metrics.DefaultListen, err)
 	}
 	if c.QueueSize == 0 {
 		c.QueueSize = ingest.DefaultQueueSize

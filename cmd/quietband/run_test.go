@@ -77,7 +77,7 @@ func TestRunConfig(t *testing.T) {
 		{"bad format", "inputs:\n  - path: " + in + "\n    format: ci12\n", "format"},
 		{"bad name", "inputs:\n  - path: " + in + "\n    name: roof antenna\n", "roof antenna"},
 		{"same name", "inputs:\n  - {path: " + in + ", name: a}\n  - {path: " + dir + "/x, name: a}\n", "used twice"},
-		{"bad listen", "listen: 9464\n", "listen"},
+		{"bad listen", "listen: 7461\n", "listen"},
 		{"bad level", "log_level: loud\n", "loud"},
 		{"bad notify", "notify: smoke-signals\n", "smoke-signals"},
 		{"move without dir", "retention: {days: 3, action: move}\n", "retention.dir"},
@@ -105,7 +105,7 @@ func TestRunConfig(t *testing.T) {
 			cfg.Inputs[0].Settle != ingest.DefaultSettle {
 			t.Errorf("default input %+v", cfg.Inputs)
 		}
-		if cfg.Listen != "127.0.0.1:9464" || cfg.StateDir != defaultStateDir ||
+		if cfg.Listen != "127.0.0.1:7461" || cfg.StateDir != defaultStateDir ||
 			cfg.Log.Path != filepath.Join(defaultStateDir, "events.jsonl") || cfg.QueueSize != 64 ||
 			cfg.RescanInterval != time.Minute || cfg.LogLevel != "info" || cfg.LogFormat != "text" ||
 			cfg.Retention.Days != 0 || cfg.Retention.Action != "delete" || cfg.Metrics.GoCollector {
