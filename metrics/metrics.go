@@ -211,24 +211,47 @@ func New(opt Options) *Set {
 // Registry is the Set's registry (for promhttp and tests).
 func (s *Set) Registry() *prometheus.Registry { return s.reg }
 
-// buildVersion is the module version and VCS revision the binary was built
-// from ("unknown" where the build did not record them).
-func buildVersion() (version, revision string) {
-	version, revision = "unknown", "unknown"
+// Version and Revision are stamped at build time with
+// -ldflags "-X quietband/metrics.Version=v1.2.3 -X quietband/metrics.Revision=abc123";
+// unset, Build reads what the Go toolchain recorded.
+var Version, Revision string
+
+// Build is the version and VCS revision the binary was built from: the
+// stamped Version and Revision, else the module version and the
+// vcs.revision (with "+dirty" for a modified tree) that the toolchain
+// recorded; "devel" for a version a local build does not have, "unknown"
+// for a revision it did not record (a build with -buildvcs=false, as CI's).
+func Build() (version, revision string) {
+	version, revision = Version, Revision
 	bi, ok := debug.ReadBuildInfo()
-	if !ok {
-		return
-	}
-	if v := bi.Main.Version; v != "" {
-		version = v
-	}
-	for _, st := range bi.Settings {
-		if st.Key == "vcs.revision" && st.Value != "" {
-			revision = st.Value
+	if version == "" {
+		version = "devel"
+		if ok && bi.Main.Version != "" && bi.Main.Version != "(devel)" {
+			version = bi.Main.Version
 		}
 	}
-	return
+	if revision == "" {
+		revision = "unknown"
+		if ok {
+			dirty := false
+			for _, st := range bi.Settings {
+				switch {
+				case st.Key == "vcs.revision" && st.Value != "":
+					revision = st.Value
+				case st.Key == "vcs.modified" && st.Value == "true":
+					dirty = true
+				}
+			}
+			if dirty && revision != "unknown" {
+				revision += "+dirty"
+			}
+		}
+	}
+	return version, revision
 }
+
+// buildVersion is Build, for build_info.
+func buildVersion() (version, revision string) { return Build() }
 
 // EventLogWriteFailed counts a failed append and marks the log unwritable.
 func (s *Set) EventLogWriteFailed() {

@@ -11,6 +11,7 @@ import (
 
 	"quietband/ingest"
 	"quietband/metrics/bench"
+	"quietband/metrics/report"
 )
 
 func init() {
@@ -50,6 +51,7 @@ factor above 1 keeps up.`, errOut)
 	}
 	defer os.RemoveAll(dir)
 	fmt.Fprintf(out, "quietband bench: %s at %.4g MS/s, %d × %.3g s captures, %d CPU(s)\n\n", *format, *rate/1e6, *captures, *seconds, runtime.NumCPU())
+	fmt.Fprintf(errOut, "quietband bench: measuring the stages, then %d whole-pipeline run(s) per core count; this takes a while\n", *repeat)
 	res, err := bench.Run(context.Background(), bench.Options{Dir: dir, Rate: *rate, Format: *format, Seconds: *seconds, Captures: *captures, Repeat: *repeat})
 	if err != nil {
 		return err
@@ -78,5 +80,25 @@ factor above 1 keeps up.`, errOut)
 		}
 		fmt.Fprintf(tw, "%d %s\t%d\t%.2f×\t%s\n", p.Captures, p.Set, p.Cores, p.RealTime, scaling)
 	}
-	return tw.Flush()
+	if err := tw.Flush(); err != nil {
+		return err
+	}
+	// The verdict: the slowest set on the most cores measured.
+	worst, cores := math.Inf(1), 0
+	for _, p := range res.Pipelines {
+		if p.Cores > cores {
+			worst, cores = p.RealTime, p.Cores
+		} else if p.Cores == cores {
+			worst = math.Min(worst, p.RealTime)
+		}
+	}
+	if cores > 0 {
+		verdict := "keeps up with"
+		if worst < 1 {
+			verdict = "does NOT keep up with"
+		}
+		fmt.Fprintf(out, "\nverdict: this machine %s a recorder writing %s at %s without pause (real-time factor %.2f× on %d core(s), the slowest set; above 1 keeps up)\n",
+			verdict, *format, report.SI(*rate, "S/s"), worst, cores)
+	}
+	return nil
 }

@@ -47,7 +47,7 @@ and says where the captures and the event log are. Nothing is transmitted.`, err
 	logPath := filepath.Join(*dir, "events.jsonl")
 	sum, err := replayCaptures(context.Background(), replayOptions{paths: []string{capDir}, raw: ingest.RawSettings{},
 		logPath: logPath, out: out, errOut: errOut, reportDir: *reportDir, reportAll: *reportDir != "",
-		source: "the demo's captures (quietband demo: " + s.Description + ")"})
+		command: "demo", source: "the demo's captures (quietband demo: " + s.Description + ")"})
 	if err != nil {
 		return err
 	}

@@ -11,8 +11,12 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"runtime"
 	"sort"
 	"strings"
+
+	"quietband/detect"
+	"quietband/metrics"
 )
 
 // command is one subcommand.
@@ -45,7 +49,7 @@ func usage(w io.Writer) {
 	for _, n := range names {
 		fmt.Fprintf(w, "  %-8s %s\n", n, commands[n].summary)
 	}
-	fmt.Fprintf(w, "\nRun 'quietband COMMAND --help' for a command's flags.\n")
+	fmt.Fprintf(w, "\nRun 'quietband COMMAND --help' (or 'quietband help COMMAND') for a command's flags;\n'quietband --version' for the build.\n")
 }
 
 func main() {
@@ -53,6 +57,15 @@ func main() {
 }
 
 func runMain(args []string, out, errOut io.Writer) int {
+	if len(args) > 0 && (args[0] == "--version" || args[0] == "-version" || args[0] == "version") {
+		v, r := metrics.Build()
+		fmt.Fprintf(out, "quietband %s (revision %s, detectors %s, %s)\n", v, r, detect.Version, runtime.Version())
+		return 0
+	}
+	if len(args) == 2 && args[0] == "help" {
+		// "quietband help run" is "quietband run --help".
+		args = []string{args[1], "--help"}
+	}
 	if len(args) == 0 || args[0] == "-h" || args[0] == "--help" || args[0] == "help" {
 		usage(out)
 		if len(args) == 0 {

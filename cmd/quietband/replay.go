@@ -39,6 +39,7 @@ type replayOptions struct {
 	annotate, inPlace bool
 	csvPath           string
 	source            string // the report's source line ("": the paths)
+	command           string // the command its messages name ("": replay)
 }
 
 func runReplay(args []string, out, errOut io.Writer) error {
@@ -103,12 +104,16 @@ func replayCaptures(ctx context.Context, o replayOptions) (*replay.Summary, erro
 	case o.reportAll && o.reportDir == "":
 		return nil, errors.New("--report-all goes with --report DIR")
 	}
+	prefix := "quietband replay: "
+	if o.command != "" {
+		prefix = "quietband " + o.command + ": "
+	}
 	source := o.source
 	if source == "" {
 		source = strings.Join(o.paths, " ")
 	}
 	outs, err := report.NewOutputs(report.OutputOptions{Dir: o.reportDir, All: o.reportAll, Source: source,
-		Annotate: o.annotate, InPlace: o.inPlace, CSV: o.csvPath, Messages: o.errOut, Prefix: "quietband replay: "})
+		Annotate: o.annotate, InPlace: o.inPlace, CSV: o.csvPath, Messages: o.errOut, Prefix: prefix})
 	if err != nil {
 		return nil, err
 	}
@@ -137,7 +142,7 @@ func replayCaptures(ctx context.Context, o replayOptions) (*replay.Summary, erro
 		Observer: outs.Observer,
 		Done: func(f ingest.Found, out replay.Outcome) error {
 			if out.Err != nil {
-				fmt.Fprintf(o.errOut, "quietband replay: quarantined %s: %v\n", f.Name, out.Err)
+				fmt.Fprintf(o.errOut, "%squarantined %s: %v\n", prefix, f.Name, out.Err)
 			}
 			return outs.Done(f, out.Record, out.Events)
 		}}
