@@ -49,20 +49,22 @@ raw files need --rate, real-valued ones --if and --lo-side too: a raw file
 without them is reported and recorded as quarantined with the reason)
 with the same detectors as the daemon, in time order, learning the site
 baseline from clean captures as it goes. Prints a table of the events found
-and a summary; --json prints the event-log records instead; --log appends
+and a summary; --json prints the event-log records instead; --event-log appends
 them to an event log. A capture that cannot be read is reported and recorded
 as quarantined, and replay goes on; the exit status is 1 if any was bad.`, errOut)
 	raw := addRawFlags(fs)
-	logPath := fs.String("log", "", "append the records to this event log (JSON Lines, hash-chained, fsynced)")
+	logPath := fs.String("event-log", "", "append the records to this event log (JSON Lines, hash-chained, fsynced)")
+	fs.StringVar(logPath, "log", "", "the same as --event-log (the older name)")
 	asJSON := fs.Bool("json", false, "print the event-log records (JSON Lines) instead of the table")
 	baseline := fs.String("baseline", "", "baseline file: loaded if it exists, saved at the end")
 	quiet := fs.Bool("quiet", false, "no progress line on the terminal")
 	workers := fs.Int("workers", runtime.NumCPU(), "CPUs to analyse with: 1 measures the satellites inside the spectral pass; 2 or more on a read of their own beside it (the output does not depend on this)")
 	reportDir := fs.String("report", "", "write the analyst's report into this folder: index.html with PNG pictures beside it")
-	reportAll := fs.Bool("report-all", false, "with --report: draw every capture, not only those with events")
+	reportAll := fs.Bool("all", false, "with --report: draw every capture, not only those with events (as report --all)")
+	fs.BoolVar(reportAll, "report-all", false, "the same as --all (the older name)")
 	annotate := fs.Bool("annotate", false, "write each event as a SigMF annotation into a copy of its capture's metadata, --report folder/annotations/NAME.sigmf-meta (raw captures get none)")
 	inPlace := fs.Bool("in-place", false, "with --annotate: rewrite the captures' own .sigmf-meta instead, atomically (earlier quietband annotations are replaced, everything else is kept)")
-	csvPath := fs.String("csv", "", "write the events to this CSV file, one row per event (columns: see the report package documentation)")
+	csvPath := fs.String("csv", "", "write the events to this CSV file, one row per event (columns: capture, id, episode, class, start, end, duration_s, sample_start, sample_count, offset_hz, center_hz, bandwidth_hz, freq_lower_hz, freq_upper_hz, jn_db, power_dbfs, cn0_loss_db, detectors, related, params; README, The analyst's report)")
 	settings, err := parsePathArgs(fs, args, raw)
 	if err != nil {
 		return err
@@ -102,7 +104,7 @@ func replayCaptures(ctx context.Context, o replayOptions) (*replay.Summary, erro
 	case o.annotate && !o.inPlace && o.reportDir == "":
 		return nil, errors.New("--annotate writes annotated copies of the metadata into the --report folder: give --report DIR, or --in-place to annotate the captures themselves")
 	case o.reportAll && o.reportDir == "":
-		return nil, errors.New("--report-all goes with --report DIR")
+		return nil, errors.New("--all (draw every capture) goes with --report DIR")
 	}
 	prefix := "quietband replay: "
 	if o.command != "" {

@@ -52,7 +52,8 @@ abandons it after a few seconds; it is analysed again on the next start).`, errO
 	var watch stringList
 	fs.Var(&watch, "watch", "folder to watch, repeatable; replaces the configured inputs (raw files take --format, --rate, --center, --if, --lo-side, --pattern)")
 	raw := addRawFlags(fs)
-	logPath := fs.String("log", "", "event log file (default: state_dir/"+eventLogFileName+")")
+	logPath := fs.String("event-log", "", "event log file (default: state_dir/"+eventLogFileName+")")
+	fs.StringVar(logPath, "log", "", "the same as --event-log (the older name; --log-level is the diagnostic log's)")
 	state := fs.String("state", "", "state folder: baseline, ledger, default event log location (default "+defaultStateDir+")")
 	listen := fs.String("listen", "", "address of the HTTP endpoints (default "+metrics.DefaultListen+"; loopback only unless set)")
 	webCfg := fs.String("web.config.file", "", "exporter-toolkit web configuration file for TLS and basic auth (default: plain HTTP)")
