@@ -26,17 +26,20 @@ const MaxLabel = 20
 // Annotations turns a capture's events into SigMF annotations:
 // core:sample_start and core:sample_count from the event, core:label the
 // class, core:generator Generator, core:uuid derived from the event id
-// (EventUUID), core:comment the event's parameters as JSON, and
+// (EventUUID), core:comment the event in words (Detail), and
 // core:freq_lower_edge / core:freq_upper_edge as absolute frequencies,
 // centre + offset ∓ bandwidth/2, using the centre of the capture segment
 // holding the event's first sample. SigMF defines the edges as absolute
-// frequencies, so where that centre is unknown neither edge is written
-// (the offset stays in the comment).
+// frequencies, so where that centre is unknown neither edge is written.
+// The rest of the event is in keys of quietband's namespace
+// (quietband:event_id, quietband:episode, quietband:offset_hz, ...; see
+// extensionKeys), which Annotate declares in the global core:extensions as
+// SigMF requires (issue 18 item 10: a JSON blob in core:comment).
 func Annotations(c *ingest.Capture, events []detect.Event) []ingest.Annotation {
 	out := make([]ingest.Annotation, 0, len(events))
 	for _, e := range events {
 		a := ingest.Annotation{SampleStart: uint64(max(e.SampleStart, 0)), Label: truncate(e.Class, MaxLabel),
-			Generator: Generator, UUID: EventUUID(e.ID), Comment: comment(e)}
+			Generator: Generator, UUID: EventUUID(e.ID), Comment: Detail(e), Extra: extensionKeys(e)}
 		n := uint64(max(e.SampleCount, 0))
 		a.SampleCount = &n
 		if seg := c.SegmentAt(e.SampleStart); seg.HasCenter {
@@ -56,26 +59,67 @@ func truncate(s string, n int) string {
 	return s
 }
 
-// comment is the event's parameters as compact JSON (the field names of
-// the event log).
-func comment(e detect.Event) string {
-	v := struct {
-		ID          string         `json:"id"`
-		Episode     string         `json:"episode"`
-		OffsetHz    float64        `json:"offset_hz"`
-		BandwidthHz float64        `json:"bandwidth_hz"`
-		JNDB        float64        `json:"jn_db"`
-		PowerDBFS   float64        `json:"power_dbfs"`
-		Params      detect.Params  `json:"params"`
-		Impact      *detect.Impact `json:"impact,omitempty"`
-		Detectors   []string       `json:"detectors"`
-		Related     []string       `json:"related,omitempty"`
-	}{e.ID, e.Episode, e.OffsetHz, e.BandwidthHz, e.JNDB, e.PowerDBFS, e.Params, e.Impact, e.Detectors, e.Related}
-	b, err := json.Marshal(v)
-	if err != nil {
-		panic("report: marshal of an event comment: " + err.Error())
+// extensionKeys are the event's fields that SigMF's core annotation keys
+// do not hold, under quietband's namespace with the event log's names:
+// quietband:event_id, :episode, :class, :offset_hz, :bandwidth_hz,
+// :jn_db (not for a cn0_drop, which has no J/N), :power_dbfs, :params,
+// :impact, :detectors, :related.
+func extensionKeys(e detect.Event) map[string]json.RawMessage {
+	out := map[string]json.RawMessage{}
+	put := func(k string, v any) {
+		b, err := json.Marshal(v)
+		if err != nil {
+			panic("report: marshal of an annotation key: " + err.Error())
+		}
+		out[ingest.ExtensionName+":"+k] = b
 	}
-	return string(b)
+	put("event_id", e.ID)
+	put("episode", e.Episode)
+	put("class", e.Class)
+	put("offset_hz", e.OffsetHz)
+	put("bandwidth_hz", e.BandwidthHz)
+	if jn, ok := JN(e); ok {
+		put("jn_db", jn)
+	}
+	put("power_dbfs", e.PowerDBFS)
+	put("params", e.Params)
+	if e.Impact != nil {
+		put("impact", e.Impact)
+	}
+	put("detectors", e.Detectors)
+	if len(e.Related) > 0 {
+		put("related", e.Related)
+	}
+	return out
+}
+
+// declareExtension adds quietband's namespace to the global
+// core:extensions of m (SigMF: every namespace used is declared there),
+// keeping every other declared extension.
+func declareExtension(m *ingest.Meta) error {
+	var exts []map[string]any
+	if raw, ok := m.Global.Extra["core:extensions"]; ok {
+		if err := json.Unmarshal(raw, &exts); err != nil {
+			return fmt.Errorf("core:extensions: %w", err)
+		}
+	}
+	for _, x := range exts {
+		if x["name"] == ingest.ExtensionName {
+			return nil
+		}
+	}
+	exts = append(exts, map[string]any{"name": ingest.ExtensionName, "version": ingest.ExtensionVersion, "optional": true})
+	b, err := json.Marshal(exts)
+	if err != nil {
+		return err
+	}
+	extra := make(map[string]json.RawMessage, len(m.Global.Extra)+1)
+	for k, v := range m.Global.Extra {
+		extra[k] = v
+	}
+	extra["core:extensions"] = b
+	m.Global.Extra = extra
+	return nil
 }
 
 // EventUUID is a UUID version 8 (RFC 9562 §5.8, custom) made from an
@@ -103,6 +147,12 @@ func Annotate(m *ingest.Meta, anns []ingest.Annotation) *ingest.Meta {
 		}
 	}
 	out.Annotations = append(out.Annotations, anns...)
+	if len(anns) > 0 {
+		if err := declareExtension(&out); err != nil {
+			// A malformed core:extensions is the file's own: kept as it is.
+			return &out
+		}
+	}
 	return &out
 }
 

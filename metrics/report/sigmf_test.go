@@ -6,6 +6,7 @@ import (
 	"os"
 	"path/filepath"
 	"regexp"
+	"strings"
 	"testing"
 
 	"quietband/detect"
@@ -109,13 +110,18 @@ func TestAnnotateInPlace(t *testing.T) {
 			a.FreqLowerEdge == nil || *a.FreqLowerEdge != lo || *a.FreqUpperEdge != hi {
 			t.Errorf("annotation %+v does not describe event %+v", a, *e)
 		}
-		var c struct {
-			ID     string        `json:"id"`
-			JNDB   float64       `json:"jn_db"`
-			Params detect.Params `json:"params"`
+		// Issue 18 item 10: the standard fields say it in words, the
+		// rest is in quietband's namespace (no JSON in core:comment).
+		if a.Comment != Detail(*e) || strings.HasPrefix(a.Comment, "{") {
+			t.Errorf("comment %q, want the event in words %q", a.Comment, Detail(*e))
 		}
-		if err := json.Unmarshal([]byte(a.Comment), &c); err != nil || c.ID != e.ID || c.JNDB != e.JNDB {
-			t.Errorf("comment %q: %v", a.Comment, err)
+		var id string
+		var jn float64
+		var params detect.Params
+		if json.Unmarshal(a.Extra["quietband:event_id"], &id) != nil || id != e.ID ||
+			json.Unmarshal(a.Extra["quietband:jn_db"], &jn) != nil || jn != e.JNDB ||
+			json.Unmarshal(a.Extra["quietband:params"], &params) != nil {
+			t.Errorf("extension keys %v do not carry event %s", a.Extra, e.ID)
 		}
 	}
 	if ours != len(events) || foreign != 1 {
@@ -124,6 +130,11 @@ func TestAnnotateInPlace(t *testing.T) {
 	if string(got.Global.Extra["site:antenna"]) != `"roof mast"` || got.Global.SHA512 != m.Global.SHA512 ||
 		got.Global.Datatype != m.Global.Datatype || got.Global.SampleRate != m.Global.SampleRate || len(got.Captures) != len(m.Captures) {
 		t.Errorf("other metadata changed: %+v", got.Global)
+	}
+	// The namespace is declared in core:extensions (SigMF), once.
+	var exts []struct{ Name string }
+	if err := json.Unmarshal(got.Global.Extra["core:extensions"], &exts); err != nil || len(exts) != 1 || exts[0].Name != "quietband" {
+		t.Errorf("core:extensions %s: %v", got.Global.Extra["core:extensions"], err)
 	}
 	// SigMF: annotations appear in ascending core:sample_start.
 	raw, err := os.ReadFile(ob.capture.MetaPath)
