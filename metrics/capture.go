@@ -38,6 +38,7 @@ func (s *Set) ObserveCapture(c Capture) {
 	s.captures.WithLabelValues(ResultOK).Inc()
 	for _, e := range c.Events {
 		s.events.WithLabelValues(e.Class).Inc()
+		s.inputEvents.WithLabelValues(c.Input, e.Class).Inc()
 	}
 	s.samples.Add(float64(c.Record.Samples))
 	s.bytes.Add(float64(c.Bytes))

@@ -76,6 +76,7 @@ type Set struct {
 	cn0DropActive *prometheus.GaugeVec   // input, explained_by
 	cn0DropDB     *prometheus.GaugeVec   // input
 	events        *prometheus.CounterVec // class
+	inputEvents   *prometheus.CounterVec // input, class
 	captures      *prometheus.CounterVec // result
 	samples       prometheus.Counter
 	bytes         prometheus.Counter
@@ -135,6 +136,7 @@ func New(opt Options) *Set {
 		return c
 	}
 	s.events = counter("events_total", "Events found in analysed captures, by class (interference, spoofing, and cn0_drop: a C/N0 drop, with or without interference).", "class")
+	s.inputEvents = counter("events_by_input_total", "Events found in analysed captures, by input and class (events_total without the input, kept beside it for its readers; the alerts and the dashboard use this one).", "input", "class")
 	s.captures = counter("captures_total", "Captures recorded in the event log, by result (ok or quarantined).", "result")
 	s.samples = counter("samples_total", "Complex samples analysed.").WithLabelValues()
 	s.bytes = counter("bytes_total", "Bytes of sample data analysed.").WithLabelValues()
@@ -194,6 +196,7 @@ func New(opt Options) *Set {
 	s.captures.WithLabelValues(ResultQuarantined)
 	for _, in := range opt.Inputs {
 		for _, c := range detect.Classes {
+			s.inputEvents.WithLabelValues(in, c)
 			s.active.WithLabelValues(in, c).Set(0)
 			s.knownActive.WithLabelValues(in, c).Set(0)
 		}

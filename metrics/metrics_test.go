@@ -518,3 +518,19 @@ func hasSeries(t *testing.T, s *Set, name, label, value string) bool {
 	}
 	return false
 }
+
+// Issue 18 item 10: the interference-seen alert and the events-per-hour
+// panel dropped the input label (events_total has none). Events are also
+// counted by input and class.
+func TestEventsKeepTheirInput(t *testing.T) {
+	s := newTestSet(t, false)
+	observeSequence(s)
+	for _, tc := range []struct {
+		input, class string
+		want         float64
+	}{{"roof", detect.ClassCW, 2}, {"roof", detect.ClassSwept, 1}, {"mast", detect.ClassWidebandNoise, 1}, {"mast", detect.ClassCW, 0}} {
+		if v := testutil.ToFloat64(s.inputEvents.WithLabelValues(tc.input, tc.class)); v != tc.want {
+			t.Errorf("events_by_input_total{input=%q,class=%q} = %v, want %v", tc.input, tc.class, v, tc.want)
+		}
+	}
+}
