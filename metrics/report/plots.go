@@ -371,7 +371,7 @@ func WriteSpectrogram(w io.Writer, s *Summary, events []detect.Event, title stri
 	l.XUnit, l.YUnit = "Hz from centre", "s from first sample"
 	l.ColorMinDBFS, l.ColorMaxDBFS = lo, hi
 	l.BoxesDrawn = len(bs)
-	return l, writePNG(w, cv)
+	return l, writePalettedPNG(w, cv)
 }
 
 // decimate is the group size that folds n values into at most limit
