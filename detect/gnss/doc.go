@@ -166,10 +166,17 @@
 //
 //   - Receiver clock: the whole clock range is searched while the site's
 //     offset is unknown (and again when the narrow search finds fewer than
-//     half the satellites the site had); afterwards ±(DopplerMaxHz +
-//     2 kHz) around it. The capture's clock offset (ClockOffset) is the
-//     median Doppler of the satellites measured: without ephemeris it
-//     includes the median geometric Doppler of the satellites in view.
+//     half the satellites the site had); afterwards the window its last
+//     satellites bound: each Doppler is a geometric one within
+//     ±DopplerMaxHz plus the clock offset, so the offset lies in
+//     [max D_i − DopplerMaxHz, min D_i + DopplerMaxHz], and the next
+//     capture's satellites within DopplerMaxHz (and a Doppler step) of
+//     that interval (±5.5 kHz for eight satellites over ±5 kHz; wider
+//     than the former median ± 7 kHz only when a few close satellites
+//     leave the offset loose). The capture's clock offset (ClockOffset)
+//     is the median Doppler of the satellites measured: without
+//     ephemeris it includes the median geometric Doppler of the
+//     satellites in view.
 //   - Spectrum orientation: at the end of the pull-in, the weighted
 //     regression of each satellite's code-rate error on its carrier
 //     Doppler (REFERENCES §12.2, §11.4) has slope 0 in the right
@@ -181,8 +188,26 @@
 //     on the samples as they are (an ordinary receiver's effective C/N0)
 //     unless mitigation removed 90 % of the snapshot's power or blanked
 //     1 % of it, when the moment estimator would take the interference
-//     left in the prompts for signal: tracking then runs on mitigated
-//     blocks and a note says so.
+//     left in the prompts for signal: tracking then runs on blocks
+//     mitigated with the snapshot's decisions (Mitigator.MitigateBlock:
+//     its stages, passband and blanking thresholds, so that no passband
+//     estimate or median runs per sample; 0.22 s of CPU per second of a
+//     10 MS/s capture under a 15 µs chirp at J/N 12 dB, 0.78 s when every
+//     block was mitigated on its own; BenchmarkPipeline_1s_10MSps/chirp)
+//     and a note says so.
+//   - Satellites that are there: an interferer that repeats every 1/n ms
+//     (a sweep every 100 µs has lines every 10 kHz) correlates with every
+//     C/A code (lines every 1 kHz) into peaks at whole-kHz offsets from
+//     its lines, fixed in the receiver's time; mitigation that leaves part
+//     of it (J/N −8 to 2 dB for the bank's in-band sweep, which at −6 dB
+//     excises nothing) lets them through acquisition on many PRNs. Before
+//     a PRN is reported its code's drift against the carrier-aided NCO
+//     over the whole track (ChannelState.DriftErr) must be a satellite's:
+//     code Doppler is f_D/1540 (REFERENCES §11.4), so a satellite drifts
+//     by 0 and a peak fixed in the receiver's time by −f_D/1540; PRNs
+//     drifting like the latter at 5 standard errors, and then the others
+//     on the same 1 kHz line grid that cannot be told from them, are
+//     rejected with a note (Measurement.Standing, standingChannels).
 //   - Short captures: below the 10 ms snapshot nothing is measured (a
 //     note); from 10 ms to the ~110 ms tracking needs, the acquired
 //     satellites are reported as MethodAcquired, with the loops' values
@@ -193,7 +218,9 @@
 //     noise-only captures nor in the interference bank (CW, tones, sweeps
 //     in and wider than the band, DME-like pairs, rectangular pulse
 //     trains, noise bands, wideband noise, J/N 10–40 dB:
-//     TestInterferenceBank). Satellites of 40 dB-Hz and more are found
+//     TestInterferenceBank; −6 to 8 dB: TestIssue14LowJN, where the
+//     in-band 100 µs sweep made 31 in 8 captures at 2 dB before the code
+//     drift test). Satellites of 40 dB-Hz and more are found
 //     (≥ 75 %, 4 MS/s) up to J/N 40 dB for CW and tones, sweeps wider than
 //     the band and slow sweeps, DME-like pairs, rectangular pulses (1 µs
 //     pulses from 20 dB: at 10 dB they stay under the blanking threshold

@@ -72,6 +72,13 @@ type Measurement struct {
 	// CodeRates are the tracked satellites' code Doppler against their
 	// carrier Doppler over the pull-in (REFERENCES §11.4).
 	CodeRates []CodeRate
+	// Standing are the acquired PRNs not reported because their code
+	// stood still in the receiver's time while their carrier showed a
+	// Doppler (see standingCode): the correlation of a periodic
+	// interferer (or of a generator without code Doppler), not a
+	// satellite. ErrChipsS is the code's drift over the whole track
+	// against the carrier-aided NCO (ChannelState.DriftErr).
+	Standing []CodeRate
 }
 
 // CodeRate is one satellite's code Doppler measured over the tracking
@@ -94,10 +101,10 @@ type MeterConfig struct {
 	// capture's spectrum is inverted, I and Q swapped; REFERENCES §12.2)
 	// instead of deciding it from the satellites.
 	Inverted *bool
-	// NarrowHz is the one-sided Doppler window searched around the site's
-	// clock offset once it is known (default DopplerMaxHz + 2 kHz: the
-	// median Doppler of the satellites carries part of the geometric
-	// Dopplers, see ClockOffset).
+	// NarrowHz, when set, is the one-sided Doppler window searched
+	// around the site's clock offset once it is known. By default the
+	// window is the one the satellites last measured bound (see
+	// Meter.narrowWindow).
 	NarrowHz float64
 }
 
@@ -112,8 +119,9 @@ type MeterConfig struct {
 //     interference mitigation (Mitigator: excision, short-time excision,
 //     pulse blanking), over the whole receiver-clock range while the
 //     site's clock offset is unknown (±15 kHz by default), then within
-//     NarrowHz of the site's offset (falling back to the whole range when
-//     the narrow search finds fewer than half the satellites the site had).
+//     the window the site's last satellites bound (narrowWindow; falling
+//     back to the whole range when the narrow search finds fewer than
+//     half the satellites the site had).
 //  2. Tracking (Tracker) of the acquired satellites on the samples as they
 //     are (an ordinary receiver's view: effective C/N0), in the site's
 //     orientation (upright until known).
@@ -173,6 +181,10 @@ type Meter struct {
 	invKnown bool // the orientation was determined on this capture
 	restarts int
 	resulted bool
+	// fullBlocks (tests only) mitigates every tracking block on its own
+	// (Mitigator.Mitigate), the reference MitigateBlock is checked
+	// against.
+	fullBlocks bool
 
 	// The site (carried from capture to capture while fs and fc stay).
 	site Site
@@ -190,11 +202,15 @@ type Site struct {
 	fs, fc     float64 // rate and centre it was learned at
 	clockKnown bool
 	clockHz    float64 // recorded frame (acquisition search centre)
-	count      int     // satellites acquired then
-	powerDB    float64 // snapshot power when satellites were last measured
-	hasPower   bool
-	invKnown   bool
-	inv        bool
+	// clockLo, clockHi bound the receiver clock offset (recorded frame)
+	// when bounded (see narrowWindow).
+	clockLo, clockHi float64
+	bounded          bool
+	count            int     // satellites acquired then
+	powerDB          float64 // snapshot power when satellites were last measured
+	hasPower         bool
+	invKnown         bool
+	inv              bool
 }
 
 // Site returns what the Meter knows of the site of its current input.
@@ -285,7 +301,11 @@ func (m *Meter) process(start int64, x []complex64) {
 		m.mitBuf = make([]complex64, len(x))
 	}
 	y := m.mitBuf[:len(x)]
-	m.mit.Mitigate(y, x)
+	if m.fullBlocks {
+		m.mit.Mitigate(y, x)
+	} else {
+		m.mit.MitigateBlock(y, x)
+	}
 	m.tr.Process(y, start)
 }
 
@@ -315,12 +335,31 @@ func (m *Meter) orientation() bool {
 	return false
 }
 
-// narrowHz returns the one-sided window of the narrow search.
-func (m *Meter) narrowHz() float64 {
-	if m.cfg.NarrowHz > 0 {
-		return m.cfg.NarrowHz
+// narrowWindow returns the centre and one-sided width of the narrow
+// search, once the site's clock offset is known. Each satellite's
+// Doppler D_i is its geometric Doppler, |g_i| ≤ DopplerMaxHz (D_max),
+// plus the receiver clock offset c (REFERENCES §12.5), so the
+// satellites last measured bound c to [max D_i − D_max, min D_i + D_max],
+// and any satellite of the next capture lies within D_max of that
+// interval: the window is the interval widened by D_max and one Doppler
+// step (the half bin by which AcquireAround rounds its edges, and as
+// much again, 0.16 ppm at L1, for the clock's drift between captures).
+// A wide sky narrows it (8 satellites over 9 kHz: ±6 kHz), a sky of a
+// few close satellites widens it (3 within 1 kHz: ±10 kHz), where the
+// median ± (D_max + 2 kHz) searched before could miss a satellite
+// rising on the other side. When the satellites do not fit one clock
+// (their spread exceeds 2·D_max: a moving receiver or a false PRN), or
+// MeterConfig.NarrowHz is set, the window is the median Doppler ±
+// NarrowHz (default D_max + 2 kHz).
+func (m *Meter) narrowWindow() (center, half float64) {
+	dmax := m.acq.cfg.DopplerMaxHz
+	switch {
+	case m.cfg.NarrowHz > 0:
+		return m.site.clockHz, m.cfg.NarrowHz
+	case m.site.bounded:
+		return (m.site.clockLo + m.site.clockHi) / 2, (m.site.clockHi-m.site.clockLo)/2 + dmax + m.acq.cfg.DopplerStepHz
 	}
-	return m.acq.cfg.DopplerMaxHz + 2000
+	return m.site.clockHz, dmax + 2000
 }
 
 // acquire runs acquisition on the full snapshot and starts tracking.
@@ -343,7 +382,8 @@ func (m *Meter) acquire() {
 	m.mitTrack = m.mitStats.ExcisedFraction >= mitigatedExcised || m.mitStats.BlankedFraction >= mitigatedBlanked
 	var err error
 	if m.site.clockKnown {
-		m.acquired, err = m.acq.AcquireAround(m.acquired, m.clean, m.site.clockHz, m.narrowHz())
+		center, half := m.narrowWindow()
+		m.acquired, err = m.acq.AcquireAround(m.acquired, m.clean, center, half)
 		if err == nil && 2*len(m.acquired) < m.site.count {
 			m.acquired, err = m.acq.Acquire(m.acquired, m.clean)
 			m.wide = true
@@ -459,6 +499,134 @@ func orientationSlope(chans []ChannelState) (beta, se float64, ok bool) {
 	return beta, math.Sqrt(scale / sff), true
 }
 
+// Code drift test (see standingCode).
+const (
+	// driftSigmas is how many standard errors the code's drift must
+	// stand from 0 (a satellite's) to reject a PRN.
+	driftSigmas = 5
+	// driftMinSigma (chips/s) is the least standard error credited to a
+	// drift: 0.01 chips/s is a code-carrier divergence of 3 m/s, far
+	// beyond the ionosphere's few cm/s (REFERENCES §11.4, from memory).
+	driftMinSigma = 0.01
+	// driftMinEpochs is the fewest epochs a drift is judged on.
+	driftMinEpochs = 30
+	// driftRatioLo, driftRatioHi bound the drift as a fraction of
+	// −f_D/1540, the drift of a correlation standing still in the
+	// receiver's time: measured 0.45–1.2 under a 100 µs sweep (the
+	// delay-locked loop slips on the interferer's correlation when the
+	// drift outruns it). A satellite tracked in the wrong orientation
+	// drifts by twice that (REFERENCES §12.2) and is left to the
+	// orientation test.
+	driftRatioLo = 0.3
+	driftRatioHi = 1.5
+)
+
+// standingCode reports whether a channel followed a correlation whose
+// code stands still in the receiver's time while its carrier has a
+// Doppler f_D: a satellite's code Doppler is f_D/1540 chips/s at L1
+// (REFERENCES §11.4), which the carrier-aided code NCO supplies, so its
+// code drifts by 0 ± noise against that NCO over the whole track
+// (ChannelState.DriftErr), whatever the receiver clock (code and carrier
+// share the reference, REFERENCES §11.4, §12.5). An interferer periodic
+// with a divisor of 1 ms (a sweep every 100 µs: lines every 10 kHz)
+// correlates with every C/A code (lines every 1 kHz) into peaks at
+// whole-kHz offsets from its lines that are fixed in the receiver's
+// time: tracked, their code drifts by −f_D/1540 against the NCO. A
+// channel is rejected when its drift stands driftSigmas standard errors
+// from 0 and lies within [driftRatioLo, driftRatioHi] of −f_D/1540.
+func standingCode(c ChannelState) bool {
+	if c.DriftEpochs < driftMinEpochs || !(c.DriftVar > 0) {
+		return false
+	}
+	sd := max(math.Sqrt(c.DriftVar), driftMinSigma)
+	want := -c.DopplerHz / gpsca.CarrierToCodeRatio
+	if math.Abs(c.DriftErr) < driftSigmas*sd || want == 0 {
+		return false
+	}
+	rho := c.DriftErr / want
+	return rho >= driftRatioLo && rho <= driftRatioHi
+}
+
+// gridTolHz is how far (Hz) a channel's Doppler may lie from the line
+// grid of the standing channels (see standingChannels) and be counted on
+// it: the pseudo-signals of the interference bank's sweeps lay within
+// 30 Hz of theirs after 0.15–0.25 s of tracking (their carrier loops
+// follow a correlation that is no clean carrier), a few within 50 Hz.
+const gridTolHz = 50
+
+// gridFloorDB is the margin over trackFloor, and gridSatSigmas the
+// largest drift in standard errors, of a channel on an interferer's line
+// grid that is kept (see standingChannels).
+const (
+	gridFloorDB   = 6
+	gridSatSigmas = 3
+)
+
+// standingChannels marks the channels that follow an interferer's
+// correlation rather than a satellite: those whose code stands still
+// (standingCode), and then the others on the interferer's line grid
+// that their drift and C/N0 cannot tell from it.
+// An interferer that repeats every 1/n ms correlates with the C/A codes
+// (lines every 1 kHz) only at carrier offsets f₀ + k·1 kHz, f₀ its lines'
+// offset (REFERENCES §1.3: the code's line spectrum), so all its
+// pseudo-signals share their Doppler modulo 1 kHz; near zero Doppler
+// their drift, −f_D/1540, is too small to measure in a short capture
+// (0.65 chips/s at 1 kHz against a standard error of 0.1–0.5 chips/s).
+// A channel on the grid (within gridTolHz) is marked unless its drift
+// is a satellite's, within gridSatSigmas standard errors of 0 and
+// driftSigmas from −f_D/1540 (it moves with its carrier), and its C/N0
+// stands gridFloorDB above the estimator's noise floor (trackFloor): a
+// channel whose loop slips on the interferer's correlation drifts in
+// between, and one that lost it follows nothing, its carrier-aided code
+// moving with the carrier as a satellite's does, while the interference
+// left in its prompts can read a few dB above a floor computed for
+// Gaussian noise (37 dB-Hz against 33 under the bank's sweep at J/N
+// −4 dB, measured). A satellite on the grid with |f_D| below about
+// 1 kHz, or within gridFloorDB of the floor, is then lost with the
+// interferer's copies: a few per cent of the satellites under such
+// interference (10 % of Dopplers lie within 50 Hz of the grid).
+func standingChannels(chans []ChannelState) []bool {
+	out := make([]bool, len(chans))
+	n := 0
+	for i, c := range chans {
+		if standingCode(c) {
+			out[i], n = true, n+1
+		}
+	}
+	if n == 0 {
+		return out
+	}
+	// The grid: the residue modulo 1 kHz shared by most standing
+	// channels, as their circular mean.
+	res := func(f float64) float64 { return f - 1000*math.Round(f/1000) }
+	best, bestN := 0.0, 0
+	for i, c := range chans {
+		if !out[i] {
+			continue
+		}
+		var sc, ss float64
+		k := 0
+		for j, d := range chans {
+			if out[j] && math.Abs(res(d.DopplerHz-c.DopplerHz)) <= gridTolHz {
+				s, co := math.Sincos(2 * math.Pi * d.DopplerHz / 1000)
+				sc, ss, k = sc+co, ss+s, k+1
+			}
+		}
+		if k > bestN {
+			best, bestN = math.Atan2(ss, sc)/(2*math.Pi)*1000, k
+		}
+	}
+	for i, c := range chans {
+		if out[i] || !(c.DriftVar > 0) || c.DriftEpochs < driftMinEpochs || math.Abs(res(c.DopplerHz-best)) > gridTolHz {
+			continue
+		}
+		sd := max(math.Sqrt(c.DriftVar), driftMinSigma)
+		out[i] = math.Abs(c.DriftErr+c.DopplerHz/gpsca.CarrierToCodeRatio) < driftSigmas*sd ||
+			math.Abs(c.DriftErr) > gridSatSigmas*sd || !c.CN0OK || c.CN0dBHz < trackFloor(c.Prompts)+gridFloorDB
+	}
+	return out
+}
+
 // trackFloor returns the C/N0 (dB-Hz) below which a moment estimate from
 // k prompts is indistinguishable from noise at the 10⁻³ level: without a
 // signal, S²'s estimate has standard deviation 2N²/√k (see
@@ -541,6 +709,7 @@ func (m *Meter) Result() Measurement {
 			tracked[s.PRN] = s
 		}
 	}
+	standing := standingChannels(chans)
 	var short, lost []int
 	fromPrompts := 0
 	for _, a := range m.acquired {
@@ -549,6 +718,10 @@ func (m *Meter) Result() Measurement {
 			continue
 		}
 		c := chans[ci]
+		if standing[ci] {
+			r.Standing = append(r.Standing, CodeRate{PRN: c.PRN, ErrChipsS: c.DriftErr, SigmaChipsS: math.Sqrt(c.DriftVar)})
+			continue
+		}
 		if s, ok := tracked[a.PRN]; ok && s.CN0dBHz >= trackFloor(c.Prompts) {
 			cp := gpsca.WrapChips(s.CodePhaseChips - float64(m.trStart)*gpsca.CodeRate(s.DopplerHz)/m.fs)
 			r.Satellites = append(r.Satellites, Measured{PRN: a.PRN, CN0dBHz: s.CN0dBHz, DopplerHz: s.DopplerHz,
@@ -616,7 +789,14 @@ func (m *Meter) Result() Measurement {
 	// site's when its satellites were last measured (a wideband jammer
 	// raises it by 10·log10(1 + J/N); REFERENCES §9).
 	rise := m.powerDB - m.site.powerDB
-	if len(r.Satellites) == 0 && (r.Mitigation.Interfered() || len(lost) > 0 || m.site.hasPower && rise >= lostRiseDB) {
+	if len(r.Standing) > 0 {
+		prns := make([]int, len(r.Standing))
+		for i, s := range r.Standing {
+			prns[i] = s.PRN
+		}
+		r.Notes = append(r.Notes, fmt.Sprintf("PRNs %v not reported: their code stood still in the receiver's time while their carrier showed a Doppler (code Doppler 0 against carrier Doppler/1540): the correlation of a periodic interferer, not satellites", prns))
+	}
+	if len(r.Satellites) == 0 && (r.Mitigation.Interfered() || len(lost) > 0 || len(r.Standing) > 0 || m.site.hasPower && rise >= lostRiseDB) {
 		why := "interference was present"
 		if m.site.hasPower && rise >= lostRiseDB {
 			why = fmt.Sprintf("the band's power was %.1f dB above the site's when satellites were last measured", rise)
@@ -700,10 +880,19 @@ func (m *Meter) learnSite(r Measurement) {
 	}
 	if len(r.Satellites) >= 3 {
 		f := r.ClockOffsetHz
+		lo, hi := math.Inf(-1), math.Inf(1)
+		for _, s := range r.Satellites {
+			d := s.DopplerHz
+			if m.trInv {
+				d = -d
+			}
+			lo, hi = max(lo, d-m.acq.cfg.DopplerMaxHz), min(hi, d+m.acq.cfg.DopplerMaxHz)
+		}
 		if m.trInv {
 			f = -f
 		}
 		m.site.clockKnown, m.site.clockHz, m.site.count = true, f, len(r.Satellites)
+		m.site.clockLo, m.site.clockHi, m.site.bounded = lo, hi, lo <= hi
 	}
 }
 

@@ -45,7 +45,8 @@ type Mitigator struct {
 	long, short excisor
 	shorter     excisor
 	guard       int
-	pow, sel    []float64
+	sel         []float64
+	hit         []bool    // samples over the blanking threshold
 	frames      []float64 // per-frame bin powers of the passband estimate
 	stats       MitigationStats
 	// bandLo, bandHi (Hz from the centre) bound the band whose power
@@ -53,6 +54,12 @@ type Mitigator struct {
 	// was set.
 	bandLo, bandHi float64
 	bandSet        bool
+
+	// What the last Mitigate decided, which MitigateBlock applies: the
+	// excision stages that ran and the blanking thresholds of its two
+	// passes (0: none).
+	lines, transient bool
+	blankThr         [2]float64
 }
 
 // MitigationStats says what Mitigate removed from one snapshot.
@@ -117,12 +124,14 @@ type excisor struct {
 	// Mitigator.passband): bin powers are compared with the threshold
 	// after dividing by it.
 	shape []float64
+	// invShape and pow32 are exciseBlock's 1/shape and bin powers.
+	invShape, pow32 []float32
 }
 
 func newExcisor(n int) excisor {
 	e := excisor{n: n, plan: fft.NewPlan(n), win: make([]float32, n), frame: make([]complex64, n),
 		spec: make([]complex64, n), pow: make([]float64, n), sel: make([]float64, n), carry: make([]complex64, n/2),
-		shape: make([]float64, n)}
+		shape: make([]float64, n), invShape: make([]float32, n), pow32: make([]float32, n)}
 	for i := range e.win {
 		e.win[i] = float32(0.5 - 0.5*math.Cos(2*math.Pi*float64(i)/float64(n)))
 	}
@@ -164,29 +173,68 @@ func (m *Mitigator) Mitigate(dst, x []complex64) MitigationStats {
 	dst = dst[:len(x)]
 	p0 := power(x)
 	m.stats = MitigationStats{}
+	m.blankThr = [2]float64{}
 	copy(dst, x)
 	lines, transient := m.passband(x)
+	m.lines, m.transient = lines, transient
 	// Blanking first, so that excision does not smear pulses over the
 	// frames; again after excision, for pulses hidden under a continuous
 	// interferer that only excision removes. The excision stages run only
 	// where the passband estimate saw what they remove (see passband).
-	m.blank(dst)
+	m.blankThr[0] = m.blank(dst, blankLevel(x, m), &m.stats)
 	if !lines && !transient {
 		return m.stats
 	}
 	p1 := power(dst)
 	if lines {
-		m.long.run(dst, dst)
+		m.long.run(dst, dst, false)
 	}
 	if transient {
-		m.short.run(dst, dst)
-		m.shorter.run(dst, dst)
+		m.short.run(dst, dst, false)
+		m.shorter.run(dst, dst, false)
 	}
 	if p0 > 0 {
 		m.stats.ExcisedFraction = max(0, (p1-power(dst))/p0)
 	}
-	m.blank(dst)
+	m.blankThr[1] = m.blank(dst, blankLevel(dst, m), &m.stats)
 	return m.stats
+}
+
+// MitigateBlock writes into dst (as Mitigate) the mitigated copy of a
+// later block x of the capture whose snapshot the last Mitigate saw,
+// with that snapshot's decisions: the same excision stages, its passband
+// shape, its blanking thresholds, and blanking only in the passes that
+// blanked the snapshot. The interference that mitigated tracking follows
+// is the one the snapshot showed (the Meter decides mitigated tracking
+// from it), so the passband estimate and the blanking medians are left
+// out of the per-sample work; a long frame's median bin power is taken
+// over 256 of its bins (exciseBlock). A block mitigated on its own
+// (Mitigate) would re-decide the stages from its own samples, which a
+// slow sweep or a wide one makes change from block to block
+// (TestMitigateBlock; BenchmarkPipeline_1s_10MSps/chirp for the cost).
+func (m *Mitigator) MitigateBlock(dst, x []complex64) {
+	dst = dst[:len(x)]
+	src := x // the samples as mitigated so far
+	if m.blankThr[0] > 0 {
+		copy(dst, x)
+		m.blank(dst, m.blankThr[0], nil)
+		src = dst
+	}
+	if m.lines || m.longLines(src) {
+		m.long.run(dst, src, true)
+		src = dst
+	}
+	if m.transient {
+		m.short.run(dst, src, true)
+		m.shorter.run(dst, dst, true)
+		src = dst
+	}
+	if len(src) > 0 && &src[0] != &dst[0] {
+		copy(dst, x)
+	}
+	if m.blankThr[1] > 0 {
+		m.blank(dst, m.blankThr[1], nil)
+	}
 }
 
 // Passband estimate (see passband).
@@ -392,34 +440,63 @@ func power(x []complex64) float64 {
 // x), so every sample lies in exactly two frames whose weights sum to 1.
 // Samples s … s + n/2 − 1 are final once the frame starting at s has been
 // processed, and the next frame reads only samples from s + n/2 on, so
-// the stage can work in place.
-func (e *excisor) run(y, x []complex64) {
+// the stage can work in place. With block, each frame is excised as in a
+// tracking block (exciseBlock).
+func (e *excisor) run(y, x []complex64, block bool) {
 	n, h := e.n, e.n/2
 	hold := e.carry
 	clear(hold)
+	if block {
+		for k, v := range e.shape {
+			e.invShape[k] = float32(1 / v)
+		}
+	}
+	win, frame := e.win[:n], e.frame[:n]
 	for s := -h; s < len(x); s += h {
-		for i := range n {
-			j := s + i
-			if j < 0 || j >= len(x) {
-				e.frame[i] = 0
-				continue
+		if s >= 0 && s+n <= len(x) {
+			for i, v := range x[s : s+n] {
+				w := win[i]
+				frame[i] = complex(real(v)*w, imag(v)*w)
 			}
-			e.frame[i] = x[j] * complex(e.win[i], 0)
-		}
-		e.excise()
-		for i := range h {
-			if j := s + i; j >= 0 && j < len(y) {
-				y[j] = hold[i] + e.frame[i]
+		} else {
+			for i := range n {
+				j := s + i
+				if j < 0 || j >= len(x) {
+					frame[i] = 0
+					continue
+				}
+				v, w := x[j], win[i]
+				frame[i] = complex(real(v)*w, imag(v)*w)
 			}
 		}
-		copy(hold, e.frame[h:])
+		var hit bool
+		if block {
+			hit = e.exciseBlock()
+		} else {
+			hit = e.excise()
+		}
+		// The inverse transform is unnormalized: an excised frame is
+		// scaled by 1/n on its way out.
+		sc := float32(1)
+		if hit {
+			sc = float32(1 / float64(n))
+		}
+		lo, hi := max(0, -s), min(h, len(y)-s)
+		for i := lo; i < hi; i++ {
+			v := frame[i]
+			y[s+i] = hold[i] + complex(real(v)*sc, imag(v)*sc)
+		}
+		for i, v := range frame[h:] {
+			hold[i] = complex(real(v)*sc, imag(v)*sc)
+		}
 	}
 }
 
 // excise transforms the windowed frame, zeroes the bins above
-// exciseFactor times the median bin power and transforms back (scaled by
-// 1/n) if any was zeroed; otherwise the frame is left as it is.
-func (e *excisor) excise() {
+// exciseFactor times the median bin power and transforms back
+// (unnormalized) if any was zeroed, which it reports; otherwise the
+// frame is left as it is.
+func (e *excisor) excise() bool {
 	tmp := e.spec
 	e.plan.Forward(tmp, e.frame)
 	for k, v := range tmp {
@@ -428,7 +505,7 @@ func (e *excisor) excise() {
 	copy(e.sel, e.pow)
 	thr := exciseFactor * median(e.sel)
 	if !(thr > 0) {
-		return
+		return false
 	}
 	// A hit and excisionGuard bins on each side (the Hann window's main
 	// lobe and the first sidelobes of a strong line) are removed.
@@ -444,14 +521,53 @@ func (e *excisor) excise() {
 		}
 		last = k + excisionGuard
 	}
-	if !hit {
-		return
+	if hit {
+		e.plan.Inverse(e.frame, tmp)
 	}
-	e.plan.Inverse(e.frame, tmp)
-	inv := complex(float32(1/float64(e.n)), 0)
-	for i := range e.frame {
-		e.frame[i] *= inv
+	return hit
+}
+
+// blockMedianBins is the most bins whose median a tracking block's
+// frame takes (see exciseBlock): the sample median of 256 exponential
+// bin powers is within 6 % of the frame's (standard error 1/(2f(m)√n),
+// f(m) = ½ at the median of a unit exponential; computed).
+const blockMedianBins = 256
+
+// exciseBlock is excise for a tracking block (see MitigateBlock): the
+// frame's median bin power is taken over every s-th bin, s = n/256 for
+// frames longer than 256 bins, and the bin powers in float32.
+func (e *excisor) exciseBlock() bool {
+	tmp := e.spec
+	e.plan.Forward(tmp, e.frame)
+	stride := max(1, e.n/blockMedianBins)
+	p, inv := e.pow32[:len(tmp)], e.invShape[:len(tmp)]
+	sel := e.sel[:0]
+	for k, v := range tmp {
+		p[k] = (real(v)*real(v) + imag(v)*imag(v)) * inv[k]
 	}
+	for k := 0; k < len(p); k += stride {
+		sel = append(sel, float64(p[k]))
+	}
+	thr := float32(exciseFactor * median(sel))
+	if !(thr > 0) {
+		return false
+	}
+	hit := false
+	last := -1
+	for k, v := range p {
+		if v <= thr {
+			continue
+		}
+		hit = true
+		for j := max(k-excisionGuard, last+1); j <= k+excisionGuard; j++ {
+			tmp[j&(e.n-1)] = 0
+		}
+		last = k + excisionGuard
+	}
+	if hit {
+		e.plan.Inverse(e.frame, tmp)
+	}
+	return hit
 }
 
 // median returns the median (the upper one for an even count) of v,
@@ -495,52 +611,65 @@ func selectK(v []float64, k int) float64 {
 	return v[k]
 }
 
-// blank sets to zero the samples of x (and a guard around them) whose
-// power exceeds blankFactor·σ̂², σ̂² = median|x|²/ln 2, unless more than
-// blankMaxFraction of them do.
-func (m *Mitigator) blank(x []complex64) {
-	if cap(m.pow) < len(x) {
-		m.pow = make([]float64, len(x))
-	}
-	p := m.pow[:len(x)]
-	for i, v := range x {
-		p[i] = float64(real(v)*real(v) + imag(v)*imag(v))
-	}
-	// The median from every blankStride-th sample: 12 500 of the 100 000
-	// of 10 ms at 10 MS/s estimate it within about 1 % (computed:
-	// standard error 1/(2f(m)√n) of a sample median).
+// blankLevel returns the blanking threshold blankFactor·σ̂² for x,
+// σ̂² = median|x|²/ln 2, or 0 if σ̂² is not positive. The median is taken
+// from every blankStride-th sample: 12 500 of the 100 000 of 10 ms at
+// 10 MS/s estimate it within about 1 % (computed: standard error
+// 1/(2f(m)√n) of a sample median).
+func blankLevel(x []complex64, m *Mitigator) float64 {
 	ns := (len(x) + blankStride - 1) / blankStride
 	if cap(m.sel) < ns {
 		m.sel = make([]float64, ns)
 	}
 	sel := m.sel[:ns]
 	for i := range sel {
-		sel[i] = p[i*blankStride]
+		v := x[i*blankStride]
+		sel[i] = float64(real(v)*real(v) + imag(v)*imag(v))
 	}
 	sigma2 := median(sel) / math.Ln2
 	if !(sigma2 > 0) {
-		return
+		return 0
 	}
-	thr := blankFactor * sigma2
+	return blankFactor * sigma2
+}
+
+// blank sets to zero the samples of x (and a guard around them) whose
+// power exceeds thr (see blankLevel), unless more than blankMaxFraction
+// of them do, and returns thr. What it did goes into st, if not nil.
+func (m *Mitigator) blank(x []complex64, thr float64, st *MitigationStats) float64 {
+	if !(thr > 0) {
+		return 0
+	}
 	hits := 0
-	for _, v := range p {
-		if v > thr {
+	for _, v := range x {
+		if float64(real(v)*real(v)+imag(v)*imag(v)) > thr {
 			hits++
 		}
 	}
 	if hits == 0 {
-		return
+		return 0
 	}
 	if float64(hits) > blankMaxFraction*float64(len(x)) {
-		m.stats.NotImpulsive = true
-		return
+		if st != nil {
+			st.NotImpulsive = true
+		}
+		return 0
 	}
-	m.stats.NotImpulsive = false
+	if st != nil {
+		st.NotImpulsive = false
+	}
 	// Blank each hit and the guard on both sides: mark, then zero.
+	if cap(m.hit) < len(x) {
+		m.hit = make([]bool, len(x))
+	}
+	hit := m.hit[:len(x)]
+	for i, v := range x {
+		hit[i] = float64(real(v)*real(v)+imag(v)*imag(v)) > thr
+	}
 	blanked := 0
 	last := -1 // last index blanked
-	for i, v := range p {
-		if v <= thr {
+	for i, h := range hit {
+		if !h {
 			continue
 		}
 		lo, hi := max(i-m.guard, last+1), min(i+m.guard, len(x)-1)
@@ -550,5 +679,8 @@ func (m *Mitigator) blank(x []complex64) {
 		}
 		last = max(last, hi)
 	}
-	m.stats.BlankedFraction += float64(blanked) / float64(len(x))
+	if st != nil {
+		st.BlankedFraction += float64(blanked) / float64(len(x))
+	}
+	return thr
 }

@@ -271,10 +271,48 @@ type channel struct {
 	// Code-rate regression over epochs rateFrom … rateTo − 1: least-squares
 	// sums of the code phase φ_k = corrChips + τ̂_k (chips, relative to
 	// the carrier-aided NCO) against the epoch index k (see CodeRates).
-	rn                   float64
-	rk, rphi, rkk, rkphi float64
-	rphiphi              float64
-	fdRate               float64 // Doppler estimate at the end of the regression
+	rate   lineFit
+	fdRate float64 // Doppler estimate at the end of the regression
+
+	// The same regression from epoch rateFrom to the end of the lock
+	// (see ChannelState.DriftErr): the epochs of the last lockRing are
+	// held in drift* until no loss of lock can reach back to them.
+	drift      lineFit
+	driftPhi   [lockRing]float64
+	driftStart [lockRing]int64
+	driftOK    [lockRing]bool
+}
+
+// lineFit holds the least-squares sums of a straight line y = a + b·k.
+type lineFit struct {
+	n, k, y, kk, ky, yy float64
+}
+
+func (f *lineFit) add(k, y float64) {
+	f.n++
+	f.k += k
+	f.y += y
+	f.kk += k * k
+	f.ky += k * y
+	f.yy += y * y
+}
+
+// slope returns the fitted b and its variance from the residuals
+// (ordinary least squares); ok is false with fewer than ten points.
+func (f *lineFit) slope() (b, v float64, ok bool) {
+	n := f.n
+	if n < 10 {
+		return 0, 0, false
+	}
+	skk := f.kk - f.k*f.k/n
+	sky := f.ky - f.k*f.y/n
+	syy := f.yy - f.y*f.y/n
+	if !(skk > 0) {
+		return 0, 0, false
+	}
+	b = sky / skk
+	res := max(syy-b*sky, 0) / (n - 2)
+	return b, res / skk, true
 }
 
 // Tracker tracks a set of acquired satellites over consecutive sample blocks
@@ -822,18 +860,13 @@ func (t *Tracker) dump(c *channel) {
 			c.fd += kf * math.Atan(imag(d)/real(d)) / (2 * math.Pi * T)
 		}
 	}
-	corr := 0.0
+	corr, phi, phiOK := 0.0, 0.0, false
 	if ae, al := abs(e), abs(l); ae+al > 0 {
 		tau := (1 - elSpacing) * (ae - al) / (ae + al)
 		corr = kc * tau
+		phi, phiOK = c.corrChips+tau, true
 		if c.epoch >= rateFrom && c.epoch < rateTo {
-			k, phi := float64(c.epoch), c.corrChips+tau
-			c.rn++
-			c.rk += k
-			c.rphi += phi
-			c.rkk += k * k
-			c.rkphi += k * phi
-			c.rphiphi += phi * phi
+			c.rate.add(float64(c.epoch), phi)
 			c.fdRate = c.fd
 		}
 	}
@@ -849,10 +882,28 @@ func (t *Tracker) dump(c *channel) {
 			c.fdSum += c.fd
 		}
 	}
+	if c.epoch >= rateFrom {
+		// The entry leaving the ring is epoch − lockRing: no loss of
+		// lock found from now on reaches back to it (see freezeAt).
+		i := c.epoch % lockRing
+		if c.epoch >= rateFrom+lockRing {
+			c.driftCommit(&c.drift, c.epoch-lockRing)
+		}
+		c.driftPhi[i], c.driftStart[i], c.driftOK[i] = phi, c.n0, phiOK
+	}
 	c.prev, c.havePrev = p, true
 	c.epoch++
 	c.beginEpoch(c.nP, c.sP)
 	t.setSteps(c, corr)
+}
+
+// driftCommit adds epoch j of the drift ring to f if it has a code phase
+// and began before the loss of lock, if any.
+func (c *channel) driftCommit(f *lineFit, j int) {
+	i := j % lockRing
+	if c.driftOK[i] && (c.lostAt < 0 || c.driftStart[i] < c.lostAt) {
+		f.add(float64(j), c.driftPhi[i])
+	}
 }
 
 // Result returns the current estimates, one per satellite with at least 50
@@ -909,6 +960,15 @@ type ChannelState struct {
 	// CodeRateDopplerHz the carrier Doppler at the end of that window.
 	// CodeRateVar is 0 when fewer than ten epochs were seen.
 	CodeRateErr, CodeRateVar, CodeRateDopplerHz float64
+	// DriftErr is the same line's slope fitted from epoch 5 to the
+	// last epoch in lock (DriftEpochs epochs), DriftVar its variance:
+	// the code's drift against the carrier-aided NCO over the whole
+	// track, 0 within its standard error for a satellite's signal (see
+	// Meter: a correlation that stands still in the receiver's time
+	// drifts by −f_D/1540 chips/s). DriftVar is 0 with fewer than ten
+	// epochs.
+	DriftErr, DriftVar float64
+	DriftEpochs        int
 	// CN0dBHz is the moment estimate over the prompts so far
 	// (MomentCN0.CN0dB), when CN0OK.
 	CN0dBHz float64
@@ -928,18 +988,17 @@ func (t *Tracker) Channels() []ChannelState {
 		st := ChannelState{PRN: c.prn, Epochs: c.epoch, Prompts: c.est.N(), DopplerHz: c.doppler(),
 			CodePhaseChips: gpsca.WrapChips(c.initPhase + c.corr()), CodeRateDopplerHz: c.fdRate, LostAt: c.lostAt}
 		st.CN0dBHz, st.CN0OK = c.est.CN0dB(1e-3)
-		if n := c.rn; n >= 10 {
-			skk := c.rkk - c.rk*c.rk/n
-			skp := c.rkphi - c.rk*c.rphi/n
-			spp := c.rphiphi - c.rphi*c.rphi/n
-			if skk > 0 {
-				b := skp / skk // chips per epoch
-				res := max(spp-b*skp, 0) / (n - 2)
-				// An epoch is one code period, 1 ms·(1 − f_D/L1): 1 ms
-				// within 10⁻⁵.
-				st.CodeRateErr = b * 1e3
-				st.CodeRateVar = res / skk * 1e6
-			}
+		// An epoch is one code period, 1 ms·(1 − f_D/L1): 1 ms within
+		// 10⁻⁵, so chips per epoch are 10³ chips/s.
+		if b, v, ok := c.rate.slope(); ok {
+			st.CodeRateErr, st.CodeRateVar = b*1e3, v*1e6
+		}
+		drift := c.drift
+		for j := max(rateFrom, c.epoch-lockRing); j < c.epoch; j++ {
+			c.driftCommit(&drift, j)
+		}
+		if b, v, ok := drift.slope(); ok {
+			st.DriftErr, st.DriftVar, st.DriftEpochs = b*1e3, v*1e6, int(drift.n)
 		}
 		out[i] = st
 	}
