@@ -175,7 +175,7 @@ type Summary struct {
 	ByClass         map[string]int // events by class
 	Samples         int64          // complex samples analysed
 	Signal          time.Duration  // capture time analysed
-	Busy            time.Duration  // wall-clock time of the analysis
+	Busy            time.Duration  // wall-clock time of the analysis alone (not the log's appends, nor what Done draws or writes)
 }
 
 // Run analyses every capture under o.Paths, in order (see the package
@@ -212,7 +212,6 @@ func Run(ctx context.Context, o Options) (*Summary, error) {
 	pipe.SatellitePlacement = Placement(o.Workers)
 
 	sum := &Summary{ByClass: map[string]int{}}
-	t0 := time.Now()
 	for i, f := range found {
 		if o.Progress != nil {
 			o.Progress(i, len(found), f)
@@ -224,7 +223,9 @@ func Run(ctx context.Context, o Options) (*Summary, error) {
 				opts = append(opts, detect.WithObserver(obs))
 			}
 		}
+		t0 := time.Now()
 		out, err := Analyse(ctx, pipe, f, opts...)
+		sum.Busy += time.Since(t0)
 		if err != nil {
 			return nil, err
 		}
@@ -257,7 +258,6 @@ func Run(ctx context.Context, o Options) (*Summary, error) {
 			}
 		}
 	}
-	sum.Busy = time.Since(t0)
 	if o.Baseline != "" {
 		if err := baseline.Save(o.Baseline, state.Baselines); err != nil {
 			return nil, err
