@@ -271,7 +271,7 @@ func (r *Report) pictures(sec *section, meta *captureMeta, base string, rec dete
 			PSDWidth, PSDHeight,
 			func(w io.Writer) (Layout, error) { return WritePSD(w, s, events, "PSD · "+title) }},
 		{"sk", "spectral kurtosis of " + rec.Capture,
-			"Spectral kurtosis per bin: below the lower threshold a steady signal (tone, chirp), above the upper one an intermittent one (pulses).",
+			"Spectral kurtosis per bin, its mean and its maximum over the blocks; noise alone stays between the thresholds. Where a signal is there in every frame with a steady level (a tone, a chirp faster than a frame) SK falls below the lower one; where it is there in some frames only (pulses, a slow sweep passing, a tone switching on or off inside a block) SK rises above the upper one, in the maximum first.",
 			SKWidth, SKHeight,
 			func(w io.Writer) (Layout, error) { return WriteSK(w, s, "Spectral kurtosis · "+title) }},
 		{"envelope", "power envelope of " + rec.Capture,
