@@ -129,6 +129,7 @@ type Watcher struct {
 	rescanReq chan struct{}
 	inject    chan fsEvent // tests: synthetic events
 	lose      atomic.Bool  // tests: lose the real events, as an overflow does
+	listed    func()       // tests: called between a scan's listing and its checks
 
 	// Owned by Run.
 	note    notifier
@@ -777,6 +778,9 @@ func (w *Watcher) scan(in *watchInput, dir string, prune, placed bool) {
 		w.log.Error("watcher: cannot scan folder", "input", in.Name, "dir", dir, "err", err)
 		return
 	}
+	if w.listed != nil {
+		w.listed()
+	}
 	seen := map[string]bool{}
 	now := time.Now()
 	for _, f := range found {
@@ -799,7 +803,14 @@ func (w *Watcher) scan(in *watchInput, dir string, prune, placed bool) {
 			}
 			continue
 		}
-		if f.Problem != nil && !asCandidate(f.Path, sigmf) {
+		st, stErr := os.Lstat(f.Path)
+		if f.Problem != nil && errors.Is(stErr, fs.ErrNotExist) {
+			// Gone between the listing and now (retired, moved, a
+			// recorder's rename): nothing to report; an event or the
+			// next scan sees what took its place.
+			continue
+		}
+		if f.Problem != nil && !asCandidate(f.Path, st, stErr, sigmf) {
 			// Not a capture at all (unreadable folder, not a regular
 			// file ...): hand out the problem once per state.
 			if _, ok := w.pending[key]; ok {
@@ -869,8 +880,7 @@ const maxIgnoredNoted = 1024
 // asCandidate reports whether a file Find reports with a problem is still
 // followed as a candidate: a SigMF data file whose metadata may yet come,
 // or a symbolic link (checked when it is complete).
-func asCandidate(path string, sigmf bool) bool {
-	st, err := os.Lstat(path)
+func asCandidate(path string, st fs.FileInfo, err error, sigmf bool) bool {
 	if err != nil {
 		return false
 	}

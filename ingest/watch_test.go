@@ -669,3 +669,41 @@ func (s *syncBuf) String() string {
 	defer s.mu.Unlock()
 	return s.b.String()
 }
+
+// TestWatchRetiredDuringRescan: a capture deleted while a rescan lists
+// its folder (a retention sweep, an operator's clean-up) is nothing to
+// report. A retired pair's metadata goes first, so a listing can see its
+// data file alone; once that file is gone too, handing it out as "data
+// without metadata" would quarantine a capture that was analysed and
+// retired (a race seen in the daemon's retention test, issue 17).
+func TestWatchRetiredDuringRescan(t *testing.T) {
+	t.Parallel()
+	rng := rand.New(rand.NewPCG(17, 18))
+	root := t.TempDir()
+	data := filepath.Join(root, "d", "pair.sigmf-data")
+	writeFile(t, data, ci8Bytes(rng, 16))
+	past := time.Now().Add(-72 * time.Hour)
+	os.Chtimes(data, past, past)
+	w, err := NewWatcher(WatchConfig{Notify: NotifyInotify, RescanInterval: -1,
+		Inputs: []WatchInput{{Name: "site", Root: root, Raw: testRaw, Settle: time.Hour}}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	// The start scan lists the half pair; it is deleted before the scan
+	// looks at it.
+	w.listed = func() { os.Remove(data) }
+	ctx, cancel := context.WithCancel(context.Background())
+	done := make(chan error, 1)
+	go func() { done <- w.Run(ctx) }()
+	defer func() {
+		cancel()
+		if err := <-done; err != nil {
+			t.Errorf("Run: %v", err)
+		}
+	}()
+	select {
+	case wk := <-w.Work():
+		t.Errorf("%s handed out after it was deleted (problem %v)", wk.Name, wk.Problem)
+	case <-time.After(700 * time.Millisecond):
+	}
+}
