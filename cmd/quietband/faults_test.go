@@ -579,7 +579,7 @@ func TestFaultsSameNamesTwoInputs(t *testing.T) {
 		}
 	}
 	monitortest.WaitFor(t, 30*time.Second, "8 captures recorded", func() bool { return monitortest.CountCaptures(t, s.logPath) >= 8 })
-	time.Sleep(1500 * time.Millisecond) // two rescans: any capture recorded twice would be by now
+	time.Sleep(time.Second) // two rescans: any capture recorded twice would be by now
 	p.cmd.Process.Signal(syscall.SIGTERM)
 	p.wait(t, 20*time.Second)
 	recs := monitortest.CheckLog(t, s.logPath) // no event id written twice
@@ -636,19 +636,19 @@ func TestFaultsMetadataCorrected(t *testing.T) {
 	monitortest.Drop(t, filepath.Join(s.in, "fix.sigmf-data"), monitortest.CI8(81, true))
 	monitortest.Drop(t, filepath.Join(s.in, "fix.sigmf-meta"), meta(2*monitortest.Rate))
 	monitortest.WaitFor(t, 20*time.Second, "the capture recorded", func() bool { return monitortest.CountCaptures(t, s.logPath) >= 1 })
-	time.Sleep(time.Second) // past the settle time and a rescan: the correction is a later edit
+	time.Sleep(600 * time.Millisecond) // past the settle time and a rescan: the correction is a later edit
 	// The operator corrects the rate, the way an editor saves: in place.
 	if err := os.WriteFile(filepath.Join(s.in, "fix.sigmf-meta"), meta(monitortest.Rate), 0o644); err != nil {
 		t.Fatal(err)
 	}
 	monitortest.WaitFor(t, 20*time.Second, "the capture with corrected metadata recorded", func() bool { return monitortest.CountCaptures(t, s.logPath) >= 2 })
-	time.Sleep(1500 * time.Millisecond) // a third analysis would be done by now
+	time.Sleep(time.Second) // two rescans: a third analysis would be done by now
 	p.cmd.Process.Signal(syscall.SIGTERM)
 	p.wait(t, 20*time.Second)
 	// A restart analyses nothing again.
 	p = startProcess(t, "run", "--config", s.cfgPath)
 	listenAddr(t, p)
-	time.Sleep(1500 * time.Millisecond)
+	time.Sleep(time.Second) // the start scan and a rescan
 	p.cmd.Process.Signal(syscall.SIGTERM)
 	p.wait(t, 20*time.Second)
 
