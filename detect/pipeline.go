@@ -292,7 +292,13 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 			notes = append(notes, fmt.Sprintf("in-band power %+.1f dB over the site's with the satellites' C/N0 %+.1f dB: read as a gain change of the front end, not wideband noise", pc.PowerRiseDB, pc.CN0ChangeDB))
 		}
 	}
-	prev := p.state.episodes[key]
+	// Episodes go on within an input (the State's "of each input"): two
+	// antennas' captures of one time are not one episode (issue 17, item 6).
+	epKey := key
+	if o.input != "" {
+		epKey = o.input + "\x00" + key
+	}
+	prev := p.state.episodes[epKey]
 	var stillOpen []openEpisode
 	episodes := map[*trackedEvent]string{}
 	noise := b.noise
@@ -322,7 +328,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 		e.KnownAs, e.Known = knownAs(&e, cfg.KnownEmitters, center, hasCenter)
 		res.Events = append(res.Events, e)
 	}
-	p.state.episodes[key] = stillOpen
+	p.state.episodes[epKey] = stillOpen
 
 	// C/N0 against the site's satellites: a drop raises a cn0_drop event,
 	// linked to the spectral events that explain it.
@@ -346,7 +352,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 				drop.Episode = o.id
 			}
 		}
-		p.state.episodes[key] = append(p.state.episodes[key], openEpisode{id: drop.Episode, class: ClassCN0Drop, end: drop.End.Time})
+		p.state.episodes[epKey] = append(p.state.episodes[epKey], openEpisode{id: drop.Episode, class: ClassCN0Drop, end: drop.End.Time})
 		res.Events = append(res.Events, drop)
 	}
 
@@ -366,7 +372,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 				ev.Episode = o.id
 			}
 		}
-		p.state.episodes[key] = append(p.state.episodes[key], openEpisode{id: ev.Episode, class: ClassSpoofing, end: ev.End.Time})
+		p.state.episodes[epKey] = append(p.state.episodes[epKey], openEpisode{id: ev.Episode, class: ClassSpoofing, end: ev.End.Time})
 		res.Events = append(res.Events, ev)
 	}
 

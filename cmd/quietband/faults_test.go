@@ -551,7 +551,8 @@ func TestFaultsAppendRounds(t *testing.T) {
 // in half of them. Every capture is analysed and recorded once in its own
 // input: each capture record and event says its input, and no event id is
 // shared between the inputs (before: 4 of 8 recorded, the same bytes in
-// the second input skipped, and no event said its input).
+// the second input skipped, no event said its input, and an episode begun
+// in one input went on in the other).
 func TestFaultsSameNamesTwoInputs(t *testing.T) {
 	s := newSite(t, "")
 	mast := filepath.Join(s.dir, "mast")
@@ -615,6 +616,19 @@ func TestFaultsSameNamesTwoInputs(t *testing.T) {
 	}
 	if eventsIn["roof|a.ci8"] != eventsIn["mast|a.ci8"] {
 		t.Errorf("a.ci8, the same bytes: %d events in roof, %d in mast", eventsIn["roof|a.ci8"], eventsIn["mast|a.ci8"])
+	}
+	// An episode goes on within its input: the tones of one time in the
+	// two folders are two episodes, not one.
+	inputOf := map[string]string{} // event id → input
+	for _, r := range recs {
+		if r.Kind == "event" {
+			inputOf[r.ID] = r.Input
+		}
+	}
+	for _, r := range recs {
+		if r.Kind == "event" && inputOf[r.Episode] != r.Input {
+			t.Errorf("event %s of %s in %s is in episode %s, begun in input %q", r.ID, r.Capture, r.Input, r.Episode, inputOf[r.Episode])
+		}
 	}
 	t.Logf("two inputs, same names: %d capture records, events per capture %v", len(perCapture), eventsIn)
 }

@@ -131,8 +131,9 @@ type Record struct {
 	// Capture records: how the metadata reads the samples, and the rate.
 	MetadataSHA256 string  `json:"metadata_sha256"`
 	SampleRate     float64 `json:"sample_rate_hz"`
-	// Events: the offset from the centre.
+	// Events: the offset from the centre, and the episode.
 	OffsetHz float64 `json:"offset_hz"`
+	Episode  string  `json:"episode"`
 }
 
 // ReadLog reads the event log at path (every segment). A malformed line
