@@ -61,6 +61,14 @@ type Config struct {
 	// reach at least: a finding at −f this far or more below an emitter
 	// at +f is taken for its image. Default 20 dB (REFERENCES §12.4).
 	ImageRejectionDB float64 `yaml:"image_rejection_db" json:"image_rejection_db"`
+	// ClockRangeHz is the one-sided receiver clock offset the satellite
+	// search covers on top of the ±5 kHz geometric Doppler while a site's
+	// clock offset is unknown. 0: 10 kHz (gnss.DefaultClockMaxHz, about
+	// 6 ppm at L1; a 2 ppm TCXO gives 3.2 kHz, a recorder without one
+	// more, REFERENCES §12.5); at most 45 kHz. Left out of the
+	// fingerprint's JSON when 0, so records made with the default keep
+	// their ids.
+	ClockRangeHz float64 `yaml:"clock_range_hz" json:"clock_range_hz,omitempty"`
 }
 
 // Mask is a frequency range the detectors ignore.
@@ -140,6 +148,8 @@ func (c Config) Validate() error {
 		return fmt.Errorf("image_rejection_db %g must be from 6 to 80", c.ImageRejectionDB)
 	case c.HoldBlocks < 0 || c.MinPulses < 2:
 		return fmt.Errorf("hold_blocks must be ≥ 0 and min_pulses ≥ 2")
+	case !(c.ClockRangeHz >= 0 && c.ClockRangeHz <= MaxClockRangeHz):
+		return fmt.Errorf("clock_range_hz %g must be from 0 (the default, 10 kHz) to %g", c.ClockRangeHz, float64(MaxClockRangeHz))
 	}
 	for i, m := range c.Masks {
 		if !(m.HighHz > m.LowHz) {
@@ -153,6 +163,11 @@ func (c Config) Validate() error {
 	}
 	return nil
 }
+
+// MaxClockRangeHz is the largest Config.ClockRangeHz: with the 5 kHz
+// geometric range it keeps the search within the acquisition's ±50 kHz
+// (gnss.AcqConfig).
+const MaxClockRangeHz = 45000
 
 // DefaultFFTSize is the power of two nearest to a 200 µs frame at fs,
 // within 64..65536: 1024 at 4 MS/s, 2048 at 10 MS/s, 4096 at 20 MS/s.

@@ -181,8 +181,12 @@ type CaptureRecord struct {
 	AnalysisRateHz *float64 `json:"analysis_rate_hz,omitempty"`
 	IFHz           *float64 `json:"if_hz,omitempty"`
 	LOSide         string   `json:"lo_side,omitempty"`
-	CenterHz       *float64 `json:"center_hz,omitempty"`
-	Start          *Time    `json:"start,omitempty"`
+	// Spectrum is the orientation the input's configuration set
+	// ("upright" or "inverted": the samples were conjugated before
+	// analysis); absent when it was left to the satellites (auto).
+	Spectrum string   `json:"spectrum,omitempty"`
+	CenterHz *float64 `json:"center_hz,omitempty"`
+	Start    *Time    `json:"start,omitempty"`
 	// TimeSource says where start (and so every event time) came from:
 	// "core:datetime", "settings" (a raw input's configured start) or
 	// "file modification time" (a raw file's, less its duration: a guess);

@@ -219,6 +219,9 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 	stats.GNSSSkipped = st.gnssSkipped
 	stats.ClockOffsetHz = measured.ClockOffsetHz
 	stats.SpectrumInverted = measured.SpectrumInverted
+	if c.Spectrum != ingest.OrientationAuto {
+		stats.SpectrumInverted = ptr(c.Spectrum == ingest.OrientationInverted)
+	}
 	switch {
 	case base.Loaded:
 		stats.Baseline = "loaded"
@@ -230,6 +233,12 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 	var notes []string
 	if short != "" {
 		notes = append(notes, short)
+	}
+	switch c.Spectrum {
+	case ingest.OrientationInverted:
+		notes = append(notes, "spectrum inverted by the input's configuration (spectrum: inverted): the samples were conjugated before analysis, so offsets and Dopplers are upright; the satellites did not test it")
+	case ingest.OrientationUpright:
+		notes = append(notes, "spectrum upright by the input's configuration (spectrum: upright): the satellites did not test it")
 	}
 	fe, _ := r.FrontEnd()
 	fault := frontEndFault(fe, measured.DropSample, c)
@@ -270,7 +279,9 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 		notes = append(notes, "no wideband_noise and no power over the site's: the samples are unnormalised, so their level is the converter's scaling")
 	}
 	if hasCenter {
-		inverted := stats.SpectrumInverted != nil && *stats.SpectrumInverted
+		// In the frame of the samples analysed (turned upright when the
+		// configuration said inverted).
+		inverted := measured.SpectrumInverted != nil && *measured.SpectrumInverted
 		tr.explainSatelliteLines(stats.Satellites, L1-center, inverted)
 	}
 	// A power rise the satellites did not feel is the recorder's gain
@@ -411,6 +422,9 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 	if c.IF.IFHz != 0 {
 		rec.IFHz = ptr(c.IF.IFHz)
 		rec.LOSide = c.IF.Side.String()
+	}
+	if c.Spectrum != ingest.OrientationAuto {
+		rec.Spectrum = c.Spectrum.String()
 	}
 	rec.Notes = append(append(rec.Notes, measured.Notes...), notes...)
 	if hasCenter {

@@ -54,6 +54,23 @@ type GNSSMeter struct {
 	sites  map[string]gnss.Site // what each site taught the meter
 }
 
+// NewGNSSMeter returns the GNSSMeter for the detection configuration
+// cfg: its receiver clock range (Config.ClockRangeHz).
+func NewGNSSMeter(cfg Config) *GNSSMeter {
+	return &GNSSMeter{Acq: gnss.AcqConfig{ClockMaxHz: cfg.ClockRangeHz}}
+}
+
+// ForceUpright tells the meter that the current capture's samples are
+// upright and not to be tested (call it after Start): the input's
+// configuration set the orientation, and the Reader turned an inverted
+// spectrum upright (ingest.Orientation).
+func (m *GNSSMeter) ForceUpright() {
+	if m.skip == "" && m.m != nil {
+		up := false
+		m.m.SetOrientation(&up)
+	}
+}
+
 // Start implements SatelliteMeter.
 func (m *GNSSMeter) Start(site string, fs, centerHz float64, hasCenter bool) string {
 	m.cached, m.skip, m.site = nil, "", site
@@ -383,6 +400,9 @@ func startSatellites(ctx context.Context, c *ingest.Capture, m SatelliteMeter, s
 	center, hasCenter := c.CenterHz()
 	if s.skip = m.Start(site, c.SampleRate, center, hasCenter); s.skip != "" {
 		return s
+	}
+	if f, ok := m.(interface{ ForceUpright() }); ok && c.Spectrum != ingest.OrientationAuto {
+		f.ForceUpright()
 	}
 	if where == SatellitesAuto {
 		where = SatellitesInPass

@@ -48,6 +48,10 @@ type RawSettings struct {
 	// file's modification time minus the capture duration (a recorder
 	// closes the file after its last sample).
 	Start time.Time
+	// Spectrum sets the spectrum orientation of the input's captures, raw
+	// and SigMF (see Orientation); OrientationAuto leaves it to the
+	// satellites.
+	Spectrum Orientation
 }
 
 // Segment is a stretch of a capture with one centre frequency and one
@@ -84,7 +88,11 @@ type Capture struct {
 	Decimation int
 	// IF is how a real-valued capture becomes complex baseband; zero for
 	// complex formats.
-	IF        IFConversion
+	IF IFConversion
+	// Spectrum is the orientation the input's configuration set
+	// (RawSettings.Spectrum): OrientationInverted makes the Reader
+	// conjugate every sample, so the stream analysed is upright.
+	Spectrum  Orientation
 	DataBytes int64
 	Segments  []Segment // at least one, ascending SampleStart
 	Meta      *Meta     // nil for raw files
@@ -257,6 +265,7 @@ func Open(path string, raw RawSettings) (*Capture, error) {
 	c, err := open(path, raw)
 	if err == nil {
 		c.trustTime()
+		c.Spectrum = raw.Spectrum
 	}
 	return c, err
 }
@@ -519,6 +528,7 @@ type Reader struct {
 
 	levels   Levels
 	levelsOK bool
+	conj     bool // conjugate the samples handed out (Capture.Spectrum inverted)
 	fe       *FrontEndCheck
 }
 
@@ -716,6 +726,7 @@ func (c *Capture) NewReader(blockSamples int) (*Reader, error) {
 		r = NewReader(f, c.DataPath, c.Format, blockSamples, c.Samples)
 	}
 	r.closer = f
+	r.conj = c.Spectrum == OrientationInverted
 	if c.Meta != nil && c.Meta.Global.SHA512 != "" {
 		r.sha512 = sha512.New()
 		r.want512 = strings.ToLower(c.Meta.Global.SHA512)
@@ -726,6 +737,15 @@ func (c *Capture) NewReader(blockSamples int) (*Reader, error) {
 // Next returns the next block, or io.EOF after the last. At the end it checks
 // the length against what was expected and the core:sha512, if any.
 func (r *Reader) Next() (Block, error) {
+	b, err := r.nextBlock()
+	if r.conj && err == nil {
+		conjugate(b.Samples)
+	}
+	return b, err
+}
+
+// nextBlock is Next before the orientation's conjugation.
+func (r *Reader) nextBlock() (Block, error) {
 	if r.done {
 		return Block{}, io.EOF
 	}

@@ -47,15 +47,19 @@ type runConfig struct {
 // file whose rate is not given is quarantined with that reason, one
 // without a centre is analysed with the centre unknown.
 type inputConfig struct {
-	Name       string        `yaml:"name"`
-	Path       string        `yaml:"path"`
-	Format     string        `yaml:"format"`
-	SampleRate float64       `yaml:"sample_rate"`
-	CenterHz   *float64      `yaml:"center_hz"`
-	IFHz       float64       `yaml:"if_hz"`
-	LOSide     string        `yaml:"lo_side"`
-	Pattern    string        `yaml:"pattern"`
-	Settle     time.Duration `yaml:"settle"`
+	Name       string   `yaml:"name"`
+	Path       string   `yaml:"path"`
+	Format     string   `yaml:"format"`
+	SampleRate float64  `yaml:"sample_rate"`
+	CenterHz   *float64 `yaml:"center_hz"`
+	IFHz       float64  `yaml:"if_hz"`
+	LOSide     string   `yaml:"lo_side"`
+	Pattern    string   `yaml:"pattern"`
+	// Spectrum is the orientation of the input's captures, raw and SigMF:
+	// auto (the default: decided from the satellites), upright, or
+	// inverted (I and Q swapped: conjugated before analysis).
+	Spectrum string        `yaml:"spectrum"`
+	Settle   time.Duration `yaml:"settle"`
 	// MetadataWait is how long half of a SigMF pair waits for the other
 	// half before it is recorded as quarantined (never moved away; the
 	// pair is analysed when it is whole). 0: ingest.DefaultOrphanAfter.
@@ -137,6 +141,9 @@ func loadRunConfig(path string, o runOverrides) (*runConfig, error) {
 			}
 			if o.raw.LOSide != ingest.LOSideUnknown {
 				in.LOSide = o.raw.LOSide.String()
+			}
+			if o.raw.Spectrum != ingest.OrientationAuto {
+				in.Spectrum = o.raw.Spectrum.String()
 			}
 			cfg.Inputs = append(cfg.Inputs, in)
 		}
@@ -391,6 +398,9 @@ func (in inputConfig) checkRaw() error {
 			return fmt.Errorf("pattern %q: %w", in.Pattern, err)
 		}
 	}
+	if _, err := ingest.ParseOrientation(in.Spectrum); err != nil {
+		return err
+	}
 	if f.IsReal() && in.SampleRate > 0 {
 		if err := (ingest.IFConversion{IFHz: in.IFHz, Side: side}).Check(in.SampleRate); err != nil {
 			return fmt.Errorf("format %s: %w", f, err)
@@ -420,6 +430,7 @@ func (in inputConfig) rawSettings() ingest.RawSettings {
 	if in.LOSide != "" {
 		s.LOSide, _ = ingest.ParseLOSide(in.LOSide)
 	}
+	s.Spectrum, _ = ingest.ParseOrientation(in.Spectrum)
 	return s
 }
 

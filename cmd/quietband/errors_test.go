@@ -45,6 +45,10 @@ func TestErrorsSayWhatWentWrong(t *testing.T) {
 			[]string{"no capture could be analysed: 1 quarantined"}, []string{"no interference found"}},
 		{"settle: 2 gave a YAML type error", []string{"run", "--config", unitless},
 			[]string{"2 is a duration without a unit", "2s"}, []string{"time.Duration"}},
+		{"replay --spectrum sideways", []string{"replay", "--quiet", "--spectrum", "sideways", caps},
+			[]string{"--spectrum", "sideways", "inverted"}, nil},
+		{"replay --clock-range beyond the search", []string{"replay", "--quiet", "--clock-range", "60000", caps},
+			[]string{"--clock-range", "clock_range_hz 60000", "45000"}, nil},
 		{"bench --rate 0 complained about a synthesized emitter", []string{"bench", "--rate", "0"},
 			[]string{"--rate 0", "sample rate"}, []string{"emitter"}},
 	} {

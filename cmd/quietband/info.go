@@ -44,12 +44,13 @@ func (o *optFloat) Set(s string) error {
 // rawFlags are the settings raw files need, shared by every command that
 // reads captures.
 type rawFlags struct {
-	format  *string
-	rate    *optFloat
-	center  *optFloat
-	ifHz    *optFloat
-	loSide  *string
-	pattern *string
+	format   *string
+	rate     *optFloat
+	center   *optFloat
+	ifHz     *optFloat
+	loSide   *string
+	pattern  *string
+	spectrum *string
 }
 
 func addRawFlags(fs *flag.FlagSet) rawFlags {
@@ -59,6 +60,7 @@ func addRawFlags(fs *flag.FlagSet) rawFlags {
 	fs.Var(r.center, "center", "RF centre frequency of raw files in `Hz`: the frequency at 0 Hz of the analysed stream, for real formats the RF of the IF band's centre (LO + IF on a low-side LO); no default: omitted or 0, the centre is unknown")
 	fs.Var(r.ifHz, "if", "real formats: the IF in `Hz`, the centre of the wanted band in the real signal (e.g. 3e6); the real samples are turned into complex baseband at half the rate; no default: a real file without it is refused")
 	r.loSide = fs.String("lo-side", "", "real formats: low (RF = LO + IF, spectrum upright) or high (RF = LO − IF, spectrum inverted); no default")
+	r.spectrum = fs.String("spectrum", "auto", "spectrum orientation of the captures: auto (decided from the satellites), upright, or inverted (a recorder that swaps I and Q: the samples are conjugated before analysis, so emitters' offsets and the satellites are upright from the first capture on)")
 	r.pattern = fs.String("pattern", "", "in folders, file names (a glob such as '*.bin' or 'cap_*') taken as raw captures besides those with a format ending; sidecars (.json, .txt, .sigmf-meta ...) never")
 	return r
 }
@@ -110,6 +112,11 @@ func (r rawFlags) settings() (ingest.RawSettings, error) {
 		}
 		s.LOSide = side
 	}
+	o, err := ingest.ParseOrientation(*r.spectrum)
+	if err != nil {
+		return s, fmt.Errorf("--spectrum: %w", err)
+	}
+	s.Spectrum = o
 	if *r.pattern != "" {
 		if _, err := filepath.Match(*r.pattern, ""); err != nil {
 			return s, fmt.Errorf("--pattern %q: %w", *r.pattern, err)
@@ -215,6 +222,12 @@ func describe(f ingest.Found, settings ingest.RawSettings) (string, error) {
 		line("IF", "%.6g MHz, %s-side LO at %s (%s)", c.IF.IFHz/1e6, c.IF.Side, lo, rule)
 	} else {
 		line("format", "%s (complex): %d samples at %s", c.Format, c.Samples, msps(c.SampleRate))
+	}
+	switch c.Spectrum {
+	case ingest.OrientationInverted:
+		line("spectrum", "inverted (--spectrum or the input's spectrum): I and Q swapped, the samples conjugated before analysis")
+	case ingest.OrientationUpright:
+		line("spectrum", "upright (--spectrum or the input's spectrum): not tested from the satellites")
 	}
 	if hz, ok := c.CenterHz(); ok {
 		line("centre", "%.6f MHz", hz/1e6)

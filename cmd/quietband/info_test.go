@@ -126,11 +126,12 @@ func TestRawInputConfig(t *testing.T) {
 		os.WriteFile(p, []byte("inputs:\n  - {path: "+in+input+"}\n"), 0o644)
 		return loadRunConfig(p, runOverrides{})
 	}
-	cfg, err := load(", format: ri8, sample_rate: 12e6, center_hz: 1575.42e6, if_hz: 3e6, lo_side: low, pattern: '*.bin'")
+	cfg, err := load(", format: ri8, sample_rate: 12e6, center_hz: 1575.42e6, if_hz: 3e6, lo_side: low, pattern: '*.bin', spectrum: inverted")
 	if err != nil {
 		t.Fatal(err)
 	}
-	want := ingest.RawSettings{Format: ingest.RI8, SampleRate: 12e6, CenterHz: 1575.42e6, HasCenter: true, IFHz: 3e6, LOSide: ingest.LowSide, Pattern: "*.bin"}
+	want := ingest.RawSettings{Format: ingest.RI8, SampleRate: 12e6, CenterHz: 1575.42e6, HasCenter: true, IFHz: 3e6, LOSide: ingest.LowSide, Pattern: "*.bin",
+		Spectrum: ingest.OrientationInverted}
 	if got := cfg.Inputs[0].rawSettings(); got != want {
 		t.Errorf("raw settings %+v, want %+v", got, want)
 	}
@@ -147,6 +148,7 @@ func TestRawInputConfig(t *testing.T) {
 		{", pattern: '[bin'", "pattern"},
 		{", sample_rate: -4e6", "sample_rate"},
 		{", format: cs16_le", "format"},
+		{", spectrum: swapped", "spectrum"},
 	} {
 		if _, err := load(tc.input); err == nil || !strings.Contains(err.Error(), tc.want) {
 			t.Errorf("%q: error %v, want one naming %q", tc.input, err, tc.want)

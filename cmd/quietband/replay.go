@@ -31,8 +31,10 @@ type replayOptions struct {
 	baseline string
 	progress bool
 	workers  int
-	out      io.Writer
-	errOut   io.Writer
+	// clockRange is detect.Config.ClockRangeHz (0: the default).
+	clockRange float64
+	out        io.Writer
+	errOut     io.Writer
 	// analysts' outputs (metrics/report)
 	reportDir         string
 	reportAll         bool
@@ -59,6 +61,7 @@ as quarantined, and replay goes on; the exit status is 1 if any was bad.`, errOu
 	baseline := fs.String("baseline", "", "baseline file: loaded if it exists, saved at the end")
 	quiet := fs.Bool("quiet", false, "no progress line on the terminal")
 	workers := fs.Int("workers", runtime.NumCPU(), "CPUs to analyse with: 1 measures the satellites inside the spectral pass; 2 or more on a read of their own beside it (the output does not depend on this)")
+	clockRange := fs.Float64("clock-range", 0, "one-sided receiver clock offset in `Hz` the satellite search covers, on top of the ±5 kHz of the satellites' own Doppler, until a site's offset is known (0: 10000, about 6 ppm at L1; at most 45000); widen it for a recorder without a TCXO")
 	reportDir := fs.String("report", "", "write the analyst's report into this folder: index.html with PNG pictures beside it")
 	reportAll := fs.Bool("all", false, "with --report: draw every capture, not only those with events (as report --all)")
 	fs.BoolVar(reportAll, "report-all", false, "the same as --all (the older name)")
@@ -69,8 +72,11 @@ as quarantined, and replay goes on; the exit status is 1 if any was bad.`, errOu
 	if err != nil {
 		return err
 	}
+	if err := (detect.Config{ClockRangeHz: *clockRange}).Defaults(1e6).Validate(); err != nil {
+		return fmt.Errorf("--clock-range: %w", err)
+	}
 	sum, err := replayCaptures(context.Background(), replayOptions{paths: fs.Args(), raw: settings, logPath: *logPath,
-		json: *asJSON, baseline: *baseline, progress: !*quiet && isTerminal(os.Stderr), workers: *workers, out: out, errOut: errOut,
+		json: *asJSON, baseline: *baseline, progress: !*quiet && isTerminal(os.Stderr), workers: *workers, clockRange: *clockRange, out: out, errOut: errOut,
 		reportDir: *reportDir, reportAll: *reportAll, annotate: *annotate, inPlace: *inPlace, csvPath: *csvPath})
 	if err != nil {
 		return err
@@ -140,7 +146,7 @@ func replayCaptures(ctx context.Context, o replayOptions) (*replay.Summary, erro
 	if log != nil {
 		startSeq = log.LastSeq()
 	}
-	ro := replay.Options{Paths: o.paths, Raw: o.raw, Baseline: o.baseline, Workers: o.workers, Log: log,
+	ro := replay.Options{Paths: o.paths, Raw: o.raw, Baseline: o.baseline, Workers: o.workers, ClockRangeHz: o.clockRange, Log: log,
 		Observer: outs.Observer,
 		Done: func(f ingest.Found, out replay.Outcome) error {
 			if out.Err != nil {

@@ -164,6 +164,7 @@ type Meter struct {
 	mitBuf      []complex64 // mitigated block, when tracking on mitigated samples
 
 	// Per capture.
+	force    *bool // SetOrientation
 	fill     int
 	seen     int64 // samples seen so far (end of the last block)
 	acqDone  bool
@@ -239,6 +240,7 @@ func (m *Meter) Start(fs, centerHz float64) error {
 	m.acquired, m.mitStats, m.wide, m.mitTrack = m.acquired[:0], MitigationStats{}, false, false
 	m.corr = m.corr[:0]
 	m.tr, m.trStart, m.trInv, m.decided, m.invKnown, m.restarts, m.resulted = nil, 0, false, false, false, 0, false
+	m.force = nil
 	if m.acq != nil && m.fs == fs && m.fc == centerHz {
 		return nil
 	}
@@ -323,12 +325,27 @@ const (
 	mitigatedBlanked = 0.01
 )
 
+// SetOrientation forces the spectrum orientation of the current capture
+// (call it after Start; Start forgets it): inv true or false, or nil to
+// fall back on MeterConfig.Inverted. A forced orientation is not tested
+// and not learned into the site.
+func (m *Meter) SetOrientation(inv *bool) { m.force = inv }
+
+// forced returns the orientation forced for this capture, or by the
+// configuration, or nil.
+func (m *Meter) forced() *bool {
+	if m.force != nil {
+		return m.force
+	}
+	return m.cfg.Inverted
+}
+
 // orientation returns the orientation to start tracking in: forced, or
 // the site's, or upright.
 func (m *Meter) orientation() bool {
 	switch {
-	case m.cfg.Inverted != nil:
-		return *m.cfg.Inverted
+	case m.forced() != nil:
+		return *m.forced()
 	case m.site.invKnown:
 		return m.site.inv
 	}
@@ -406,7 +423,7 @@ func (m *Meter) acquire() {
 		}
 	}
 	m.startTracker(sats, 0, inv)
-	if m.cfg.Inverted != nil {
+	if m.forced() != nil {
 		m.decided = true
 	}
 }
@@ -695,8 +712,8 @@ func (m *Meter) Result() Measurement {
 		r.Notes = append(r.Notes, r.Unmeasured)
 		return r
 	}
-	if m.cfg.Inverted != nil {
-		r.Inverted = m.cfg.Inverted
+	if m.forced() != nil {
+		r.Inverted = m.forced()
 	} else if m.invKnown {
 		v := m.trInv
 		r.Inverted = &v
@@ -870,7 +887,7 @@ func (m *Meter) Result() Measurement {
 // learnSite keeps the receiver clock offset (in the recorded frame, the
 // one acquisition searches) and the orientation for the next captures.
 func (m *Meter) learnSite(r Measurement) {
-	if r.Inverted != nil && m.cfg.Inverted == nil {
+	if r.Inverted != nil && m.forced() == nil {
 		m.site.invKnown, m.site.inv = true, *r.Inverted
 	}
 	// Three satellites at least, so that one satellite's geometric

@@ -217,7 +217,7 @@ func New(cfg Config, log *slog.Logger) (*Monitor, error) {
 func (m *Monitor) newPipeline(cfg Config) *detect.Pipeline {
 	p := detect.NewPipeline(cfg.Detect, m.state)
 	if cfg.Satellites {
-		p.GNSS = &detect.GNSSMeter{}
+		p.GNSS = detect.NewGNSSMeter(cfg.Detect)
 	}
 	return p
 }

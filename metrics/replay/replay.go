@@ -167,6 +167,9 @@ type Options struct {
 	// Workers is the number of CPUs to analyse with (Placement); the
 	// records do not depend on it.
 	Workers int
+	// ClockRangeHz is the satellite search's receiver clock range,
+	// detect.Config.ClockRangeHz (0: the default).
+	ClockRangeHz float64
 	// Log, when set, takes each capture's records, one batch a capture;
 	// a capture it already holds (Recorded) is not written again.
 	Log *eventlog.Log
@@ -224,10 +227,11 @@ func Run(ctx context.Context, o Options) (*Summary, error) {
 			return nil, err
 		}
 	}
-	pipe := detect.NewPipeline(detect.Config{}, state)
+	cfg := detect.Config{ClockRangeHz: o.ClockRangeHz}
+	pipe := detect.NewPipeline(cfg, state)
 	// One meter for every input: it keeps what it learns apart per
 	// baseline key.
-	pipe.GNSS = &detect.GNSSMeter{}
+	pipe.GNSS = detect.NewGNSSMeter(cfg)
 	pipe.SatellitePlacement = Placement(o.Workers)
 
 	sum := &Summary{ByClass: map[string]int{}}

@@ -10,8 +10,8 @@ import (
 
 // RawSettings are the settings under which the analysis read the capture
 // a record names, as the record states them: the file's format and rate,
-// the centre, the start and, for real-valued samples, the IF and LO side
-// (if_hz, lo_side). A SigMF recording's metadata gives its own; a raw
+// the centre, the start, the orientation the input set (spectrum) and,
+// for real-valued samples, the IF and LO side (if_hz, lo_side). A SigMF recording's metadata gives its own; a raw
 // file has nothing else to go by, and without the IF a real-valued one
 // would be refused (or, read at another IF, drawn as another stream).
 func RawSettings(rec detect.CaptureRecord) (ingest.RawSettings, error) {
@@ -39,6 +39,13 @@ func RawSettings(rec detect.CaptureRecord) (ingest.RawSettings, error) {
 		}
 		raw.LOSide = side
 	}
+	// The orientation the input set: the pictures show the stream the
+	// detectors saw, turned upright as they saw it.
+	o, err := ingest.ParseOrientation(rec.Spectrum)
+	if err != nil {
+		return raw, fmt.Errorf("the record's spectrum: %w", err)
+	}
+	raw.Spectrum = o
 	return raw, nil
 }
 
