@@ -35,6 +35,9 @@ type Sources struct {
 	// FolderReadable tells whether an input's watched folder exists and
 	// can be read (watched_folder_readable).
 	FolderReadable func(input string) bool
+	// EventLogDamaged counts the event log's files set aside because
+	// they failed verification (eventlog_damaged_files).
+	EventLogDamaged func() int
 }
 
 // Options configure a Set.
@@ -180,6 +183,11 @@ func New(opt Options) *Set {
 				Help:        "1 while the input's watched folder exists and can be read, else 0 (the daemon is not ready then).",
 				ConstLabels: prometheus.Labels{"input": in}}, func() float64 { return b2f(src.FolderReadable(in)) }))
 		}
+	}
+
+	// Collectors of their own files (one each), registered in this list.
+	for _, register := range []func(Sources){s.registerDamaged} {
+		register(src)
 	}
 
 	version, revision := buildVersion()

@@ -13,6 +13,7 @@ import (
 	"bytes"
 	"encoding/json"
 	"fmt"
+	"io"
 	"io/fs"
 	"math/rand/v2"
 	"net"
@@ -876,4 +877,92 @@ func TestFaultsPathTooLong(t *testing.T) {
 		t.Errorf("%d reports of a folder not watchable, want 1", c)
 	}
 	t.Logf("capture at a path of %d bytes: folder reported once as not watchable, no record for it", n)
+}
+
+// TestFaultsLogByteCorrupted (issue 17, item 8): one byte of the event
+// log edited in place while the daemon is stopped. Before: the daemon
+// refused to start ("refusing to open ... corruption"), under systemd
+// forever. Now it starts and keeps monitoring: the damaged file is set
+// aside byte for byte, the new active file starts with a break record
+// carrying the last good hash, quietband_eventlog_damaged_files is 1,
+// verify names the damaged file and line (exit 1) and says the chain
+// resumed and verifies from there, and every capture is recorded once.
+func TestFaultsLogByteCorrupted(t *testing.T) {
+	s := newSite(t, "")
+	p := startProcess(t, "run", "--config", s.cfgPath)
+	n := 0
+	drop := func(k int) {
+		for range k {
+			monitortest.Drop(t, filepath.Join(s.in, fmt.Sprintf("b%02d.ci8", n)), monitortest.CI8(uint64(700+n), n%2 == 0))
+			n++
+		}
+		monitortest.WaitFor(t, 20*time.Second, "captures recorded", func() bool { return countAll(t, s.logPath) >= n })
+	}
+	drop(4)
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	p.wait(t, 20*time.Second)
+
+	// One byte of the second line's capture name: the line still parses,
+	// the third line's prev no longer matches it.
+	b := monitortest.MustRead(t, s.logPath)
+	lines := bytes.SplitAfter(b, []byte("\n"))
+	i := bytes.Index(lines[1], []byte(`"capture":"b`))
+	if i < 0 {
+		t.Fatalf("second line has no capture name: %s", lines[1])
+	}
+	off := len(lines[0]) + i + len(`"capture":"b`)
+	b[off] ^= 0x01 // b00 → b10 or similar: one byte
+	if err := os.WriteFile(s.logPath, b, 0o640); err != nil {
+		t.Fatal(err)
+	}
+
+	p = startProcess(t, "run", "--config", s.cfgPath)
+	addr := listenAddr(t, p)
+	drop(2)
+	resp, err := (&http.Client{Timeout: 5 * time.Second}).Get("http://" + addr + "/metrics")
+	if err != nil {
+		t.Fatal(err)
+	}
+	body, _ := io.ReadAll(resp.Body)
+	resp.Body.Close()
+	if !strings.Contains(string(body), "\nquietband_eventlog_damaged_files 1\n") {
+		t.Errorf("quietband_eventlog_damaged_files is not 1:\n%s", grepLines(string(body), "eventlog"))
+	}
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	p.wait(t, 20*time.Second)
+
+	aside := eventlog.DamagedName(s.logPath, 1)
+	if got, err := os.ReadFile(aside); err != nil || !bytes.Equal(got, b) {
+		t.Errorf("damaged file not kept untouched as %s: %v", aside, err)
+	}
+	var out, errOut bytes.Buffer
+	code := runMain([]string{"verify", s.logPath}, &out, &errOut)
+	if code != 1 || !strings.Contains(out.String(), "BAD  "+aside+":3:") || !strings.Contains(out.String(), "OK   from the resumption: 4 records") {
+		t.Errorf("verify: exit %d:\n%s\nwant BAD at %s:3 and the 4 records from the break on (break, event, 2 captures) verified", code, out.String(), aside)
+	}
+	// The four captures before the damage are not analysed again; the
+	// two after it are recorded once each.
+	for k := range 4 {
+		if strings.Contains(p.out.String(), fmt.Sprintf("capture analysed\" capture=b%02d.ci8", k)) {
+			t.Errorf("b%02d.ci8 analysed again after the restart", k)
+		}
+	}
+	caps := monitortest.CaptureRecords(monitortest.ReadLog(t, s.logPath))
+	for k := 4; k < n; k++ {
+		if name := fmt.Sprintf("b%02d.ci8", k); len(caps[name]) != 1 {
+			t.Errorf("%s recorded %d times, want once", name, len(caps[name]))
+		}
+	}
+	t.Logf("one byte changed at offset %d: daemon went on; verify:\n%s", off, out.String())
+}
+
+// grepLines returns the lines of s that contain sub.
+func grepLines(s, sub string) string {
+	var out []string
+	for _, ln := range strings.Split(s, "\n") {
+		if strings.Contains(ln, sub) {
+			out = append(out, ln)
+		}
+	}
+	return strings.Join(out, "\n")
 }

@@ -140,7 +140,8 @@ func New(cfg Config, log *slog.Logger) (*Monitor, error) {
 	if err != nil {
 		return nil, err
 	}
-	l, err := eventlog.Open(cfg.LogPath, eventlog.Options{MaxBytes: cfg.LogMaxBytes, Logger: log})
+	// A damaged file is set aside and the log goes on (issue 17, item 8).
+	l, err := eventlog.Open(cfg.LogPath, eventlog.Options{MaxBytes: cfg.LogMaxBytes, Logger: log, SetAsideDamaged: true})
 	if err != nil {
 		lg.Close()
 		return nil, err
@@ -190,6 +191,7 @@ func New(cfg Config, log *slog.Logger) (*Monitor, error) {
 		WatchRescans:    func() uint64 { return m.watcher.Stats().Rescans },
 		WatchOverflows:  func() uint64 { return m.watcher.Stats().Overflows },
 		FolderReadable:  func(input string) bool { return FolderProblem(m.inputs[input].Path) == nil },
+		EventLogDamaged: func() int { d, _ := eventlog.Damaged(cfg.LogPath); return len(d) },
 	}})
 	// Restore each input's live state from its latest capture in the log
 	// (issue 18: a restart kept no alert firing and made the stale-monitor
