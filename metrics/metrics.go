@@ -38,6 +38,9 @@ type Sources struct {
 	// EventLogDamaged counts the event log's files set aside because
 	// they failed verification (eventlog_damaged_files).
 	EventLogDamaged func() int
+	// LedgerWritable tells whether the ledger's file can be written
+	// (ledger_writable); while not, the daemon runs from the event log.
+	LedgerWritable func() bool
 }
 
 // Options configure a Set.
@@ -186,7 +189,7 @@ func New(opt Options) *Set {
 	}
 
 	// Collectors of their own files (one each), registered in this list.
-	for _, register := range []func(Sources){s.registerDamaged} {
+	for _, register := range []func(Sources){s.registerDamaged, s.registerLedgerWritable} {
 		register(src)
 	}
 

@@ -966,3 +966,91 @@ func grepLines(s, sub string) string {
 	}
 	return strings.Join(out, "\n")
 }
+
+// TestFaultsStateDiskFull (issue 17, item 9): the state folder on a full
+// file system (a 512 KiB tmpfs, filled up) while the event log's has room,
+// ledger.db lost. Before: the daemon could not start ("ledger: … no space
+// left on device"), and a running one logged "saving the baseline" about
+// once a second. Now it starts and runs from the event log: the captures
+// recorded before are not analysed again, new ones are recorded once,
+// quietband_ledger_writable is 0, /readyz is 200 and lists why, and the
+// ledger and the baseline each log their failure once.
+func TestFaultsStateDiskFull(t *testing.T) {
+	s := newSite(t, "")
+	logDir := filepath.Join(s.dir, "logs")
+	s.logPath = filepath.Join(logDir, "events.jsonl")
+	os.WriteFile(s.cfgPath, append(monitortest.MustRead(t, s.cfgPath), []byte("log: {path: "+s.logPath+"}\n")...), 0o644)
+	os.MkdirAll(s.state, 0o755)
+	if err := syscall.Mount("tmpfs", s.state, "tmpfs", 0, "size=512k"); err != nil {
+		t.Skipf("cannot mount a tmpfs to fill up (needs root and CAP_SYS_ADMIN): %v", err)
+	}
+	t.Cleanup(func() { syscall.Unmount(s.state, syscall.MNT_DETACH) })
+
+	p := startProcess(t, "run", "--config", s.cfgPath)
+	n := 0
+	drop := func(k int) {
+		for range k {
+			monitortest.Drop(t, filepath.Join(s.in, fmt.Sprintf("f%02d.ci8", n)), monitortest.CI8(uint64(500+n), n == 0))
+			n++
+		}
+		monitortest.WaitFor(t, 20*time.Second, "captures recorded", func() bool { return countAll(t, s.logPath) >= n })
+	}
+	drop(3)
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	p.wait(t, 20*time.Second)
+	os.Remove(filepath.Join(s.state, "ledger.db"))
+	fillUp(t, filepath.Join(s.state, "filler"))
+
+	p = startProcess(t, "run", "--config", s.cfgPath)
+	addr := listenAddr(t, p)
+	drop(3)
+	time.Sleep(3 * time.Second) // housekeeping tries the baseline and the ledger again
+	get := func(path string) (int, string) {
+		resp, err := (&http.Client{Timeout: 5 * time.Second}).Get("http://" + addr + path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		defer resp.Body.Close()
+		b, _ := io.ReadAll(resp.Body)
+		return resp.StatusCode, string(b)
+	}
+	if code, body := get("/readyz"); code != 200 || !strings.Contains(body, "degraded") || !strings.Contains(body, "running from the event log") {
+		t.Errorf("/readyz %d %q; want 200 saying the ledger cannot be written", code, body)
+	}
+	if _, body := get("/metrics"); !strings.Contains(body, "\nquietband_ledger_writable 0\n") {
+		t.Errorf("quietband_ledger_writable is not 0:\n%s", grepLines(body, "ledger"))
+	}
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	p.wait(t, 20*time.Second)
+	out := p.out.String()
+	for k := range 3 {
+		if strings.Contains(out, fmt.Sprintf("capture analysed\" capture=f%02d.ci8", k)) {
+			t.Errorf("f%02d.ci8 analysed again after the restart", k)
+		}
+	}
+	if c := strings.Count(out, "ledger cannot be written"); c != 1 {
+		t.Errorf("%d lines saying the ledger cannot be written, want 1", c)
+	}
+	if c := strings.Count(out, "saving the baseline"); c > 1 {
+		t.Errorf("%d lines about saving the baseline, want at most 1", c)
+	}
+	monitortest.CheckOnce(t, s.logPath, n)
+	t.Logf("state disk full, ledger.db lost: started, %d captures once each, %d baseline line(s); %s", n,
+		strings.Count(out, "saving the baseline"), grepLines(out, "ledger cannot be written"))
+}
+
+// fillUp writes path until its file system is full.
+func fillUp(t *testing.T, path string) {
+	t.Helper()
+	f, err := os.Create(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	buf := make([]byte, 4096)
+	for {
+		if _, err := f.Write(buf); err != nil {
+			return
+		}
+	}
+}
