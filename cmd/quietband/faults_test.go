@@ -1054,3 +1054,78 @@ func fillUp(t *testing.T, path string) {
 		}
 	}
 }
+
+// TestFaultsLedgerDamagedWhileRunning (issue 17, item 10): ledger.db cut
+// to nothing, or overwritten in place with garbage, under a running
+// daemon. Before: the next lookup faulted on bbolt's memory map (SIGBUS,
+// the process died) or bbolt panicked. Now the daemon keeps running: the
+// file is set aside as ledger.db.bad-* and rebuilt in place from the event
+// log, every capture is recorded once, and a restart finds the ledger
+// whole.
+func TestFaultsLedgerDamagedWhileRunning(t *testing.T) {
+	for _, c := range []struct {
+		name   string
+		damage func(path string) error
+	}{
+		{"cut to nothing", func(p string) error { return os.Truncate(p, 0) }},
+		{"overwritten in place", func(p string) error {
+			st, err := os.Stat(p)
+			if err != nil {
+				return err
+			}
+			b := make([]byte, st.Size())
+			rng := rand.New(rand.NewPCG(5, 6))
+			for i := range b {
+				b[i] = byte(rng.Uint32())
+			}
+			f, err := os.OpenFile(p, os.O_WRONLY, 0)
+			if err != nil {
+				return err
+			}
+			defer f.Close()
+			_, err = f.WriteAt(b, 0)
+			return err
+		}},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			s := newSite(t, "")
+			p := startProcess(t, "run", "--config", s.cfgPath)
+			n := 0
+			drop := func(k int) {
+				for range k {
+					monitortest.Drop(t, filepath.Join(s.in, fmt.Sprintf("g%02d.ci8", n)), monitortest.CI8(uint64(600+n), n%2 == 0))
+					n++
+				}
+				monitortest.WaitFor(t, 20*time.Second, "captures recorded", func() bool { return countAll(t, s.logPath) >= n })
+			}
+			drop(4)
+			time.Sleep(1500 * time.Millisecond) // housekeeping writes the ledger
+			if err := c.damage(filepath.Join(s.state, "ledger.db")); err != nil {
+				t.Fatal(err)
+			}
+			drop(4)
+			time.Sleep(1500 * time.Millisecond)
+			if p.cmd.ProcessState != nil {
+				t.Fatalf("daemon exited: %v", p.cmd.ProcessState)
+			}
+			p.cmd.Process.Signal(syscall.SIGTERM)
+			p.wait(t, 20*time.Second)
+			out := p.out.String()
+			if !strings.Contains(out, "damaged while open") {
+				t.Errorf("no log line about the damaged ledger")
+			}
+			if aside, _ := filepath.Glob(filepath.Join(s.state, "ledger.db.bad-*")); len(aside) != 1 {
+				t.Errorf("set aside: %v, want one ledger.db.bad-*", aside)
+			}
+			p = startProcess(t, "run", "--config", s.cfgPath)
+			drop(1)
+			p.cmd.Process.Signal(syscall.SIGTERM)
+			p.wait(t, 20*time.Second)
+			if strings.Contains(p.out.String(), "set aside") {
+				t.Errorf("the rebuilt ledger was set aside again at the restart")
+			}
+			monitortest.CheckOnce(t, s.logPath, n)
+			t.Logf("%s under a running daemon: %s; %d captures once each", c.name, grepLines(out, "damaged while open"), n)
+		})
+	}
+}
