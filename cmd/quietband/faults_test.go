@@ -29,6 +29,7 @@ import (
 	"time"
 
 	"quietband/detect"
+	"quietband/ingest/synth"
 	"quietband/metrics/eventlog"
 	"quietband/metrics/monitor/monitortest"
 )
@@ -1127,5 +1128,101 @@ func TestFaultsLedgerDamagedWhileRunning(t *testing.T) {
 			monitortest.CheckOnce(t, s.logPath, n)
 			t.Logf("%s under a running daemon: %s; %d captures once each", c.name, grepLines(out, "damaged while open"), n)
 		})
+	}
+}
+
+// TestFaultsShortCaptures (issue 17, item 14): a clean capture of the
+// invented Kestrel Quay sky (synth's "clean" scenario: eight satellites,
+// 4 MS/s ci16) cut to 1, 100, 2 000, 20 000, 40 000 and 100 000 samples,
+// after two whole ones taught the site's C/N0 baseline. Before the
+// detector side's fix: cn0_drop "9.6 dB below baseline", all PRNs lost,
+// satellites [] and no note. What was not measured is not a drop: no
+// cn0_drop for any of them, and each record that has no C/N0 measurement
+// says why in a note.
+func TestFaultsShortCaptures(t *testing.T) {
+	gen := t.TempDir()
+	sc, err := synth.Builtin("clean")
+	if err != nil {
+		t.Fatal(err)
+	}
+	sc.Captures = sc.Captures[:3]
+	if _, err := synth.Write(&sc, gen); err != nil {
+		t.Fatal(err)
+	}
+	s := newSite(t, "satellites: true\n")
+	p := startProcess(t, "run", "--config", s.cfgPath)
+	dropPair := func(name string, meta, data []byte) {
+		monitortest.Drop(t, filepath.Join(s.in, name+".sigmf-meta"), meta)
+		monitortest.Drop(t, filepath.Join(s.in, name+".sigmf-data"), data)
+	}
+	for _, c := range sc.Captures[:2] {
+		base := filepath.Join(gen, c.Name)
+		dropPair(c.Name, monitortest.MustRead(t, base+".sigmf-meta"), monitortest.MustRead(t, base+".sigmf-data"))
+	}
+	monitortest.WaitFor(t, 60*time.Second, "the whole captures recorded", func() bool { return countAll(t, s.logPath) >= 2 })
+	src := filepath.Join(gen, sc.Captures[2].Name)
+	meta, data := monitortest.MustRead(t, src+".sigmf-meta"), monitortest.MustRead(t, src+".sigmf-data")
+	// A recorder's file cut short: no checksum of the whole to hold it to.
+	var m map[string]any
+	if err := json.Unmarshal(meta, &m); err != nil {
+		t.Fatal(err)
+	}
+	delete(m["global"].(map[string]any), "core:sha512")
+	if meta, err = json.Marshal(m); err != nil {
+		t.Fatal(err)
+	}
+	cuts := []int{1, 100, 2000, 20000, 40000, 100000}
+	for _, n := range cuts {
+		dropPair(fmt.Sprintf("cut-%06d", n), meta, data[:4*n]) // ci16: 4 bytes a complex sample
+	}
+	monitortest.WaitFor(t, 60*time.Second, "the cut captures recorded", func() bool { return countAll(t, s.logPath) >= 2+len(cuts) })
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	p.wait(t, 20*time.Second)
+
+	type rec struct {
+		Kind, Class, Capture, Status, Error string
+		Notes                        []string
+		Stats                        struct {
+			Satellites []json.RawMessage `json:"satellites"`
+		} `json:"stats"`
+	}
+	var recs []rec
+	err = eventlog.Scan(s.logPath, func(r eventlog.Record) error {
+		var x rec
+		if err := json.Unmarshal(r.Line, &x); err != nil {
+			return err
+		}
+		recs = append(recs, x)
+		return nil
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, r := range recs {
+		if !strings.HasPrefix(r.Capture, "cut-") {
+			// The whole captures teach the C/N0 baseline the cut ones
+			// would be held to: their satellites must be measured.
+			if r.Kind == eventlog.KindCapture && len(r.Stats.Satellites) < 4 {
+				t.Errorf("%s: %d satellites measured in a whole clean capture, want the sky's 8 (at least 4)", r.Capture, len(r.Stats.Satellites))
+			}
+			continue
+		}
+		if r.Kind == eventlog.KindEvent && r.Class == detect.ClassCN0Drop {
+			t.Errorf("%s: cn0_drop raised on a capture whose C/N0 was not measured", r.Capture)
+		}
+		if r.Kind != eventlog.KindCapture {
+			continue
+		}
+		said := ""
+		for _, n := range r.Notes {
+			if strings.Contains(n, "short") || strings.Contains(n, "satellite") || strings.Contains(n, "C/N0") {
+				said = n
+				break
+			}
+		}
+		if len(r.Stats.Satellites) == 0 && said == "" {
+			t.Errorf("%s (%s %s): no satellites and no note saying why: %q", r.Capture, r.Status, r.Error, r.Notes)
+		}
+		t.Logf("%s: %s, %d satellites, note %q", r.Capture, r.Status, len(r.Stats.Satellites), said)
 	}
 }
