@@ -1181,8 +1181,8 @@ func TestFaultsShortCaptures(t *testing.T) {
 
 	type rec struct {
 		Kind, Class, Capture, Status, Error string
-		Notes                        []string
-		Stats                        struct {
+		Notes                               []string
+		Stats                               struct {
 			Satellites []json.RawMessage `json:"satellites"`
 		} `json:"stats"`
 	}
