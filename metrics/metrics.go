@@ -95,6 +95,8 @@ type Set struct {
 	fallingBehind prometheus.Gauge
 	watcherUp     prometheus.Gauge
 
+	progress *progress // the capture in progress, per input (progress.go)
+
 	mu     sync.Mutex
 	prns   map[string]map[int]bool // PRNs exposed per input
 	lastAt time.Time               // lastCapture's value
@@ -102,7 +104,7 @@ type Set struct {
 
 // New makes a Set.
 func New(opt Options) *Set {
-	s := &Set{reg: prometheus.NewRegistry(), prns: map[string]map[int]bool{}}
+	s := &Set{reg: prometheus.NewRegistry(), prns: map[string]map[int]bool{}, progress: newProgress(opt.Inputs)}
 	gauge := func(name, help string, labels ...string) *prometheus.GaugeVec {
 		g := prometheus.NewGaugeVec(prometheus.GaugeOpts{Namespace: Namespace, Name: name, Help: help}, labels)
 		s.reg.MustRegister(g)
@@ -189,7 +191,7 @@ func New(opt Options) *Set {
 	}
 
 	// Collectors of their own files (one each), registered in this list.
-	for _, register := range []func(Sources){s.registerDamaged, s.registerLedgerWritable} {
+	for _, register := range []func(Sources){s.registerDamaged, s.registerLedgerWritable, s.registerProgress} {
 		register(src)
 	}
 

@@ -1226,3 +1226,84 @@ func TestFaultsShortCaptures(t *testing.T) {
 		t.Logf("%s: %s, %d satellites, note %q", r.Capture, r.Status, len(r.Stats.Satellites), said)
 	}
 }
+
+// TestFaultsHugeCaptureProgress (issue 17, item 16): a large capture
+// (64 MiB of ci8, 33.5 M samples at 1 MS/s; 1 GiB with QUIETBAND_LONG=1)
+// while /metrics is scraped every 20 ms. Before: nothing in the metrics
+// said a capture was being analysed (queue_depth counts the waiting ones
+// only). Now quietband_analysis_in_progress{input="roof"} is 1 with
+// quietband_analysis_progress_ratio between 0 and 1, never going back,
+// while it is analysed, and all is 0 again once it is recorded.
+func TestFaultsHugeCaptureProgress(t *testing.T) {
+	size := 64 << 20
+	if longFaults() {
+		size = 1 << 30
+	}
+	s := newSite(t, "")
+	p := startProcess(t, "run", "--config", s.cfgPath)
+	addr := listenAddr(t, p)
+	tile := monitortest.CI8(77, false)
+	big := filepath.Join(s.dir, "big.ci8.part")
+	f, err := os.Create(big)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for n := 0; n < size; n += len(tile) {
+		f.Write(tile[:min(len(tile), size-n)])
+	}
+	f.Close()
+	scrape := func() (on, ratio float64) {
+		resp, err := (&http.Client{Timeout: 5 * time.Second}).Get("http://" + addr + "/metrics")
+		if err != nil {
+			t.Fatal(err)
+		}
+		defer resp.Body.Close()
+		b, _ := io.ReadAll(resp.Body)
+		for _, ln := range strings.Split(string(b), "\n") {
+			if v, ok := strings.CutPrefix(ln, `quietband_analysis_in_progress{input="roof"} `); ok {
+				on, _ = strconv.ParseFloat(v, 64)
+			}
+			if v, ok := strings.CutPrefix(ln, `quietband_analysis_progress_ratio{input="roof"} `); ok {
+				ratio, _ = strconv.ParseFloat(v, 64)
+			}
+		}
+		return on, ratio
+	}
+	t0 := time.Now()
+	if err := os.Rename(big, filepath.Join(s.in, "big.ci8")); err != nil {
+		t.Fatal(err)
+	}
+	var seen []float64
+	last := -1.0
+	for countAll(t, s.logPath) < 1 {
+		if time.Since(t0) > 5*time.Minute {
+			t.Fatal("the large capture was not recorded within 5 minutes")
+		}
+		if on, ratio := scrape(); on == 1 {
+			if ratio < last {
+				t.Errorf("progress went back from %g to %g", last, ratio)
+			}
+			last = ratio
+			seen = append(seen, ratio)
+		}
+		time.Sleep(20 * time.Millisecond)
+	}
+	took := time.Since(t0)
+	mid := 0
+	for _, r := range seen {
+		if r > 0 && r < 1 {
+			mid++
+		}
+	}
+	if mid == 0 {
+		t.Errorf("no scrape saw the capture in progress part way (%d scrapes with it in progress: %v)", len(seen), seen)
+	}
+	time.Sleep(100 * time.Millisecond)
+	if on, ratio := scrape(); on != 0 || ratio != 0 {
+		t.Errorf("after the record: in_progress %g, ratio %g; want 0, 0", on, ratio)
+	}
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	p.wait(t, 20*time.Second)
+	t.Logf("%d MiB recorded %v after it was renamed into place; %d scrapes saw it in progress, %d part way (ratios %v)",
+		size>>20, took.Round(time.Millisecond), len(seen), mid, seen)
+}

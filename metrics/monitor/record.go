@@ -12,7 +12,6 @@ import (
 	"quietband/metrics"
 	"quietband/metrics/eventlog"
 	"quietband/metrics/ledger"
-	"quietband/metrics/replay"
 )
 
 // handle analyses one capture and records it. It returns an error only
@@ -65,7 +64,7 @@ func (m *Monitor) handle(ctx context.Context, w ingest.Found) error {
 		}
 	}
 
-	out, err := replay.Analyse(ctx, m.pipe, w)
+	out, err := m.analyse(ctx, w)
 	if err != nil {
 		m.log.Info("quietband run: capture abandoned; it is analysed again on the next start", "capture", name)
 		return err
