@@ -41,6 +41,13 @@ type Sources struct {
 	// LedgerWritable tells whether the ledger's file can be written
 	// (ledger_writable); while not, the daemon runs from the event log.
 	LedgerWritable func() bool
+	// CaptureRetries counts captures scheduled to be tried again after a
+	// transient failure (capture_retries_total).
+	CaptureRetries func() uint64
+	// EventLogOutsideChanges counts the event log's active file found
+	// moved, deleted, replaced or cut outside the daemon
+	// (eventlog_outside_changes_total).
+	EventLogOutsideChanges func() uint64
 }
 
 // Options configure a Set.
@@ -191,7 +198,8 @@ func New(opt Options) *Set {
 	}
 
 	// Collectors of their own files (one each), registered in this list.
-	for _, register := range []func(Sources){s.registerDamaged, s.registerLedgerWritable, s.registerProgress} {
+	for _, register := range []func(Sources){s.registerDamaged, s.registerLedgerWritable, s.registerProgress,
+		s.registerRetries, s.registerOutside} {
 		register(src)
 	}
 

@@ -15,11 +15,14 @@ import (
 // its progress, per input, as the pipeline's blocks are analysed; all 0
 // before and after. The series pass promlint (the linter of `promtool
 // check metrics`), with the other collectors of their own files
-// (eventlog_damaged_files, ledger_writable).
+// (eventlog_damaged_files, ledger_writable, capture_retries_total,
+// eventlog_outside_changes_total).
 func TestAnalysisProgress(t *testing.T) {
 	s := New(Options{Inputs: []string{"roof", "mast"}, Sources: Sources{
-		EventLogDamaged: func() int { return 1 },
-		LedgerWritable:  func() bool { return false },
+		EventLogDamaged:        func() int { return 1 },
+		LedgerWritable:         func() bool { return false },
+		CaptureRetries:         func() uint64 { return 2 },
+		EventLogOutsideChanges: func() uint64 { return 1 },
 	}})
 	expose := func() string {
 		var b strings.Builder

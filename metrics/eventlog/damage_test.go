@@ -154,3 +154,24 @@ func editLine(t *testing.T, path string, n int, edit func([]byte)) {
 	edit(ls[n-1])
 	writeFile(t, path, joinLines(ls))
 }
+
+// TestOutsideChangesCounted (issue 17, item 5's metric): each change of
+// the active file outside the Log that Reattach takes up is counted once;
+// a Reattach that finds the file as the Log left it counts nothing.
+func TestOutsideChangesCounted(t *testing.T) {
+	path := tempLog(t)
+	l := openLog(t, path, Options{})
+	fill(t, l, 3)
+	if _, err := l.Reattach(); err != nil || l.OutsideChanges() != 0 {
+		t.Fatalf("unchanged file: %v, %d changes counted", err, l.OutsideChanges())
+	}
+	os.Rename(path, path+".1")
+	if _, err := l.Reattach(); err != nil || l.OutsideChanges() != 1 {
+		t.Fatalf("moved away: %v, %d changes counted, want 1", err, l.OutsideChanges())
+	}
+	fill(t, l, 2)
+	os.Remove(path)
+	if _, err := l.Reattach(); err != nil || l.OutsideChanges() != 2 {
+		t.Fatalf("deleted: %v, %d changes counted, want 2", err, l.OutsideChanges())
+	}
+}

@@ -14,6 +14,7 @@ import (
 	"path/filepath"
 	"strconv"
 	"sync"
+	"sync/atomic"
 
 	"quietband/ingest"
 )
@@ -84,8 +85,9 @@ type Log struct {
 	recovered int64    // bytes cut by the last recovery
 	failed    error    // non-nil: the cause of the failed state
 	closed    bool
-	breaks    int         // files set aside as damaged since Open
-	lock      *writerLock // one writer per log: held from Open to Close
+	breaks    int           // files set aside as damaged since Open
+	outside   atomic.Uint64 // outside changes taken up (Reattach)
+	lock      *writerLock   // one writer per log: held from Open to Close
 }
 
 // Open opens the log whose active file is path, creating it (mode 0640)

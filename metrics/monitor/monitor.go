@@ -117,6 +117,7 @@ type Monitor struct {
 	baseFailing bool              // the last baseline save failed (logged once)
 	ledgerOK    atomic.Bool       // the ledger's file can be written
 	ledgerWhy   atomic.Value      // string: why not, while it cannot
+	retried     atomic.Uint64     // captures scheduled to be tried again (transient failures)
 }
 
 // New opens the ledger (taking its lock, so that a second daemon on the
@@ -190,13 +191,15 @@ func New(cfg Config, log *slog.Logger) (*Monitor, error) {
 		return fail(err)
 	}
 	m.set = metrics.New(metrics.Options{Inputs: names, GoCollector: cfg.GoCollector, Sources: metrics.Sources{
-		QueueDepth:      func() int { return m.watcher.Stats().Backlog },
-		EventLogLastSeq: m.elog.LastSeq,
-		WatchRescans:    func() uint64 { return m.watcher.Stats().Rescans },
-		WatchOverflows:  func() uint64 { return m.watcher.Stats().Overflows },
-		FolderReadable:  func(input string) bool { return FolderProblem(m.inputs[input].Path) == nil },
-		EventLogDamaged: func() int { d, _ := eventlog.Damaged(cfg.LogPath); return len(d) },
-		LedgerWritable:  func() bool { return m.ledgerOK.Load() },
+		QueueDepth:             func() int { return m.watcher.Stats().Backlog },
+		EventLogLastSeq:        m.elog.LastSeq,
+		WatchRescans:           func() uint64 { return m.watcher.Stats().Rescans },
+		WatchOverflows:         func() uint64 { return m.watcher.Stats().Overflows },
+		FolderReadable:         func(input string) bool { return FolderProblem(m.inputs[input].Path) == nil },
+		EventLogDamaged:        func() int { d, _ := eventlog.Damaged(cfg.LogPath); return len(d) },
+		LedgerWritable:         func() bool { return m.ledgerOK.Load() },
+		CaptureRetries:         m.retried.Load,
+		EventLogOutsideChanges: m.elog.OutsideChanges,
 	}})
 	// Restore each input's live state from its latest capture in the log
 	// (issue 18: a restart kept no alert firing and made the stale-monitor
