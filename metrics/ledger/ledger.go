@@ -995,12 +995,20 @@ func (lg *Ledger) Path() string { return lg.path }
 // and whether it read the whole log (a new or rebuilt ledger).
 func (lg *Ledger) LastSync() (applied int, fullScan bool) { return lg.applied, lg.fullScan }
 
-// Close writes what waits and closes the file.
+// Close writes what waits and closes the file. A ledger running from the
+// log (its file cannot be written) is closed as it is, with a warning.
 func (lg *Ledger) Close() error {
 	if lg == nil || lg.db == nil {
 		return nil
 	}
-	err := lg.Save()
+	var err error
+	if lg.lagging {
+		// Not an error: the log holds what the file lacks, and the next
+		// start catches it up (or runs from the log again).
+		lg.log.Warn("quietband run: ledger closed behind the event log; the next start catches it up", "file", lg.path, "ledger_seq", lg.seq, "log_seq", lg.tailSeq)
+	} else {
+		err = lg.Save()
+	}
 	if lg.db == nil {
 		return err
 	}

@@ -113,6 +113,47 @@ func TestLedgerUnwritable(t *testing.T) {
 	})
 }
 
+// TestLedgerClosedUnwritable (issue 17, item 9): a daemon stopped while
+// its ledger cannot be written stops cleanly (Close is no error: the log
+// holds what the file lacks) and the next start catches the file up.
+func TestLedgerClosedUnwritable(t *testing.T) {
+	defer func(d time.Duration) { CatchUpEvery = d }(CatchUpEvery)
+	CatchUpEvery = time.Hour
+	dir := t.TempDir()
+	logPath := filepath.Join(dir, "events.jsonl")
+	writeLog(t, logPath, 0, 500, 64<<10)
+	out := &syncBuffer{}
+	lg := openTestLedger(t, dir, logPath, out)
+	lg.db.Close()
+	ro, err := bolt.Open(lg.path, 0o640, &bolt.Options{ReadOnly: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	lg.db = ro
+	l, err := eventlog.Open(logPath, eventlog.Options{MaxBytes: 64 << 10})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i := 500; i < 600; i++ {
+		recs, err := l.AppendBatch(synthBodies(i))
+		if err != nil {
+			t.Fatal(err)
+		}
+		lg.Note(recs)
+	}
+	l.Close()
+	lg.groupWait = 0
+	lg.Save()
+	if err := lg.Close(); err != nil || !strings.Contains(out.String(), "closed behind the event log") {
+		t.Fatalf("Close while unwritable: %v; want no error and a warning", err)
+	}
+	lg = openTestLedger(t, dir, logPath, &syncBuffer{})
+	if lg.applied == 0 || lg.fullScan {
+		t.Errorf("next start applied %d records (full scan %v); want the ones the file lacked", lg.applied, lg.fullScan)
+	}
+	checkAnswers(t, lg, readModel(t, logPath))
+}
+
 // TestLedgerDamagedWhileOpen (issue 17, item 10): ledger.db cut or
 // overwritten under an open ledger. Before, bbolt's next access faulted on
 // its memory map (SIGBUS) or panicked and the daemon crashed; now the
