@@ -1022,7 +1022,9 @@ func TestFaultsStateDiskFull(t *testing.T) {
 		t.Errorf("quietband_ledger_writable is not 0:\n%s", grepLines(body, "ledger"))
 	}
 	p.cmd.Process.Signal(syscall.SIGTERM)
-	p.wait(t, 20*time.Second)
+	if code := p.wait(t, 20*time.Second); code != 0 {
+		t.Errorf("daemon stopped with status %d on a full state disk, want 0", code)
+	}
 	out := p.out.String()
 	for k := range 3 {
 		if strings.Contains(out, fmt.Sprintf("capture analysed\" capture=f%02d.ci8", k)) {
@@ -1035,7 +1037,27 @@ func TestFaultsStateDiskFull(t *testing.T) {
 	if c := strings.Count(out, "saving the baseline"); c > 1 {
 		t.Errorf("%d lines about saving the baseline, want at most 1", c)
 	}
+
+	// Space back, the daemon restarted (the ledger made from the log),
+	// then the state disk filled up under it while clean captures arrive
+	// (each teaches the baseline, whose save fails): the baseline's
+	// failure is logged once, not at every try.
+	os.Remove(filepath.Join(s.state, "filler"))
+	p = startProcess(t, "run", "--config", s.cfgPath)
+	drop(1)
+	fillUp(t, filepath.Join(s.state, "filler"))
+	drop(4)
+	time.Sleep(3 * time.Second)
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	if code := p.wait(t, 20*time.Second); code != 0 {
+		t.Errorf("daemon stopped with status %d after the state disk filled under it, want 0", code)
+	}
+	run3 := p.out.String()
+	if c := strings.Count(run3, "saving the baseline"); c > 1 {
+		t.Errorf("%d lines about saving the baseline after the disk filled under the daemon, want at most 1", c)
+	}
 	monitortest.CheckOnce(t, s.logPath, n)
+	t.Logf("filled under a running daemon: %d baseline line(s), %d ledger line(s)", strings.Count(run3, "saving the baseline"), strings.Count(run3, "ledger cannot be written"))
 	t.Logf("state disk full, ledger.db lost: started, %d captures once each, %d baseline line(s); %s", n,
 		strings.Count(out, "saving the baseline"), grepLines(out, "ledger cannot be written"))
 }
