@@ -1005,7 +1005,7 @@ func TestFaultsStateDiskFull(t *testing.T) {
 	p = startProcess(t, "run", "--config", s.cfgPath)
 	addr := listenAddr(t, p)
 	drop(3)
-	time.Sleep(3 * time.Second) // housekeeping tries the baseline and the ledger again
+	time.Sleep(2 * time.Second) // housekeeping (each second) tries the baseline and the ledger again
 	get := func(path string) (int, string) {
 		resp, err := (&http.Client{Timeout: 5 * time.Second}).Get("http://" + addr + path)
 		if err != nil {
@@ -1047,7 +1047,7 @@ func TestFaultsStateDiskFull(t *testing.T) {
 	drop(1)
 	fillUp(t, filepath.Join(s.state, "filler"))
 	drop(4)
-	time.Sleep(3 * time.Second)
+	time.Sleep(2 * time.Second)
 	p.cmd.Process.Signal(syscall.SIGTERM)
 	if code := p.wait(t, 20*time.Second); code != 0 {
 		t.Errorf("daemon stopped with status %d after the state disk filled under it, want 0", code)
@@ -1122,12 +1122,12 @@ func TestFaultsLedgerDamagedWhileRunning(t *testing.T) {
 				monitortest.WaitFor(t, 20*time.Second, "captures recorded", func() bool { return countAll(t, s.logPath) >= n })
 			}
 			drop(4)
-			time.Sleep(1500 * time.Millisecond) // housekeeping writes the ledger
+			time.Sleep(1100 * time.Millisecond) // housekeeping (each second) writes the ledger
 			if err := c.damage(filepath.Join(s.state, "ledger.db")); err != nil {
 				t.Fatal(err)
 			}
 			drop(4)
-			time.Sleep(1500 * time.Millisecond)
+			time.Sleep(1100 * time.Millisecond)
 			if p.cmd.ProcessState != nil {
 				t.Fatalf("daemon exited: %v", p.cmd.ProcessState)
 			}
