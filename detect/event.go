@@ -25,10 +25,14 @@ var Classes = []string{ClassCW, ClassSwept, ClassPulsed, ClassWidebandNoise, Cla
 // `kind: "event"` record of the event log. Field names are the log's
 // contract.
 type Event struct {
-	ID          string   `json:"id"`
-	Episode     string   `json:"episode"`
-	Class       string   `json:"class"`
-	Capture     string   `json:"capture"`
+	ID      string `json:"id"`
+	Episode string `json:"episode"`
+	Class   string `json:"class"`
+	Capture string `json:"capture"`
+	// Input is the daemon's watched folder the capture was found in, as
+	// on its capture record (issue 17, item 6: two antennas' folders may
+	// hold the same names); empty for replay's paths.
+	Input       string   `json:"input,omitempty"`
 	SampleStart int64    `json:"sample_start"`
 	SampleCount int64    `json:"sample_count"`
 	Start       Time     `json:"start"`
@@ -160,10 +164,17 @@ type CaptureRecord struct {
 	// label) the capture was found in; empty for replay's paths. With
 	// it a restarted daemon restores each input's live state from its
 	// latest capture in the log.
-	Input      string  `json:"input,omitempty"`
-	SHA256     string  `json:"sha256,omitempty"`
-	Format     string  `json:"format,omitempty"`
-	SampleRate float64 `json:"sample_rate_hz,omitempty"`
+	Input  string `json:"input,omitempty"`
+	SHA256 string `json:"sha256,omitempty"`
+	// MetadataSHA256 is a SigMF capture's ingest.Meta.ReadingSHA256: the
+	// SHA-256 of its metadata's global object and captures array, how its
+	// samples are read (annotations left out). With Input, Capture and
+	// SHA256 it is the capture's identity: corrected metadata makes a
+	// capture analysed again (issue 17, item 7). Absent for raw files and
+	// captures whose metadata could not be read.
+	MetadataSHA256 string  `json:"metadata_sha256,omitempty"`
+	Format         string  `json:"format,omitempty"`
+	SampleRate     float64 `json:"sample_rate_hz,omitempty"`
 	// AnalysisRateHz is the rate the detectors worked at when it differs
 	// from the file's (real samples at an IF, turned into complex
 	// baseband at half the rate); IFHz and LOSide say how.

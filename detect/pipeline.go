@@ -57,6 +57,15 @@ type processOptions struct {
 	observer BlockObserver
 	meter    SatelliteMeter
 	where    SatellitePlacement
+	input    string
+}
+
+// WithInput names the daemon's input (watched folder) the capture was
+// found in: it is part of the capture's identity, and so of its event ids
+// (issue 17, item 6: two antennas' folders holding the same names and
+// bytes are two captures, whose events must not share ids).
+func WithInput(name string) Option {
+	return func(o *processOptions) { o.input = name }
 }
 
 // WithObserver has obs see every block of the capture after the detectors
@@ -283,7 +292,13 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 			notes = append(notes, fmt.Sprintf("in-band power %+.1f dB over the site's with the satellites' C/N0 %+.1f dB: read as a gain change of the front end, not wideband noise", pc.PowerRiseDB, pc.CN0ChangeDB))
 		}
 	}
-	prev := p.state.episodes[key]
+	// Episodes go on within an input (the State's "of each input"): two
+	// antennas' captures of one time are not one episode (issue 17, item 6).
+	epKey := key
+	if o.input != "" {
+		epKey = o.input + "\x00" + key
+	}
+	prev := p.state.episodes[epKey]
 	var stillOpen []openEpisode
 	episodes := map[*trackedEvent]string{}
 	noise := b.noise
@@ -292,7 +307,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 	}
 	for _, ev := range tr.events {
 		e := ev.toEvent(c, name, cfg, fs, center, hasCenter, noise)
-		e.ID = eventID(sha, e.Class, e.SampleStart, e.OffsetHz, fp)
+		e.ID = eventID(sha, e.Class, e.SampleStart, e.OffsetHz, fp, o.input, readingSHA(c))
 		e.Episode = e.ID
 		if ep, ok := episodes[ev.after]; ok && ev.after != nil {
 			e.Episode = ep
@@ -313,7 +328,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 		e.KnownAs, e.Known = knownAs(&e, cfg.KnownEmitters, center, hasCenter)
 		res.Events = append(res.Events, e)
 	}
-	p.state.episodes[key] = stillOpen
+	p.state.episodes[epKey] = stillOpen
 
 	// C/N0 against the site's satellites: a drop raises a cn0_drop event,
 	// linked to the spectral events that explain it.
@@ -325,7 +340,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 		if hasCenter {
 			drop.CenterHz = ptr(center)
 		}
-		drop.ID = eventID(sha, drop.Class, 0, 0, fp)
+		drop.ID = eventID(sha, drop.Class, 0, 0, fp, o.input, readingSHA(c))
 		drop.Episode = drop.ID
 		drop.OpenAtEnd = true // measured over the whole capture
 		for i := range res.Events {
@@ -337,7 +352,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 				drop.Episode = o.id
 			}
 		}
-		p.state.episodes[key] = append(p.state.episodes[key], openEpisode{id: drop.Episode, class: ClassCN0Drop, end: drop.End.Time})
+		p.state.episodes[epKey] = append(p.state.episodes[epKey], openEpisode{id: drop.Episode, class: ClassCN0Drop, end: drop.End.Time})
 		res.Events = append(res.Events, drop)
 	}
 
@@ -349,7 +364,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 		if hasCenter {
 			ev.CenterHz = ptr(center)
 		}
-		ev.ID = eventID(sha, ev.Class, 0, 0, fp)
+		ev.ID = eventID(sha, ev.Class, 0, 0, fp, o.input, readingSHA(c))
 		ev.Episode = ev.ID
 		ev.OpenAtEnd = true // judged over the whole capture
 		for _, o := range prev {
@@ -357,7 +372,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 				ev.Episode = o.id
 			}
 		}
-		p.state.episodes[key] = append(p.state.episodes[key], openEpisode{id: ev.Episode, class: ClassSpoofing, end: ev.End.Time})
+		p.state.episodes[epKey] = append(p.state.episodes[epKey], openEpisode{id: ev.Episode, class: ClassSpoofing, end: ev.End.Time})
 		res.Events = append(res.Events, ev)
 	}
 
@@ -465,9 +480,32 @@ func learnCN0(evs []Event) bool {
 	return true
 }
 
-func eventID(sha, class string, start int64, offset float64, fp string) string {
-	h := sha256.Sum256(fmt.Appendf(nil, "%s|%s|%d|%.0f|%s", sha, class, start, offset, fp))
+// eventID is an event's id: the first 12 bytes of the SHA-256 of the
+// capture's identity (its data's SHA-256 sha, its input and its metadata's
+// ReadingSHA256 meta, issue 17 items 6 and 7), the event's class, first
+// sample and offset, and the configuration fingerprint fp. The same event
+// of the same capture gets the same id at every analysis; the same bytes
+// under another input, or read with corrected metadata, give other ids.
+// An empty input or meta adds nothing (the ids of a raw capture replayed
+// are those of before).
+func eventID(sha, class string, start int64, offset float64, fp, input, meta string) string {
+	b := fmt.Appendf(nil, "%s|%s|%d|%.0f|%s", sha, class, start, offset, fp)
+	if meta != "" {
+		b = append(append(b, "|metadata:"...), meta...)
+	}
+	if input != "" {
+		b = append(append(b, "|input:"...), input...)
+	}
+	h := sha256.Sum256(b)
 	return hex.EncodeToString(h[:12])
+}
+
+// readingSHA is c's metadata's ReadingSHA256, "" for a raw capture.
+func readingSHA(c *ingest.Capture) string {
+	if c.Meta == nil {
+		return ""
+	}
+	return c.Meta.ReadingSHA256
 }
 
 func overlaps(a0, a1, b0, b1 float64) bool { return a0 <= b1 && b0 <= a1 }

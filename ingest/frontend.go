@@ -161,21 +161,23 @@ func (a *FrontEndCheck) AddComplex(x []complex64) {
 			}
 		}
 	}
-	// The usual case, four samples a step: a sample's 64 bits without the
-	// two sign bits are 0 only for a zero sample (I and Q ±0), and one
-	// test finds whether any of the four is.
+	// The usual case, eight samples a step: a sample's 64 bits without
+	// the two sign bits are 0 only for a zero sample (I and Q ±0); such a
+	// word z is below 2⁶³, so z − 1 has its top bit set exactly when z is
+	// 0, and one test of the OR of the eight finds whether any is.
 	u := wordsOf(x)
-	for ; i+3 < len(u); i += 4 {
-		z0, z1, z2, z3 := u[i]&noSigns, u[i+1]&noSigns, u[i+2]&noSigns, u[i+3]&noSigns
-		if min(z0, z1, z2, z3) != 0 {
+	for ; i+7 < len(u); i += 8 {
+		w := u[i : i+8 : i+8]
+		if ((w[0]&noSigns-1)|(w[1]&noSigns-1)|(w[2]&noSigns-1)|(w[3]&noSigns-1)|
+			(w[4]&noSigns-1)|(w[5]&noSigns-1)|(w[6]&noSigns-1)|(w[7]&noSigns-1))>>63 == 0 {
 			if run != 0 {
 				a.endRun(a.n+int64(i), run, minGap)
 				run = 0
 			}
 			continue
 		}
-		for k, z := range [4]uint64{z0, z1, z2, z3} {
-			if z == 0 {
+		for k, v := range w {
+			if v&noSigns == 0 {
 				run++
 			} else if run != 0 {
 				a.endRun(a.n+int64(i+k), run, minGap)

@@ -70,6 +70,10 @@ func TestFrontEndFaults(t *testing.T) {
 		{"gaps", CI16LE, zeroAt(noise(3, 20000, 0.1), [2]int{1000, 1100}, [2]int{5000, 5064}, [2]int{7000, 7063}, [2]int{19950, 20000}),
 			FaultGap, []string{"2 run(s) of at least 64 exact zeros", "164 samples in all", "samples 1000–1099"},
 			[]Gap{{1000, 100}, {5000, 64}}, 2},
+		// Runs that start and end off the eight-sample step of the scan.
+		{"gaps off the step", CI16LE, zeroAt(noise(9, 20000, 0.1), [2]int{1003, 1070}, [2]int{5001, 5064}),
+			FaultGap, []string{"1 run(s) of at least 64 exact zeros", "67 samples in all", "samples 1003–1069"},
+			[]Gap{{1003, 67}}, 1},
 		{"gap at the end", CI16LE, zeroAt(noise(4, 10000, 0.1), [2]int{9000, 10000}), FaultGap,
 			[]string{"1 run(s)", "9000–9999"}, []Gap{{9000, 1000}}, 1},
 		{"gap at the start", CF32LE, zeroAt(noise(5, 10000, 0.1), [2]int{0, 70}), FaultGap,

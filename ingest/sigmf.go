@@ -2,6 +2,8 @@ package ingest
 
 import (
 	"bytes"
+	"crypto/sha256"
+	"encoding/hex"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -37,6 +39,10 @@ type Meta struct {
 	Global      Global
 	Captures    []CaptureSegment
 	Annotations []Annotation
+	// ReadingSHA256 is the SHA-256 of how the samples are read (the
+	// global object and the captures array; see readingSHA256), set by
+	// ParseMeta.
+	ReadingSHA256 string
 }
 
 // Global is the SigMF "global" object.
@@ -79,6 +85,29 @@ type Annotation struct {
 	Extra         map[string]json.RawMessage
 }
 
+// readingSHA256 is the lowercase hex SHA-256 (FIPS 180-4) of the global
+// object and the captures array as JSON without insignificant whitespace
+// (RFC 8259, section 2; json.Compact), joined by a newline: what says how
+// the samples are read, and so what a corrected metadata file changes
+// (issue 17, item 7). The annotations are left out (they say what was
+// found, and an annotated copy of the file reads the same samples), as is
+// the layout of the file (a rewrite with other indentation changes
+// nothing).
+func readingSHA256(global, captures json.RawMessage) string {
+	var b bytes.Buffer
+	if json.Compact(&b, global) != nil {
+		b.Reset()
+		b.Write(global)
+	}
+	b.WriteByte('\n')
+	if n := b.Len(); json.Compact(&b, captures) != nil {
+		b.Truncate(n)
+		b.Write(captures)
+	}
+	sum := sha256.Sum256(b.Bytes())
+	return hex.EncodeToString(sum[:])
+}
+
 // versionPattern is the core:version format of the SigMF schema (X.Y.Z).
 var versionPattern = regexp.MustCompile(`^1\.\d+\.\d+$`)
 
@@ -105,6 +134,7 @@ func ParseMeta(r io.Reader) (*Meta, error) {
 	if !ok {
 		return nil, errors.New(`missing the "global" object`)
 	}
+	m.ReadingSHA256 = readingSHA256(g, top["captures"])
 	if err := m.Global.decode(g); err != nil {
 		return nil, err
 	}

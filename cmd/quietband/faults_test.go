@@ -15,6 +15,7 @@ import (
 	"fmt"
 	"io"
 	"io/fs"
+	"math"
 	"math/rand/v2"
 	"net"
 	"net/http"
@@ -545,6 +546,170 @@ func TestFaultsAppendRounds(t *testing.T) {
 		t.Fatalf("after the capture grew: %+v; want a second record whose note names the first's SHA-256", rs)
 	}
 	t.Logf("grown: %d → %d samples, note %q", rs[0].Samples, rs[1].Samples, rs[1].Notes[len(rs[1].Notes)-1])
+}
+
+// TestFaultsSameNamesTwoInputs (issue 17, item 6): two inputs (two
+// antennas' folders) receive captures with the same names, the same bytes
+// in half of them. Every capture is analysed and recorded once in its own
+// input: each capture record and event says its input, and no event id is
+// shared between the inputs (before: 4 of 8 recorded, the same bytes in
+// the second input skipped, no event said its input, and an episode begun
+// in one input went on in the other).
+func TestFaultsSameNamesTwoInputs(t *testing.T) {
+	s := newSite(t, "")
+	mast := filepath.Join(s.dir, "mast")
+	os.MkdirAll(mast, 0o755)
+	cfg := bytes.Replace(monitortest.MustRead(t, s.cfgPath), []byte("state_dir:"),
+		fmt.Appendf(nil, "  - name: mast\n    path: %s\n    format: ci8\n    sample_rate: %g\n    settle: 150ms\nstate_dir:", mast, monitortest.Rate), 1)
+	os.WriteFile(s.cfgPath, cfg, 0o644)
+	p := startProcess(t, "run", "--config", s.cfgPath)
+	listenAddr(t, p)
+	// a and b: the same bytes in both folders; c and d: the same names,
+	// other bytes. a and c hold the tone.
+	type drop struct {
+		name string
+		seed uint64
+		tone bool
+	}
+	inputs := map[string][]drop{
+		"roof": {{"a.ci8", 61, true}, {"b.ci8", 62, false}, {"sub/c.ci8", 63, true}, {"sub/d.ci8", 64, false}},
+		"mast": {{"a.ci8", 61, true}, {"b.ci8", 62, false}, {"sub/c.ci8", 73, true}, {"sub/d.ci8", 74, false}},
+	}
+	dirs := map[string]string{"roof": s.in, "mast": mast}
+	for _, in := range []string{"roof", "mast"} {
+		for _, d := range inputs[in] {
+			monitortest.Drop(t, filepath.Join(dirs[in], filepath.FromSlash(d.name)), monitortest.CI8(d.seed, d.tone))
+		}
+	}
+	monitortest.WaitFor(t, 30*time.Second, "8 captures recorded", func() bool { return monitortest.CountCaptures(t, s.logPath) >= 8 })
+	time.Sleep(time.Second) // two rescans: any capture recorded twice would be by now
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	p.wait(t, 20*time.Second)
+	recs := monitortest.CheckLog(t, s.logPath) // no event id written twice
+	perCapture := map[string]int{}             // input|name → records
+	eventsIn := map[string]int{}               // input|name → events
+	for _, r := range recs {
+		key := r.Input + "|" + r.Capture
+		switch {
+		case r.Input == "":
+			t.Errorf("%s record of %s says no input", r.Kind, r.Capture)
+		case r.Kind == "capture":
+			perCapture[key]++
+			if r.Status != detect.StatusOK {
+				t.Errorf("%s: %+v, want ok", key, r)
+			}
+		case r.Kind == "event":
+			eventsIn[key]++
+		}
+	}
+	for in, drops := range inputs {
+		for _, d := range drops {
+			key := in + "|" + d.name
+			if perCapture[key] != 1 {
+				t.Errorf("%s: %d capture records, want 1", key, perCapture[key])
+			}
+			if d.tone != (eventsIn[key] > 0) {
+				t.Errorf("%s: %d events (tone %v)", key, eventsIn[key], d.tone)
+			}
+		}
+	}
+	if len(perCapture) != 8 {
+		t.Errorf("%d captures recorded (%v), want 8", len(perCapture), perCapture)
+	}
+	if eventsIn["roof|a.ci8"] != eventsIn["mast|a.ci8"] {
+		t.Errorf("a.ci8, the same bytes: %d events in roof, %d in mast", eventsIn["roof|a.ci8"], eventsIn["mast|a.ci8"])
+	}
+	// An episode goes on within its input: the tones of one time in the
+	// two folders are two episodes, not one.
+	inputOf := map[string]string{} // event id → input
+	for _, r := range recs {
+		if r.Kind == "event" {
+			inputOf[r.ID] = r.Input
+		}
+	}
+	for _, r := range recs {
+		if r.Kind == "event" && inputOf[r.Episode] != r.Input {
+			t.Errorf("event %s of %s in %s is in episode %s, begun in input %q", r.ID, r.Capture, r.Input, r.Episode, inputOf[r.Episode])
+		}
+	}
+	t.Logf("two inputs, same names: %d capture records, events per capture %v", len(perCapture), eventsIn)
+}
+
+// TestFaultsMetadataCorrected (issue 17, item 7): a SigMF capture analysed
+// with a wrong core:sample_rate (2 MS/s for a 1 MS/s recording: its tone
+// at +187.5 kHz read as +375 kHz) whose metadata is then corrected is
+// analysed again: its new record has the corrected rate, the tone where it
+// is, its own events and a note naming the record it replaces; nothing is
+// analysed a third time, not after a restart either (before: the
+// correction was ignored, the record kept the wrong rate and its events).
+func TestFaultsMetadataCorrected(t *testing.T) {
+	s := newSite(t, "")
+	meta := func(rate float64) []byte {
+		return fmt.Appendf(nil, `{"global":{"core:datatype":"ci8","core:sample_rate":%g,"core:version":"1.2.6"},"captures":[{"core:sample_start":0}],"annotations":[]}`, rate)
+	}
+	p := startProcess(t, "run", "--config", s.cfgPath)
+	listenAddr(t, p)
+	monitortest.Drop(t, filepath.Join(s.in, "fix.sigmf-data"), monitortest.CI8(81, true))
+	monitortest.Drop(t, filepath.Join(s.in, "fix.sigmf-meta"), meta(2*monitortest.Rate))
+	monitortest.WaitFor(t, 20*time.Second, "the capture recorded", func() bool { return monitortest.CountCaptures(t, s.logPath) >= 1 })
+	time.Sleep(600 * time.Millisecond) // past the settle time and a rescan: the correction is a later edit
+	// The operator corrects the rate, the way an editor saves: in place.
+	if err := os.WriteFile(filepath.Join(s.in, "fix.sigmf-meta"), meta(monitortest.Rate), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	monitortest.WaitFor(t, 20*time.Second, "the capture with corrected metadata recorded", func() bool { return monitortest.CountCaptures(t, s.logPath) >= 2 })
+	time.Sleep(time.Second) // two rescans: a third analysis would be done by now
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	p.wait(t, 20*time.Second)
+	// A restart analyses nothing again.
+	p = startProcess(t, "run", "--config", s.cfgPath)
+	listenAddr(t, p)
+	time.Sleep(time.Second) // the start scan and a rescan
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	p.wait(t, 20*time.Second)
+
+	recs := monitortest.CheckLog(t, s.logPath) // no event id written twice
+	rs := monitortest.CaptureRecords(recs)["fix.sigmf-meta"]
+	if len(rs) != 2 {
+		t.Fatalf("capture records %+v; want two: the wrong rate's, then the corrected one's", rs)
+	}
+	wrong, fixed := rs[0], rs[1]
+	if wrong.SampleRate != 2*monitortest.Rate || fixed.SampleRate != monitortest.Rate {
+		t.Errorf("sample rates %g then %g, want %g then %g", wrong.SampleRate, fixed.SampleRate, 2*monitortest.Rate, monitortest.Rate)
+	}
+	if wrong.SHA256 != fixed.SHA256 || wrong.MetadataSHA256 == "" || fixed.MetadataSHA256 == wrong.MetadataSHA256 {
+		t.Errorf("data SHA-256 %.12s… → %.12s…, metadata %.12s… → %.12s…; want the same data, other metadata",
+			wrong.SHA256, fixed.SHA256, wrong.MetadataSHA256, fixed.MetadataSHA256)
+	}
+	if note := strings.Join(fixed.Notes, " "); !strings.Contains(note, "replaces the earlier record of this capture (metadata SHA-256 "+wrong.MetadataSHA256) {
+		t.Errorf("corrected record's notes %q do not name the record it replaces", fixed.Notes)
+	}
+	// Each record's events are in the log, after the previous record: the
+	// tone at +375 kHz with the wrong rate, at +187.5 kHz (ToneHz) with the
+	// corrected one.
+	var offsets [2][]float64
+	k := 0
+	for _, r := range recs {
+		switch r.Kind {
+		case "event":
+			offsets[k] = append(offsets[k], r.OffsetHz)
+		case "capture":
+			k++
+		}
+	}
+	near := func(got []float64, want float64) bool {
+		for _, f := range got {
+			if math.Abs(f-want) < 5e3 {
+				return true
+			}
+		}
+		return false
+	}
+	if len(offsets[0]) != wrong.Events || len(offsets[1]) != fixed.Events || !near(offsets[0], 2*monitortest.ToneHz) || !near(offsets[1], monitortest.ToneHz) {
+		t.Errorf("events at %v Hz (record says %d) then %v Hz (record says %d); want the tone at %g Hz, then at %g Hz",
+			offsets[0], wrong.Events, offsets[1], fixed.Events, 2*monitortest.ToneHz, monitortest.ToneHz)
+	}
+	t.Logf("corrected metadata: %g → %g S/s, events %v → %v Hz, note %q", wrong.SampleRate, fixed.SampleRate, offsets[0], offsets[1], fixed.Notes[len(fixed.Notes)-1])
 }
 
 // TestFaultsWebConfigEmptied (issue 17, item 11): the basic-auth web

@@ -36,13 +36,14 @@ metrics, /healthz, /readyz and /api/events.
 A capture is complete when it was renamed into place, closed after writing
 and then left unchanged for the input's settle time (at most 2 s: a recorder
 may append in several rounds), or left unchanged for the settle time; a SigMF
-pair when both files
-are (the metadata last). Captures already recorded in the event log are not
-analysed again; after a crash, those without a capture record are. A capture
-that cannot be read is recorded as quarantined with the reason. What is done
-is kept in state_dir/ledger.db, derived from the event log (caught up from it,
-or rebuilt from it, at start); it also locks the state folder against a
-second daemon.
+pair when both files are (the metadata last). A capture is its input and its
+name (two inputs may hold the same names): one already recorded in the event
+log is not analysed again unless its data or its SigMF metadata changed since,
+when its new record replaces the earlier one; after a crash, those without a
+capture record are analysed. A capture that cannot be read is recorded as
+quarantined with the reason. What is done is kept in state_dir/ledger.db,
+derived from the event log (caught up from it, or rebuilt from it, at start);
+it also locks the state folder against a second daemon.
 
 Settings come from --config (YAML, see deploy/config.example.yaml); the flags
 below override it. SIGHUP reopens the event log and reloads the log level and

@@ -251,19 +251,26 @@ type Acquirer struct {
 	halfAfter   []int
 	screened    []bool
 	gammaScreen float64
-	// Per search (see AcquireAround): active[d] marks the Doppler rows of
-	// the window searched, screenNow[d] the half-bin rows screened in it.
-	active, screenNow []bool
-	zPrev, zCur       []complex64 // z_k of two adjacent anchor rows, nBlock·nLag each
+	// Per search (see AcquireAround): window[d] marks the Doppler rows of
+	// the window asked for, active[d] those searched for the current batch
+	// of PRNs, screenNow[d] the half-bin rows screened in it. batch is the
+	// number of PRNs per batch of Acquire (acqBatch; tests set len(prns):
+	// one batch).
+	window, active, screenNow []bool
+	batch                     int
+	kept                      []Acquired  // scratch of the final check
+	zPrev, zCur               []complex64 // z_k of two adjacent anchor rows, nBlock·nLag each
 
 	plan       transformer // forward, nGrid points
 	lagPlan    transformer // inverse, nLag points
 	prns       []prnState
-	grid       []complex64 // binned, L1-centred snapshot, nBlock·nGrid
-	block      []complex64 // one wiped block, nGrid
-	spectra    []complex64 // centred block spectra of one base, nBlock·specLen
-	specLen    int         // nLag + 2·pad
-	specBase   int         // base index held in spectra, −1 if none
+	grid       []complex64   // binned, L1-centred snapshot, nBlock·nGrid
+	block      []complex64   // one wiped block, nGrid
+	spectra    []complex64   // centred block spectra of one base, nBlock·specLen
+	specLen    int           // nLag + 2·pad
+	specBase   int           // base index held in spectra, −1 if none
+	specs      [][]complex64 // the spectra of each base, computed once per grid
+	specOK     []bool        // specs[b] holds base b of the current grid
 	work       []complex64
 	prod       []complex64 // Y·R* product, input of the inverse FFT
 	zRow       []complex64 // z_k of the row being searched, nBlock·nLag
@@ -353,6 +360,8 @@ func NewAcquirer(cfg AcqConfig, fs, centerHz float64) (*Acquirer, error) {
 	a.base0 = slices.IndexFunc(a.bases, func(v float64) bool { return v == 0 })
 	a.screened = make([]bool, len(a.dops))
 	a.active = make([]bool, len(a.dops))
+	a.window = make([]bool, len(a.dops))
+	a.batch = acqBatch
 	a.screenNow = make([]bool, len(a.dops))
 	for d := range a.dops {
 		if a.dopBase[d] == a.base0 {
@@ -379,7 +388,12 @@ func NewAcquirer(cfg AcqConfig, fs, centerHz float64) (*Acquirer, error) {
 	a.specLen = a.nLag + 2*a.pad
 	a.grid = make([]complex64, a.nBlock*a.nGrid)
 	a.block = make([]complex64, a.nGrid)
-	a.spectra = make([]complex64, a.nBlock*a.specLen)
+	a.specs = make([][]complex64, len(a.bases))
+	for b := range a.specs {
+		a.specs[b] = make([]complex64, a.nBlock*a.specLen)
+	}
+	a.specOK = make([]bool, len(a.bases))
+	a.spectra = a.specs[0]
 	a.work = make([]complex64, a.nLag)
 	a.prod = make([]complex64, a.nLag)
 	a.zRow = make([]complex64, a.nBlock*a.nLag)
@@ -529,8 +543,23 @@ func DetectionThreshold(k int, pfaCell float64) float64 {
 //     Δf = arg Σ P_{m+1}·conj(P_m) / (2π·1 ms), which is unambiguous for
 //     |Δf| < 500 Hz (half the bin spacing is 250 Hz); a data-bit
 //     transition flips one product of the K·T − 1 and is outvoted.
+//  7. Batches, while the receiver clock is unknown (the ±(DopplerMaxHz +
+//     ClockMaxHz) search): the PRNs are searched eight at a time
+//     (acqBatch); once some are detected, the next batches search only
+//     the Dopplers a common receiver clock and geometric Dopplers within
+//     ±DopplerMaxHz allow (boundWindow), and the search is done again
+//     without cutting if the final detections call for rows a batch
+//     skipped (covered). That is about a third less work
+//     (BenchmarkAcquire32PRN_10ms wide: 46 → 30 ms at 10 MS/s, measured),
+//     with the same detections (TestAcquireBatches). AcquireAround, the
+//     narrow search, searches its whole window for every PRN, so that a
+//     copy of a signal at another Doppler (a spoofer's) is still seen.
 func (a *Acquirer) Acquire(dst []Acquired, x []complex64) ([]Acquired, error) {
-	return a.AcquireAround(dst, x, 0, math.Inf(1))
+	batch := len(a.prns)
+	if a.cfg.ClockMaxHz > 0 {
+		batch = a.batch
+	}
+	return a.search(dst, x, 0, math.Inf(1), batch)
 }
 
 // AcquireAround is Acquire restricted to the Doppler bins within
@@ -540,6 +569,12 @@ func (a *Acquirer) Acquire(dst []Acquired, x []complex64) ([]Acquired, error) {
 // every bin), so a satellite inside the window gets the same decision as
 // in the full search and the records do not depend on which search ran.
 func (a *Acquirer) AcquireAround(dst []Acquired, x []complex64, centerHz, halfWidthHz float64) ([]Acquired, error) {
+	return a.search(dst, x, centerHz, halfWidthHz, len(a.prns))
+}
+
+// search is AcquireAround with the PRNs searched batch at a time (see
+// Acquire, step 7).
+func (a *Acquirer) search(dst []Acquired, x []complex64, centerHz, halfWidthHz float64, batch int) ([]Acquired, error) {
 	dst = dst[:0]
 	if len(x) < a.nSamples {
 		return dst, fmt.Errorf("gnss: snapshot has %d samples, acquisition needs %d (%d ms at %g S/s)",
@@ -550,16 +585,15 @@ func (a *Acquirer) AcquireAround(dst []Acquired, x []complex64, centerHz, halfWi
 	}
 	near, any := 0, false
 	for d, f := range a.dops {
-		a.active[d] = math.Abs(f-centerHz) <= halfWidthHz
-		any = any || a.active[d]
+		a.window[d] = math.Abs(f-centerHz) <= halfWidthHz
+		any = any || a.window[d]
 		if math.Abs(f-centerHz) < math.Abs(a.dops[near]-centerHz) {
 			near = d
 		}
 	}
 	if !any {
-		a.active[near] = true
+		a.window[near] = true
 	}
-	clear(a.screenNow)
 	a.bin(x)
 	for i := range a.prns {
 		p := &a.prns[i]
@@ -567,33 +601,40 @@ func (a *Acquirer) AcquireAround(dst []Acquired, x []complex64, centerHz, halfWi
 		clear(p.candidate)
 		p.hot = p.hot[:0]
 	}
-	// Anchor rows, exact, and the screens of the half-bin rows between them.
-	a.transform(a.base0)
-	for i := range a.prns {
-		a.searchAnchors(&a.prns[i])
+	// The PRNs in batches; after each, the window of the next is cut to
+	// the Dopplers the detections so far allow (see boundWindow).
+	if batch <= 0 {
+		batch = len(a.prns)
 	}
-	// The other rows: exact, except screened rows that failed the screen.
-	for b := range a.bases {
-		if b == a.base0 {
-			continue
-		}
-		a.transform(b)
-		for d := range a.dops {
-			if a.dopBase[d] != b || !a.active[d] {
-				continue
-			}
-			for i := range a.prns {
-				p := &a.prns[i]
-				use := !a.screenNow[d] || p.candidate[d] || a.exhaustive
-				if use || a.rowHook != nil {
-					a.correlate(p, d, nil, use, -1)
-				}
+	copy(a.active, a.window)
+	narrowed := false
+	for b0 := 0; b0 < len(a.prns); b0 += batch {
+		ps := a.prns[b0:min(b0+batch, len(a.prns))]
+		a.searchPRNs(ps)
+		n := len(dst)
+		for i := range ps {
+			if r, ok := a.decide(&ps[i], x); ok {
+				dst = append(dst, r)
 			}
 		}
+		if len(dst) > n && b0+batch < len(a.prns) {
+			narrowed = a.boundWindow(dst) || narrowed
+		}
 	}
-	for i := range a.prns {
-		if r, ok := a.decide(&a.prns[i], x); ok {
-			dst = append(dst, r)
+	if narrowed {
+		// The batches searched after a cut must have covered every
+		// Doppler the final detections allow; if not (a detection found
+		// later contradicts an earlier cut: a cross-correlation peak, a
+		// Doppler beyond DopplerMaxHz), search again without cutting, so
+		// that the result is the one of the whole window.
+		kept := append(a.kept[:0], dst...)
+		if !a.keepCrossCorr && len(kept) > 1 {
+			kept = a.rejectCrossCorrelation(kept)
+			a.bin(x) // the tests overwrote the data grid
+		}
+		a.kept = kept
+		if !a.covered(kept) {
+			return a.search(dst, x, centerHz, halfWidthHz, len(a.prns))
 		}
 	}
 	// Second peaks first: they need the data grid, which the
@@ -607,6 +648,115 @@ func (a *Acquirer) AcquireAround(dst []Acquired, x []complex64, centerHz, halfWi
 	}
 	slices.SortFunc(dst, func(u, v Acquired) int { return u.PRN - v.PRN })
 	return dst, nil
+}
+
+// acqBatch is the number of PRNs searched before the Doppler window is cut
+// to what their detections allow (boundWindow). Eight of 32: a sky of
+// four or more satellites puts one in the first batch about two times in
+// three (computed: 1 − C(24,4)/C(32,4) = 0.70 for four), and the later
+// three quarters of the PRNs are then searched over a window about 10 kHz
+// narrower than the ±15 kHz of a site whose clock is unknown.
+const acqBatch = 8
+
+// searchPRNs computes the rows of the current window (a.active) for the
+// PRNs ps: the anchor rows with the screens of the half-bin rows between
+// them, then the other rows, exact except screened rows that failed the
+// screen.
+func (a *Acquirer) searchPRNs(ps []prnState) {
+	clear(a.screenNow)
+	a.transform(a.base0)
+	for i := range ps {
+		a.searchAnchors(&ps[i])
+	}
+	for b := range a.bases {
+		if b == a.base0 {
+			continue
+		}
+		for d := range a.dops {
+			if a.dopBase[d] != b || !a.active[d] {
+				continue
+			}
+			if a.specBase != b {
+				a.transform(b)
+			}
+			for i := range ps {
+				p := &ps[i]
+				use := !a.screenNow[d] || p.candidate[d] || a.exhaustive
+				if use || a.rowHook != nil {
+					a.correlate(p, d, nil, use, -1)
+				}
+			}
+		}
+	}
+}
+
+// boundWindow cuts the window of the next batches to the Dopplers the
+// detections det allow and reports whether it cut anything. A detection
+// i with Doppler D_i = g_i + c (geometric Doppler |g_i| ≤ DopplerMaxHz =
+// D_max, receiver clock offset c, as in Meter's narrow window) bounds the
+// clock to [D_i − D_max, D_i + D_max]; the detections together to
+// [lo, hi] = [max D_i − D_max, min D_i + D_max], and every satellite's
+// Doppler to [lo − D_max, hi + D_max], widened by a Doppler step for the
+// bins' spacing and the fine Doppler's error. Only detections within
+// 6 dB (xcStronger) of the strongest count: a weaker one may be a
+// cross-correlation peak of a stronger signal at another Doppler
+// (rejectCrossCorrelation, which needs the data grid, runs at the end,
+// and covered checks the cut against its result). If they contradict
+// each other (lo > hi), the window stays as it is.
+func (a *Acquirer) boundWindow(det []Acquired) bool {
+	k := float64(a.nBlock)
+	strongest := 0.0
+	for _, r := range det {
+		strongest = max(strongest, r.PeakMetric/k-1)
+	}
+	lo, hi := math.Inf(-1), math.Inf(1)
+	for _, r := range det {
+		if xcStronger*(r.PeakMetric/k-1) >= strongest {
+			lo, hi = max(lo, r.DopplerHz-a.cfg.DopplerMaxHz), min(hi, r.DopplerHz+a.cfg.DopplerMaxHz)
+		}
+	}
+	if !(lo <= hi) {
+		return false
+	}
+	cut := false
+	for d, f := range a.dops {
+		in := a.window[d] && f >= lo-a.cfg.DopplerMaxHz-a.cfg.DopplerStepHz && f <= hi+a.cfg.DopplerMaxHz+a.cfg.DopplerStepHz
+		if a.active[d] && !in {
+			cut = true
+		}
+		a.active[d] = a.active[d] && in
+	}
+	return cut
+}
+
+// clockBound returns the clock bound [lo, hi] of boundWindow for the
+// detections det; ok is false if there are none or they contradict each
+// other.
+func (a *Acquirer) clockBound(det []Acquired) (lo, hi float64, ok bool) {
+	if len(det) == 0 {
+		return 0, 0, false
+	}
+	lo, hi = math.Inf(-1), math.Inf(1)
+	for _, r := range det {
+		lo, hi = max(lo, r.DopplerHz-a.cfg.DopplerMaxHz), min(hi, r.DopplerHz+a.cfg.DopplerMaxHz)
+	}
+	return lo, hi, lo <= hi
+}
+
+// covered reports whether every row of the window that the detections
+// det allow (boundWindow's rule) was searched for every PRN: the rows
+// still active at the end were searched by all batches.
+func (a *Acquirer) covered(det []Acquired) bool {
+	lo, hi, ok := a.clockBound(det)
+	for d, f := range a.dops {
+		if !a.window[d] || a.active[d] {
+			continue
+		}
+		if !ok || f >= lo-a.cfg.DopplerMaxHz-a.cfg.DopplerStepHz && f <= hi+a.cfg.DopplerMaxHz+a.cfg.DopplerStepHz {
+			return false
+		}
+	}
+	return true
 }
 
 // xcStronger: only detections with λ̂ at least 4× (6 dB) larger are
@@ -672,6 +822,7 @@ func (a *Acquirer) rejectCrossCorrelation(det []Acquired) []Acquired {
 func (a *Acquirer) modelGrid(p *prnState, d Acquired) {
 	clear(a.grid)
 	a.specBase = -1
+	clear(a.specOK)
 	chips := a.modelChips
 	gpsca.Sample(chips, &p.code, a.fs, gpsca.CodeRate(d.DopplerHz), d.CodePhaseChips)
 	rot := newRotator(d.DopplerHz/a.fs, 0)
@@ -770,6 +921,7 @@ func (a *Acquirer) lagShift(k int, fd float64) int {
 func (a *Acquirer) bin(x []complex64) {
 	clear(a.grid)
 	a.specBase = -1
+	clear(a.specOK)
 	rot := newRotator(-a.offsetHz/a.fs, 0)
 	for n := 0; n < a.nSamples; {
 		// Renormalize the rotator from the exact phase every 1024 samples.
@@ -793,6 +945,11 @@ func (a *Acquirer) bin(x []complex64) {
 // centred order: a.spectra[k·specLen + i] is bin i − nLag/2 − pad of
 // block k, so that the nLag central bins shifted by s start at pad + s.
 func (a *Acquirer) transform(base int) {
+	a.spectra, a.specBase = a.specs[base], base
+	if a.specOK[base] {
+		return
+	}
+	a.specOK[base] = true
 	rot := newRotator(-a.bases[base]/a.fa, 0.5)
 	h := a.nLag/2 + a.pad
 	for k := range a.nBlock {

@@ -502,3 +502,66 @@ func randomSky(rng *rand.Rand, levels []float64) []satSpec {
 	}
 	return sats
 }
+
+// TestAcquireBatches: the search in batches of acqBatch PRNs, each batch
+// after the first over the Dopplers the detections so far allow
+// (boundWindow), finds what the search of every PRN over the whole
+// window finds, on skies whose satellites' geometric Dopplers stay within
+// ±4.5 kHz (a static user's ±4.9 kHz, REFERENCES §4) with a receiver
+// clock anywhere in ±10 kHz (REFERENCES §12.5), and computes fewer rows.
+// The "contradiction" case is a sky outside that model (Dopplers 10.3 kHz
+// apart, so no clock fits both with |g| ≤ 5 kHz: a moving platform or a
+// spoofer): the cut made after the first batch would miss a third signal
+// far from the first, and the search is done again without cutting.
+func TestAcquireBatches(t *testing.T) {
+	const fs = 4e6
+	a, err := NewAcquirer(AcqConfig{}, fs, gpsca.L1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rows := 0
+	a.rowHook = func(int, int, []float64) { rows++ }
+	search := func(x []complex64, batch int) ([]Acquired, int) {
+		a.batch, rows = batch, 0
+		r, err := a.Acquire(nil, x)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return r, rows
+	}
+	rng := rand.New(rand.NewPCG(44, 2))
+	compared, cut := 0, 0
+	for i := range 10 {
+		levels := []float64{39, 41, 43, 45, 47, 50}[:3+i%4]
+		clock := (2*rng.Float64() - 1) * 10e3
+		sats := skyWithClock(rng, levels, clock)
+		c := synthesize(rng, fs, gpsca.L1, 1, a.SnapshotLen(), sats)
+		whole, rowsWhole := search(c.x, len(a.prns))
+		batched, rowsBatched := search(c.x, acqBatch)
+		if !slices.Equal(whole, batched) {
+			t.Errorf("sky %d (clock %+.0f Hz): batches %+v, whole window %+v", i, clock, batched, whole)
+		}
+		compared += len(whole)
+		if rowsBatched < rowsWhole {
+			cut++
+		}
+	}
+	t.Logf("%d detections compared; the window was cut in %d of 10 skies", compared, cut)
+	if compared < 30 || cut < 5 {
+		t.Errorf("%d detections compared, %d skies cut: the test does not exercise the batches", compared, cut)
+	}
+
+	t.Run("contradiction", func(t *testing.T) {
+		sats := []satSpec{
+			{prn: 2, cn0: 48, dopplerHz: -5200, codePhase: 100}, // batch 1
+			{prn: 12, cn0: 48, dopplerHz: 5100, codePhase: 400}, // batch 2: 10.3 kHz from PRN 2
+			{prn: 28, cn0: 48, dopplerHz: 9000, codePhase: 700}, // batch 4: outside the first cut
+		}
+		c := synthesize(rng, fs, gpsca.L1, 1, a.SnapshotLen(), sats)
+		whole, _ := search(c.x, len(a.prns))
+		batched, _ := search(c.x, acqBatch)
+		if len(whole) != 3 || !slices.Equal(whole, batched) {
+			t.Errorf("batches %+v, whole window %+v (want PRNs 2, 12, 28 in both)", batched, whole)
+		}
+	})
+}

@@ -23,7 +23,10 @@
 // AcquireAround searches a window of the same grid (the narrow search
 // once a site's clock offset is known); the threshold is that of the
 // whole grid in both, so a satellite inside the window gets the same
-// decision either way. The snapshot is
+// decision either way. The wide search takes the PRNs in batches of
+// eight and cuts the window of the later batches to the Dopplers the
+// detections so far allow (a common clock, geometric Dopplers within
+// ±DopplerMaxHz), which takes a third off it. The snapshot is
 // mixed to L1 and integrated-and-dumped onto a grid of 4096 cells per
 // millisecond (4 cells per chip), so every sample rate maps onto
 // power-of-two FFTs and no input sample is merged with another at

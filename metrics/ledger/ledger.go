@@ -9,17 +9,30 @@
 //	meta      format → ledgerFormat; seq → the seq of the last log record
 //	          applied (8 bytes, big-endian); head → SHA-256 of that record's
 //	          line (32 bytes); captures → the number of capture names
-//	captures  capture name → the SHA-256 values it was recorded with, each
-//	          with its outcome ("" analysed, or the quarantine reason; the
-//	          latest record wins), and the data file's identity (size,
-//	          mtime, ctime, device, inode) when it was recorded, with the
-//	          SHA-256 it had then
+//	captures  capture key → the contents it was recorded with (data
+//	          SHA-256 and metadata SHA-256), each with its outcome (""
+//	          analysed, or the quarantine reason; the latest record wins),
+//	          and the data file's identity (size, mtime, ctime, device,
+//	          inode) when it was recorded, with the SHA-256 it had then
 //	events    event id → nothing: every event id in the log
 //
+// A capture is its input and its name (issue 17, item 6: two antennas'
+// folders may hold the same names, even the same bytes): its key is the
+// input, a NUL and the name (Key), or the name alone for a record without
+// an input (replay's, or one written before records carried the input).
+// Lookup falls back on that entry, so that a log written before the
+// change still says what is done. Its content is the data's SHA-256 and
+// the metadata's (detect.CaptureRecord.MetadataSHA256, issue 17, item 7):
+// corrected metadata is a content not recorded yet, analysed again; a
+// record without a metadata SHA-256 (a raw file, metadata that could not
+// be read, or a record written before the field) stands for any
+// metadata.
+//
 // Every event id is kept, not only those of captures in flight: an id is
-// derived from the data's SHA-256, the detection and the configuration
-// (detect.eventID), not from the capture's name, so the same bytes recorded
-// under a second name give the same ids, and only the full set keeps an id
+// derived from the data's SHA-256 (with the input and the metadata's),
+// the detection and the configuration (detect.eventID), not from the
+// capture's name, so the same bytes recorded under a second name in the
+// same input give the same ids, and only the full set keeps an id
 // from being written twice. On disk that costs a 13-byte key and bbolt's
 // 16-byte element header an event, and no heap.
 //
@@ -70,8 +83,9 @@ const (
 	// FileName is the ledger's file in the state folder.
 	FileName = "ledger.db"
 	// ledgerFormat is the layout version in meta/format; another value
-	// makes the ledger be rebuilt.
-	ledgerFormat = 1
+	// makes the ledger be rebuilt. 2: keys with the input, contents with
+	// the metadata's SHA-256 (issue 17, items 6 and 7).
+	ledgerFormat = 2
 	// LockWait is how long opening waits for another process's lock
 	// on the file before giving up.
 	LockWait = 2 * time.Second
@@ -97,13 +111,24 @@ var (
 	keyCaptures    = []byte("captures")
 )
 
-// outcome is one SHA-256 a capture was recorded with, and how.
+// outcome is one content a capture was recorded with, and how.
 type outcome struct {
-	sha    string
+	sha    string // the data's SHA-256
+	meta   string // the metadata's (MetadataSHA256); "" when the record gave none
 	reason string // "" analysed; else why it was quarantined
 }
 
-// Entry is what the ledger knows of one capture name.
+// Key is the ledger's key of the capture name found in input: the input,
+// a NUL and the name, or the name alone without an input. Names are
+// paths, which hold no NUL.
+func Key(input, name string) string {
+	if input == "" {
+		return name
+	}
+	return input + "\x00" + name
+}
+
+// Entry is what the ledger knows of one capture (a name in an input).
 type Entry struct {
 	outcomes []outcome
 	// The data file's identity when the latest record was written, and
@@ -114,14 +139,32 @@ type Entry struct {
 	fileSHA string
 }
 
-// outcome returns the recorded outcome of content with SHA-256 sha.
-func (e *Entry) Outcome(sha string) (reason string, ok bool) {
+// Outcome returns the recorded outcome of the content whose data has
+// SHA-256 sha and whose metadata has SHA-256 meta ("" for none): that of
+// a record of both, else that of a record of the data that gave no
+// metadata SHA-256 (which stands for any metadata).
+func (e *Entry) Outcome(sha, meta string) (reason string, ok bool) {
 	for _, o := range e.outcomes {
-		if o.sha == sha {
+		if o.sha == sha && o.meta == meta {
+			return o.reason, true
+		}
+	}
+	for _, o := range e.outcomes {
+		if o.sha == sha && o.meta == "" {
 			return o.reason, true
 		}
 	}
 	return "", false
+}
+
+// hasData reports whether a record of the entry has data SHA-256 sha.
+func (e *Entry) hasData(sha string) bool {
+	for _, o := range e.outcomes {
+		if o.sha == sha {
+			return true
+		}
+	}
+	return false
 }
 
 // shaFor returns the SHA-256 of the data file without reading it, when
@@ -133,27 +176,29 @@ func (e *Entry) SHAFor(id FileID, ok bool) (string, bool) {
 	return e.fileSHA, true
 }
 
-// Latest returns the SHA-256 of the content of the capture's latest record
-// (of a content recorded before, its first record counts), "" if none has
-// one. A record of other content replaces it (issue 17, item 4).
-func (e *Entry) Latest() string {
+// Latest returns the content of the capture's latest record (of a
+// content recorded before, its first record counts): the data's SHA-256,
+// "" if none, and the metadata's, "" if none. A record of other content
+// replaces it (issue 17, items 4 and 7).
+func (e *Entry) Latest() (sha, meta string) {
 	if len(e.outcomes) == 0 {
-		return ""
+		return "", ""
 	}
-	return e.outcomes[len(e.outcomes)-1].sha
+	o := e.outcomes[len(e.outcomes)-1]
+	return o.sha, o.meta
 }
 
-// record applies a capture record: content sha has the outcome reason, and
-// the data file had identity *file (nil: not known).
-func (e *Entry) record(sha, reason string, file *FileID) {
+// record applies a capture record: content (sha, meta) has the outcome
+// reason, and the data file had identity *file (nil: not known).
+func (e *Entry) record(sha, meta, reason string, file *FileID) {
 	found := false
 	for i := range e.outcomes {
-		if e.outcomes[i].sha == sha {
+		if e.outcomes[i].sha == sha && e.outcomes[i].meta == meta {
 			e.outcomes[i].reason, found = reason, true
 		}
 	}
 	if !found {
-		e.outcomes = append(e.outcomes, outcome{sha, reason})
+		e.outcomes = append(e.outcomes, outcome{sha, meta, reason})
 	}
 	e.hasFile = file != nil && sha != ""
 	if e.hasFile {
@@ -165,7 +210,7 @@ func (e *Entry) record(sha, reason string, file *FileID) {
 
 // encode lays the entry out as
 //
-//	uvarint n, n × (sha, uvarint len(reason), reason),
+//	uvarint n, n × (sha, meta, uvarint len(reason), reason),
 //	0 | 1 sha varint(size) varint(mtime) varint(ctime) uvarint(dev) uvarint(ino)
 //
 // with each sha as 1 and 32 bytes when it is lowercase hex of 32 bytes,
@@ -175,6 +220,7 @@ func (e *Entry) encode() []byte {
 	b = binary.AppendUvarint(b, uint64(len(e.outcomes)))
 	for _, o := range e.outcomes {
 		b = appendSHA(b, o.sha)
+		b = appendSHA(b, o.meta)
 		b = binary.AppendUvarint(b, uint64(len(o.reason)))
 		b = append(b, o.reason...)
 	}
@@ -214,8 +260,9 @@ func decodeEntry(b []byte) (Entry, error) {
 	e.outcomes = make([]outcome, 0, n)
 	for range n {
 		sha := d.sha()
+		meta := d.sha()
 		reason := d.str()
-		e.outcomes = append(e.outcomes, outcome{sha, reason})
+		e.outcomes = append(e.outcomes, outcome{sha, meta, reason})
 	}
 	switch d.byte() {
 	case 0:
@@ -303,9 +350,10 @@ func eventKey(id string) []byte {
 // Stamp is the identity a capture's data file had when its record was
 // written (or, for a refresh, when it was hashed and found recorded).
 type Stamp struct {
-	Name string // the capture's name
-	ID   FileID
-	SHA  string // refreshes only: the SHA-256 the file had
+	Input string // the capture's input
+	Name  string // the capture's name
+	ID    FileID
+	SHA   string // refreshes only: the SHA-256 the file had
 }
 
 // noteBatch is records noted together, their bodies, and the stamps of
@@ -326,8 +374,8 @@ func newBatch(recs []eventlog.Record, stamps []Stamp) noteBatch {
 
 // capNote is a capture record not yet written, as lookups apply it.
 type capNote struct {
-	sha, reason string
-	file        *FileID
+	sha, meta, reason string
+	file              *FileID
 }
 
 // Ledger is an open ledger. It is used from one goroutine (the daemon's
@@ -348,14 +396,14 @@ type Ledger struct {
 	// and what lookups see of them. tailSeq and tailHead are the last
 	// record noted, written or not.
 	unsaved     []noteBatch
-	pendingCaps map[string][]capNote
+	pendingCaps map[string][]capNote // by Key
 	pendingIDs  map[string]struct{}
 	tailSeq     uint64
 	tailHead    [32]byte
 	lastWrite   time.Time
 	groupWait   time.Duration // GroupWait; 0 writes every note at once
 
-	refresh map[string]Stamp // identities to remember, written by save
+	refresh map[string]Stamp // identities to remember by Key, written by save
 
 	// While the file cannot be written (unwritable.go): why, and whether
 	// it lags the log, the pending maps then holding every record after
@@ -672,11 +720,12 @@ func (lg *Ledger) catchUp() (string, error) {
 // recordBody is what the ledger takes from a record, read through the
 // record's own type (detect.Event, detect.CaptureRecord).
 type recordBody struct {
-	ok      bool   // decoded
-	id      string // an event's id
-	capture string // a capture record's name, SHA-256 and outcome
-	sha     string
-	reason  string // "" analysed; else why it was quarantined
+	ok     bool   // decoded
+	id     string // an event's id
+	key    string // a capture record's Key, SHA-256 values and outcome
+	sha    string
+	meta   string
+	reason string // "" analysed; else why it was quarantined
 }
 
 // readBody reads rec through its own type. A field of a type that does
@@ -693,7 +742,11 @@ func readBody(rec eventlog.Record) recordBody {
 	case eventlog.KindCapture:
 		var c detect.CaptureRecord
 		if decoded(json.Unmarshal(rec.Line, &c)) {
-			return recordBody{ok: true, capture: c.Capture, sha: c.SHA256, reason: Reason(c)}
+			key := ""
+			if c.Capture != "" {
+				key = Key(c.Input, c.Capture)
+			}
+			return recordBody{ok: true, key: key, sha: c.SHA256, meta: c.MetadataSHA256, reason: Reason(c)}
 		}
 	}
 	return recordBody{}
@@ -711,10 +764,10 @@ func Reason(c detect.CaptureRecord) string {
 	return c.Status
 }
 
-// stampFor returns the stamp of the capture name among stamps.
-func stampFor(stamps []Stamp, name string) *FileID {
+// stampFor returns the stamp of the capture with Key key among stamps.
+func stampFor(stamps []Stamp, key string) *FileID {
 	for i := range stamps {
-		if stamps[i].Name == name {
+		if Key(stamps[i].Input, stamps[i].Name) == key {
 			return &stamps[i].ID
 		}
 	}
@@ -728,54 +781,53 @@ func (lg *Ledger) write(batches []noteBatch, refresh map[string]Stamp) error {
 	if lg.db == nil {
 		return fmt.Errorf("ledger: %w", errNoFile)
 	}
-	err := safely(func() error {
-		return lg.db.Update(func(tx *bolt.Tx) error {
-			caps, evs, meta := tx.Bucket(bucketCaptures), tx.Bucket(bucketEvents), tx.Bucket(bucketMeta)
-			for _, b := range batches {
-				for i, rec := range b.recs {
-					if body := b.bodies[i]; body.ok {
-						switch rec.Kind {
-						case eventlog.KindEvent:
-							if body.id != "" {
-								if err := evs.Put(eventKey(body.id), nil); err != nil {
-									return err
-								}
+	update := func(tx *bolt.Tx) error {
+		caps, evs, meta := tx.Bucket(bucketCaptures), tx.Bucket(bucketEvents), tx.Bucket(bucketMeta)
+		for _, b := range batches {
+			for i, rec := range b.recs {
+				if body := b.bodies[i]; body.ok {
+					switch rec.Kind {
+					case eventlog.KindEvent:
+						if body.id != "" {
+							if err := evs.Put(eventKey(body.id), nil); err != nil {
+								return err
 							}
-						case eventlog.KindCapture:
-							if body.capture != "" {
-								added, err := putRecord(caps, body, stampFor(b.stamps, body.capture))
-								if err != nil {
-									return err
-								}
-								if added {
-									n++
-								}
+						}
+					case eventlog.KindCapture:
+						if body.key != "" {
+							added, err := putRecord(caps, body, stampFor(b.stamps, body.key))
+							if err != nil {
+								return err
+							}
+							if added {
+								n++
 							}
 						}
 					}
-					seq, head = rec.Seq, sha256.Sum256(rec.Line)
 				}
+				seq, head = rec.Seq, sha256.Sum256(rec.Line)
 			}
-			for name, st := range refresh {
-				v := caps.Get([]byte(name))
-				if v == nil {
-					continue
-				}
-				e, err := decodeEntry(v)
-				if err != nil {
-					return fmt.Errorf("capture %q: %w", name, err)
-				}
-				if _, ok := e.Outcome(st.SHA); !ok {
-					continue
-				}
-				e.hasFile, e.file, e.fileSHA = st.SHA != "", st.ID, st.SHA
-				if err := caps.Put([]byte(name), e.encode()); err != nil {
-					return err
-				}
+		}
+		for key, st := range refresh {
+			v := caps.Get([]byte(key))
+			if v == nil {
+				continue
 			}
-			return putMeta(meta, seq, head, n)
-		})
-	})
+			e, err := decodeEntry(v)
+			if err != nil {
+				return fmt.Errorf("capture %q: %w", key, err)
+			}
+			if !e.hasData(st.SHA) {
+				continue
+			}
+			e.hasFile, e.file, e.fileSHA = st.SHA != "", st.ID, st.SHA
+			if err := caps.Put([]byte(key), e.encode()); err != nil {
+				return err
+			}
+		}
+		return putMeta(meta, seq, head, n)
+	}
+	err := safely(func() error { return lg.db.Update(update) })
 	if err != nil {
 		return fmt.Errorf("ledger: writing %s: %w", lg.path, err)
 	}
@@ -786,16 +838,16 @@ func (lg *Ledger) write(batches []noteBatch, refresh map[string]Stamp) error {
 // putRecord applies a capture record to its entry and reports whether the
 // name is new.
 func putRecord(caps *bolt.Bucket, body recordBody, file *FileID) (bool, error) {
-	key := []byte(body.capture)
+	key := []byte(body.key)
 	var e Entry
 	v := caps.Get(key)
 	if v != nil {
 		var err error
 		if e, err = decodeEntry(v); err != nil {
-			return false, fmt.Errorf("capture %q: %w", body.capture, err)
+			return false, fmt.Errorf("capture %q: %w", body.key, err)
 		}
 	}
-	e.record(body.sha, body.reason, file)
+	e.record(body.sha, body.meta, body.reason, file)
 	return v == nil, caps.Put(key, e.encode())
 }
 
@@ -823,7 +875,7 @@ func (lg *Ledger) Note(recs []eventlog.Record, stamps ...Stamp) error {
 		return nil
 	}
 	for _, st := range stamps {
-		delete(lg.refresh, st.Name)
+		delete(lg.refresh, Key(st.Input, st.Name))
 	}
 	if !lg.follows(recs[0]) {
 		lg.log.Warn("quietband run: the event log is not where the ledger left it; bringing the ledger up to date from the log",
@@ -841,9 +893,9 @@ func (lg *Ledger) Note(recs []eventlog.Record, stamps ...Stamp) error {
 		case !body.ok:
 		case rec.Kind == eventlog.KindEvent:
 			lg.pendingIDs[body.id] = struct{}{}
-		case rec.Kind == eventlog.KindCapture:
-			lg.pendingCaps[body.capture] = append(lg.pendingCaps[body.capture],
-				capNote{sha: body.sha, reason: body.reason, file: stampFor(stamps, body.capture)})
+		case rec.Kind == eventlog.KindCapture && body.key != "":
+			lg.pendingCaps[body.key] = append(lg.pendingCaps[body.key],
+				capNote{sha: body.sha, meta: body.meta, reason: body.reason, file: stampFor(stamps, body.key)})
 		}
 	}
 	last := recs[len(recs)-1]
@@ -854,10 +906,11 @@ func (lg *Ledger) Note(recs []eventlog.Record, stamps ...Stamp) error {
 	return lg.Save()
 }
 
-// remember queues the identity a recorded capture's data file was hashed
-// with, so that later sightings need no hashing; save writes it.
-func (lg *Ledger) Remember(name string, id FileID, sha string) {
-	lg.refresh[name] = Stamp{Name: name, ID: id, SHA: sha}
+// Remember queues the identity the data file of the capture name of
+// input was hashed with, so that later sightings need no hashing; save
+// writes it.
+func (lg *Ledger) Remember(input, name string, id FileID, sha string) {
+	lg.refresh[Key(input, name)] = Stamp{Input: input, Name: name, ID: id, SHA: sha}
 	if len(lg.refresh) >= refreshMax {
 		lg.Save()
 	}
@@ -896,48 +949,60 @@ func (lg *Ledger) waiting() int {
 	return n
 }
 
-// lookup returns what the ledger knows of a capture name. An entry that
-// does not decode (the file was damaged under the daemon) makes the ledger
-// be rebuilt from the log, once.
-func (lg *Ledger) Lookup(name string) (Entry, bool, error) {
-	e, ok, err := lg.get(name)
+// Lookup returns what the ledger knows of the capture name found in
+// input: its own records, or, when it has none, those of the name without
+// an input (a log written before records carried the input says what is
+// done in any input). An entry that does not decode (the file was damaged
+// under the daemon) makes the ledger be rebuilt from the log, once.
+func (lg *Ledger) Lookup(input, name string) (Entry, bool, error) {
+	e, ok, err := lg.lookup(input, name)
 	if errors.Is(err, errDamagedOpen) {
 		if err = lg.rebuild(err); err == nil {
-			e, ok, err = lg.get(name)
+			e, ok, err = lg.lookup(input, name)
 		}
 	}
 	if errors.Is(err, errEntry) {
-		if err = lg.reset(lg.db, "bad", fmt.Sprintf("capture %q: %v", name, err)); err == nil {
+		if err = lg.reset(lg.db, "bad", fmt.Sprintf("capture %q of input %q: %v", name, input, err)); err == nil {
 			if err = lg.Sync(); err == nil {
-				e, ok, err = lg.get(name)
+				e, ok, err = lg.lookup(input, name)
 			}
 		}
 	}
 	return e, ok, err
 }
 
-func (lg *Ledger) get(name string) (Entry, bool, error) {
+func (lg *Ledger) lookup(input, name string) (Entry, bool, error) {
+	if name == "" {
+		return Entry{}, false, nil
+	}
+	e, ok, err := lg.get(Key(input, name))
+	if err != nil || ok || input == "" {
+		return e, ok, err
+	}
+	return lg.get(name)
+}
+
+func (lg *Ledger) get(key string) (Entry, bool, error) {
 	var e Entry
 	found := false
-	if name != "" && lg.db != nil {
-		err := safely(func() error {
-			return lg.db.View(func(tx *bolt.Tx) error {
-				v := tx.Bucket(bucketCaptures).Get([]byte(name))
-				if v == nil {
-					return nil
-				}
-				found = true
-				var err error
-				e, err = decodeEntry(v)
-				return err
-			})
-		})
+	if key != "" && lg.db != nil {
+		view := func(tx *bolt.Tx) error {
+			v := tx.Bucket(bucketCaptures).Get([]byte(key))
+			if v == nil {
+				return nil
+			}
+			found = true
+			var err error
+			e, err = decodeEntry(v)
+			return err
+		}
+		err := safely(func() error { return lg.db.View(view) })
 		if err != nil {
 			return Entry{}, false, err
 		}
 	}
-	for _, c := range lg.pendingCaps[name] {
-		e.record(c.sha, c.reason, c.file)
+	for _, c := range lg.pendingCaps[key] {
+		e.record(c.sha, c.meta, c.reason, c.file)
 		found = true
 	}
 	return e, found, nil
@@ -968,16 +1033,17 @@ func (lg *Ledger) hasEvent(id string) (bool, error) {
 	return found, err
 }
 
-// Captures is the number of capture names recorded, those noted but not
-// yet in the file (or held while it cannot be written) included.
+// Captures is the number of captures recorded (names in their inputs),
+// those noted but not yet in the file (or held while it cannot be
+// written) included.
 func (lg *Ledger) Captures() uint64 {
 	n := lg.n
 	errFound := errors.New("found")
-	for name := range lg.pendingCaps {
+	for key := range lg.pendingCaps {
 		if lg.db == nil || safely(func() error {
 			return lg.db.View(func(tx *bolt.Tx) error {
-				if tx.Bucket(bucketCaptures).Get([]byte(name)) != nil {
-					return errFound // not a new name
+				if tx.Bucket(bucketCaptures).Get([]byte(key)) != nil {
+					return errFound // not a new capture
 				}
 				return nil
 			})

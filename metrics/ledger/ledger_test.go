@@ -3,6 +3,7 @@ package ledger
 import (
 	"bytes"
 	"crypto/sha256"
+	"encoding/binary"
 	"encoding/hex"
 	"encoding/json"
 	"fmt"
@@ -154,13 +155,13 @@ func checkAnswers(t *testing.T, lg *Ledger, m model) {
 	t.Helper()
 	bad := 0
 	for name, shas := range m.caps {
-		e, ok, err := lg.Lookup(name)
+		e, ok, err := lg.Lookup("", name)
 		if err != nil || !ok || len(e.outcomes) != len(shas) {
 			t.Errorf("%s: found %v (%v), %d outcomes, want %d", name, ok, err, len(e.outcomes), len(shas))
 			bad++
 		}
 		for sha, reason := range shas {
-			if got, ok := e.Outcome(sha); !ok || got != reason {
+			if got, ok := e.Outcome(sha, ""); !ok || got != reason {
 				t.Errorf("%s: sha %.12s… outcome %q (%v), want %q", name, sha, got, ok, reason)
 				bad++
 			}
@@ -175,7 +176,7 @@ func checkAnswers(t *testing.T, lg *Ledger, m model) {
 		}
 	}
 	for _, absent := range []string{"nowhere.ci8", "d1/c999999.ci8"} {
-		if _, ok, _ := lg.Lookup(absent); ok {
+		if _, ok, _ := lg.Lookup("", absent); ok {
 			t.Errorf("%s is known but not in the log", absent)
 		}
 	}
@@ -207,10 +208,11 @@ func TestLedgerEntryEncoding(t *testing.T) {
 	id := FileID{size: 40000, mtime: 1764621296123456789, ctime: -5, dev: 2049, ino: 1 << 40}
 	good := []Entry{
 		{},
-		{outcomes: []outcome{{hexSHA("a"), ""}}},
-		{outcomes: []outcome{{hexSHA("a"), ""}, {"", "cannot read: permission denied"}, {"ABCDEF", "not lowercase hex"}},
+		{outcomes: []outcome{{hexSHA("a"), "", ""}}},
+		{outcomes: []outcome{{hexSHA("a"), "", ""}, {"", "", "cannot read: permission denied"}, {"ABCDEF", "", "not lowercase hex"}},
 			hasFile: true, file: id, fileSHA: hexSHA("a")},
-		{outcomes: []outcome{{hexSHA("b"), "reason\nwith\x00bytes ü"}}, hasFile: true, file: id, fileSHA: "short"},
+		{outcomes: []outcome{{hexSHA("b"), "", "reason\nwith\x00bytes ü"}}, hasFile: true, file: id, fileSHA: "short"},
+		{outcomes: []outcome{{hexSHA("b"), hexSHA("meta 1"), ""}, {hexSHA("b"), hexSHA("meta 2"), "a reason"}, {hexSHA("c"), "Not hex", ""}}},
 	}
 	for i, e := range good {
 		b := e.encode()
@@ -233,8 +235,11 @@ func TestLedgerEntryEncoding(t *testing.T) {
 		}
 	}
 	// A lowercase hex SHA-256 takes 33 bytes, not 65.
-	if n := len((&Entry{outcomes: []outcome{{hexSHA("a"), ""}}}).encode()); n != 1+33+1+1 {
-		t.Errorf("one outcome: %d bytes, want 36", n)
+	if n := len((&Entry{outcomes: []outcome{{hexSHA("a"), "", ""}}}).encode()); n != 1+33+2+1+1 {
+		t.Errorf("one outcome without metadata: %d bytes, want 38", n)
+	}
+	if n := len((&Entry{outcomes: []outcome{{hexSHA("a"), hexSHA("m"), ""}}}).encode()); n != 1+33+33+1+1 {
+		t.Errorf("one outcome with metadata: %d bytes, want 69", n)
 	}
 	tests := []struct {
 		id   string
@@ -252,23 +257,31 @@ func TestLedgerEntryEncoding(t *testing.T) {
 	}
 }
 
+// TestLedgerEntryRecord: records applied to an entry in turn. A content
+// is the data's SHA-256 and the metadata's (issue 17, item 7): the same
+// data with corrected metadata is another content, and Latest names the
+// latest record's; a record without a metadata SHA-256 stands for any
+// metadata in Outcome (a record written before the field).
 func TestLedgerEntryRecord(t *testing.T) {
 	id := FileID{size: 1, mtime: 2, dev: 3, ino: 4}
 	a, b := hexSHA("a"), hexSHA("b")
+	m1, m2 := hexSHA("sample_rate 2e6"), hexSHA("sample_rate 4e6")
 	var e Entry
 	steps := []struct {
-		sha, reason string
-		file        *FileID
-		outcomes    []outcome
-		hasFile     bool
+		sha, meta, reason string
+		file              *FileID
+		outcomes          []outcome
+		hasFile           bool
 	}{
-		{a, "zero length", &id, []outcome{{a, "zero length"}}, true},
-		{a, "", nil, []outcome{{a, ""}}, false}, // the latest record of the same content wins
-		{b, "", &id, []outcome{{a, ""}, {b, ""}}, true},
-		{"", "cannot read", &id, []outcome{{a, ""}, {b, ""}, {"", "cannot read"}}, false}, // nothing hashed: no identity
+		{a, "", "zero length", &id, []outcome{{a, "", "zero length"}}, true},
+		{a, "", "", nil, []outcome{{a, "", ""}}, false}, // the latest record of the same content wins
+		{b, m1, "", &id, []outcome{{a, "", ""}, {b, m1, ""}}, true},
+		{b, m2, "", &id, []outcome{{a, "", ""}, {b, m1, ""}, {b, m2, ""}}, true}, // corrected metadata: another content
+		{b, m1, "a reason", &id, []outcome{{a, "", ""}, {b, m1, "a reason"}, {b, m2, ""}}, true},
+		{"", "", "cannot read", &id, []outcome{{a, "", ""}, {b, m1, "a reason"}, {b, m2, ""}, {"", "", "cannot read"}}, false}, // nothing hashed: no identity
 	}
 	for i, s := range steps {
-		e.record(s.sha, s.reason, s.file)
+		e.record(s.sha, s.meta, s.reason, s.file)
 		if !slices.Equal(e.outcomes, s.outcomes) || e.hasFile != s.hasFile {
 			t.Fatalf("step %d: %+v", i, e)
 		}
@@ -277,6 +290,28 @@ func TestLedgerEntryRecord(t *testing.T) {
 		}
 		if _, ok := e.SHAFor(FileID{size: 1, mtime: 3, dev: 3, ino: 4}, true); ok {
 			t.Errorf("step %d: another mtime matches", i)
+		}
+		if i == 3 {
+			if sha, meta := e.Latest(); sha != b || meta != m2 {
+				t.Errorf("after the corrected metadata's record: Latest = %.8s…, %.8s…; want its content", sha, meta)
+			}
+		}
+	}
+	outcomes := []struct {
+		sha, meta, reason string
+		ok                bool
+	}{
+		{b, m1, "a reason", true},
+		{b, m2, "", true},
+		{b, hexSHA("sample_rate 8e6"), "", false}, // metadata never recorded
+		{b, "", "", false},                        // b was never recorded without metadata
+		{a, m1, "", true},                         // a's record gave no metadata: it stands for any
+		{a, "", "", true},
+		{hexSHA("c"), "", "", false},
+	}
+	for _, o := range outcomes {
+		if reason, ok := e.Outcome(o.sha, o.meta); ok != o.ok || reason != o.reason {
+			t.Errorf("Outcome(%.8s…, %.8s…) = %q, %v; want %q, %v", o.sha, o.meta, reason, ok, o.reason, o.ok)
 		}
 	}
 }
@@ -329,8 +364,8 @@ func TestLedgerHeap(t *testing.T) {
 	h1 := heap()
 	for i := range n {
 		name := fmt.Sprintf("d%d/c%06d.ci8", i%7, i)
-		e, ok, err := lg.Lookup(name)
-		if r, known := e.Outcome(hexSHA(fmt.Sprint(i))); err != nil || !ok || !known || r != "" {
+		e, ok, err := lg.Lookup("", name)
+		if r, known := e.Outcome(hexSHA(fmt.Sprint(i)), ""); err != nil || !ok || !known || r != "" {
 			t.Fatalf("%s: %v %v %v %q", name, ok, err, known, r)
 		}
 	}
@@ -585,7 +620,7 @@ func BenchmarkLedgerLookup(b *testing.B) {
 	os.WriteFile(data, make([]byte, 40000), 0o644)
 	i := 0
 	for b.Loop() {
-		e, ok, err := lg.Lookup(fmt.Sprintf("c%05d.ci8", i%10000))
+		e, ok, err := lg.Lookup("", fmt.Sprintf("c%05d.ci8", i%10000))
 		if !ok || err != nil || len(e.outcomes) != 1 {
 			b.Fatal(ok, err)
 		}
@@ -633,8 +668,8 @@ func TestLedgerNoteLookupReopen(t *testing.T) {
 	}
 	check := func(when string) {
 		t.Helper()
-		e, ok, err := lg.Lookup("a.ci8")
-		if r, known := e.Outcome(sha); err != nil || !ok || !known || r != "" {
+		e, ok, err := lg.Lookup("", "a.ci8")
+		if r, known := e.Outcome(sha, ""); err != nil || !ok || !known || r != "" {
 			t.Errorf("%s: a.ci8: %v %v %v %q", when, ok, err, known, r)
 		}
 		if got, ok := e.SHAFor(id, true); !ok || got != sha {
@@ -643,8 +678,8 @@ func TestLedgerNoteLookupReopen(t *testing.T) {
 		if _, ok := e.SHAFor(FileID{size: id.size + 1, mtime: id.mtime, ctime: id.ctime, dev: id.dev, ino: id.ino}, true); ok {
 			t.Errorf("%s: another size gives the SHA-256", when)
 		}
-		e, ok, _ = lg.Lookup("b.ci8")
-		if r, known := e.Outcome(""); !ok || !known || r != "b.ci8: zero length" {
+		e, ok, _ = lg.Lookup("", "b.ci8")
+		if r, known := e.Outcome("", ""); !ok || !known || r != "b.ci8: zero length" {
 			t.Errorf("%s: b.ci8: %v %v %q", when, ok, known, r)
 		}
 		if ok, err := lg.HasEvent("00aa11bb22cc33dd44ee55ff"); !ok || err != nil {
@@ -667,7 +702,7 @@ func TestLedgerNoteLookupReopen(t *testing.T) {
 	bdata := filepath.Join(dir, "b.ci8")
 	os.WriteFile(bdata, nil, 0o644)
 	bid, _ := Identify(bdata, false)
-	lg.Remember("b.ci8", bid, "")
+	lg.Remember("", "b.ci8", bid, "")
 	if err := lg.Close(); err != nil {
 		t.Fatal(err)
 	}
@@ -695,12 +730,150 @@ func TestLedgerNoteLookupReopen(t *testing.T) {
 	if err := lg.Note(recs); err != nil {
 		t.Fatal(err)
 	}
-	if _, ok, _ := lg.Lookup("a.ci8"); ok {
+	if _, ok, _ := lg.Lookup("", "a.ci8"); ok {
 		t.Error("a.ci8 still known after the log it was in was replaced")
 	}
-	if e, ok, _ := lg.Lookup("c.ci8"); !ok {
+	if e, ok, _ := lg.Lookup("", "c.ci8"); !ok {
 		t.Error("c.ci8 of the new log not known")
-	} else if _, known := e.Outcome(hexSHA("c")); !known {
+	} else if _, known := e.Outcome(hexSHA("c"), ""); !known {
 		t.Error("c.ci8's outcome not known")
 	}
+}
+
+// TestLedgerCaptureIdentity (issue 17, items 6 and 7): a capture is its
+// input and its name, and its content covers its metadata. Two inputs'
+// records of the same name and bytes are two captures; a log written
+// before records carried the input or the metadata's SHA-256 (its capture
+// records as they were then: no input, no metadata_sha256) still says what
+// is done, in any input, whether the ledger is built from it, caught up
+// from it or rebuilt from a ledger of the former layout.
+func TestLedgerCaptureIdentity(t *testing.T) {
+	dir := t.TempDir()
+	logPath := filepath.Join(dir, "events.jsonl")
+	data, meta, fixed := hexSHA("samples"), hexSHA("sample_rate 2e6"), hexSHA("sample_rate 4e6")
+	// The log as a daemon wrote it before the change: lines spelled out.
+	var c chainer
+	old := []eventlog.Record{
+		c.rec(eventlog.KindEvent, `"id":"0123456789abcdef01234567","class":"cw","capture":"old.sigmf-meta"`),
+		c.rec(eventlog.KindCapture, `"capture":"old.sigmf-meta","sha256":"`+data+`","samples":20000,"status":"ok","events":1`),
+	}
+	var lines []byte
+	for _, r := range old {
+		lines = append(append(lines, r.Line...), '\n')
+	}
+	if err := os.WriteFile(logPath, lines, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	lg := openTestLedger(t, dir, logPath, &syncBuffer{})
+	// Then records of this version: same name and bytes in two inputs,
+	// and one capture's metadata corrected.
+	recs := []eventlog.Record{
+		c.rec(eventlog.KindCapture, `"capture":"a.sigmf-meta","input":"roof","sha256":"`+data+`","metadata_sha256":"`+meta+`","samples":1,"status":"ok","events":0`),
+		c.rec(eventlog.KindCapture, `"capture":"a.sigmf-meta","input":"mast","sha256":"`+data+`","metadata_sha256":"`+meta+`","samples":1,"status":"ok","events":0`),
+		c.rec(eventlog.KindCapture, `"capture":"a.sigmf-meta","input":"mast","sha256":"`+data+`","metadata_sha256":"`+fixed+`","samples":1,"status":"ok","events":0`),
+	}
+	if err := lg.Note(recs, Stamp{Input: "mast", Name: "a.sigmf-meta", ID: FileID{size: 7, mtime: 1}}); err != nil {
+		t.Fatal(err)
+	}
+	f, err := os.OpenFile(logPath, os.O_WRONLY|os.O_APPEND, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, r := range recs {
+		f.Write(append(r.Line, '\n'))
+	}
+	f.Close()
+
+	type ask struct {
+		input, name, sha, meta string
+		known, done            bool   // the name has an entry; this content is recorded
+		latestMeta             string // Latest's metadata SHA-256
+	}
+	asks := []ask{
+		{"roof", "a.sigmf-meta", data, meta, true, true, meta},
+		{"roof", "a.sigmf-meta", data, fixed, true, false, meta}, // not corrected in roof
+		{"mast", "a.sigmf-meta", data, meta, true, true, fixed},
+		{"mast", "a.sigmf-meta", data, fixed, true, true, fixed},
+		{"dish", "a.sigmf-meta", data, meta, false, false, ""}, // a third input has not seen it
+		{"", "a.sigmf-meta", data, meta, false, false, ""},     // nor has replay
+		// Recorded before records carried the input and the metadata:
+		// done in every input, whatever the metadata.
+		{"roof", "old.sigmf-meta", data, meta, true, true, ""},
+		{"dish", "old.sigmf-meta", data, fixed, true, true, ""},
+		{"", "old.sigmf-meta", data, "", true, true, ""},
+		{"roof", "old.sigmf-meta", hexSHA("other samples"), meta, true, false, ""},
+	}
+	check := func(when string) {
+		t.Helper()
+		for _, a := range asks {
+			e, known, err := lg.Lookup(a.input, a.name)
+			if err != nil {
+				t.Fatal(err)
+			}
+			_, done := e.Outcome(a.sha, a.meta)
+			_, latestMeta := e.Latest()
+			if known != a.known || done != a.done || latestMeta != a.latestMeta {
+				t.Errorf("%s: %s in %q (metadata %.8s…): known %v, done %v, latest metadata %.8s…; want %v, %v, %.8s…",
+					when, a.name, a.input, a.meta, known, done, latestMeta, a.known, a.done, a.latestMeta)
+			}
+		}
+		if got := lg.Captures(); got != 3 && when != "noted" {
+			t.Errorf("%s: %d captures, want 3 (old, a in roof, a in mast)", when, got)
+		}
+		if ok, _ := lg.HasEvent("0123456789abcdef01234567"); !ok {
+			t.Errorf("%s: the old log's event id is not known", when)
+		}
+	}
+	check("noted")
+	mast, roof := mustLookup(t, lg, "mast", "a.sigmf-meta"), mustLookup(t, lg, "roof", "a.sigmf-meta")
+	if sha, ok := mast.SHAFor(FileID{size: 7, mtime: 1}, true); !ok || sha != data {
+		t.Errorf("the stamp of a.sigmf-meta in mast: %q %v", sha, ok)
+	}
+	if _, ok := roof.SHAFor(FileID{size: 7, mtime: 1}, true); ok {
+		t.Error("the stamp of a.sigmf-meta in mast is taken for roof's")
+	}
+	if err := lg.Close(); err != nil {
+		t.Fatal(err)
+	}
+	lg = openTestLedger(t, dir, logPath, &syncBuffer{})
+	check("reopened")
+	lg.Close()
+
+	// A ledger of the former layout (version 1) is set aside and rebuilt
+	// from the log.
+	db, err := bolt.Open(filepath.Join(dir, FileName), 0o640, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	err = db.Update(func(tx *bolt.Tx) error {
+		return tx.Bucket(bucketMeta).Put(keyFormat, binary.BigEndian.AppendUint64(nil, 1))
+	})
+	db.Close()
+	if err != nil {
+		t.Fatal(err)
+	}
+	var out syncBuffer
+	lg = openTestLedger(t, dir, logPath, &out)
+	if !strings.Contains(out.String(), "layout version 1") {
+		t.Errorf("a version 1 ledger opened without a word: %s", out.String())
+	}
+	if applied, full := lg.LastSync(); applied != len(old)+len(recs) || !full {
+		t.Errorf("rebuild applied %d records (full %v), want %d", applied, full, len(old)+len(recs))
+	}
+	check("rebuilt from a version 1 ledger")
+
+	// Built from the log alone.
+	lg.Close()
+	os.Remove(filepath.Join(dir, FileName))
+	lg = openTestLedger(t, dir, logPath, &syncBuffer{})
+	check("built from the log")
+}
+
+func mustLookup(t *testing.T, lg *Ledger, input, name string) Entry {
+	t.Helper()
+	e, ok, err := lg.Lookup(input, name)
+	if err != nil || !ok {
+		t.Fatalf("%s in %q: %v %v", name, input, ok, err)
+	}
+	return e
 }

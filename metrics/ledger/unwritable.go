@@ -101,9 +101,9 @@ func (lg *Ledger) hold(recs []eventlog.Record, stamps []Stamp) {
 		case !body.ok:
 		case rec.Kind == eventlog.KindEvent && body.id != "":
 			lg.pendingIDs[body.id] = struct{}{}
-		case rec.Kind == eventlog.KindCapture && body.capture != "":
-			lg.pendingCaps[body.capture] = append(lg.pendingCaps[body.capture],
-				capNote{sha: body.sha, reason: body.reason, file: stampFor(stamps, body.capture)})
+		case rec.Kind == eventlog.KindCapture && body.key != "":
+			lg.pendingCaps[body.key] = append(lg.pendingCaps[body.key],
+				capNote{sha: body.sha, meta: body.meta, reason: body.reason, file: stampFor(stamps, body.key)})
 		}
 		if i == len(recs)-1 {
 			lg.tailSeq, lg.tailHead = rec.Seq, sha256.Sum256(rec.Line)

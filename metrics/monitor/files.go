@@ -13,6 +13,7 @@ import (
 
 	"quietband/ingest"
 	"quietband/metrics/ledger"
+	"quietband/metrics/replay"
 )
 
 // moveAway moves a capture's files (metadata first, so that the watcher
@@ -143,7 +144,7 @@ func (m *Monitor) sweep(now time.Time) {
 				continue
 			}
 			name := filepath.ToSlash(rel)
-			ent, ok, err := m.ledger.Lookup(name)
+			ent, ok, err := m.ledger.Lookup(in.Name, name)
 			if err != nil {
 				m.log.Error("quietband run: retention: ledger", "capture", name, "err", err)
 				return
@@ -170,15 +171,22 @@ func (m *Monitor) sweep(now time.Time) {
 			if !idOK {
 				continue
 			}
+			// Its present content: the data's SHA-256 and how its metadata,
+			// read now, reads them (a capture whose metadata was corrected
+			// and not yet analysed again is not retired).
+			if w.Path != w.DataPath {
+				w.Open(in.Raw)
+			}
+			meta := replay.MetadataSHA256(w)
 			sha, known := ent.SHAFor(id, idOK)
 			if !known {
 				var stable bool
 				sha, stable = m.hashData(w.DataPath, false, id, idOK)
-				if _, recorded := ent.Outcome(sha); recorded && stable {
-					m.ledger.Remember(name, id, sha)
+				if _, recorded := ent.Outcome(sha, meta); recorded && stable {
+					m.ledger.Remember(in.Name, name, id, sha)
 				}
 			}
-			if reason, ok := ent.Outcome(sha); !ok || reason != "" {
+			if reason, ok := ent.Outcome(sha, meta); !ok || reason != "" {
 				continue
 			}
 			n++

@@ -12,6 +12,7 @@ import (
 	"quietband/metrics"
 	"quietband/metrics/eventlog"
 	"quietband/metrics/ledger"
+	"quietband/metrics/replay"
 )
 
 // handle analyses one capture and records it. It returns an error only
@@ -39,23 +40,27 @@ func (m *Monitor) handle(ctx context.Context, w ingest.Found) error {
 	id, idOK := ledger.Identify(w.DataPath, follow)
 	sha, hashed := "", false
 	prevReason, retrying := "", false
-	replaces := "" // SHA-256 of the content of the capture's latest record
-	ent, known, err := m.ledger.Lookup(name)
+	// A capture is its input and name (issue 17, item 6), its content the
+	// data's SHA-256 and how its metadata reads them (item 7): the
+	// metadata's, taken from the bytes the watcher parsed.
+	meta := replay.MetadataSHA256(w)
+	var replaces, replacesMeta string // the content of the capture's latest record
+	ent, known, err := m.ledger.Lookup(w.Input, name)
 	if err != nil {
 		return err
 	}
 	if known {
-		replaces = ent.Latest()
+		replaces, replacesMeta = ent.Latest()
 		var ok bool
 		if sha, ok = ent.SHAFor(id, idOK); !ok {
 			var stable bool
 			sha, stable = m.hashData(w.DataPath, follow, id, idOK)
-			if _, recorded := ent.Outcome(sha); recorded && stable {
-				m.ledger.Remember(name, id, sha)
+			if _, recorded := ent.Outcome(sha, meta); recorded && stable {
+				m.ledger.Remember(w.Input, name, id, sha)
 			}
 		}
 		hashed = true
-		if reason, ok := ent.Outcome(sha); ok {
+		if reason, ok := ent.Outcome(sha, meta); ok {
 			if reason == "" {
 				m.log.Debug("quietband run: already analysed", "capture", name, "input", w.Input)
 				return nil
@@ -84,15 +89,16 @@ func (m *Monitor) handle(ctx context.Context, w ingest.Found) error {
 			return nil
 		}
 	}
-	if replaces != "" && rec.SHA256 != "" && rec.SHA256 != replaces && !retrying {
+	if note := replacesNote(replaces, replacesMeta, rec); note != "" && !retrying {
 		// The capture changed after it was recorded (a recorder came back
-		// to it): this record is its current one.
-		rec.Notes = append(rec.Notes, "replaces the earlier record of this capture (data SHA-256 "+replaces+
-			"): the data changed after that record was written, and this record is the current one")
-		m.log.Info("quietband run: capture changed after it was recorded; its new record replaces the earlier one", "capture", name, "input", w.Input)
+		// to it, or its metadata was corrected): this record is its
+		// current one.
+		rec.Notes = append(rec.Notes, note)
+		m.log.Info("quietband run: capture changed after it was recorded; its new record replaces the earlier one",
+			"capture", name, "input", w.Input, "note", note)
 	}
 	if w.Problem == nil && w.DataPath != w.Path && rec.SHA256 != "" {
-		note, err := m.halfPairResolved(name, rec.SHA256)
+		note, err := m.halfPairResolved(w.Input, name, rec.SHA256)
 		if err != nil {
 			return err
 		}
@@ -147,7 +153,7 @@ func (m *Monitor) handle(ctx context.Context, w ingest.Found) error {
 	var stamps []ledger.Stamp
 	if idOK && rec.SHA256 != "" {
 		if now, ok := ledger.Identify(w.DataPath, follow); ok && now == id {
-			stamps = append(stamps, ledger.Stamp{Name: name, ID: id})
+			stamps = append(stamps, ledger.Stamp{Input: w.Input, Name: name, ID: id})
 		}
 	}
 	if err := m.ledger.Note(recs, stamps...); err != nil {
@@ -188,6 +194,26 @@ func (m *Monitor) handle(ctx context.Context, w ingest.Found) error {
 	m.log.Info("quietband run: capture analysed", "capture", name, "input", w.Input, "events", len(events),
 		"classes", strings.Join(classes, ","), "took", res.Elapsed.Round(time.Microsecond))
 	return nil
+}
+
+// replacesNote is the note of a capture record rec that replaces the
+// capture's latest record, of data SHA-256 sha and metadata SHA-256 meta
+// ("" when there is none): "" when rec has the same content (or no data
+// SHA-256). The data changed (issue 17, item 4), or only how its metadata
+// reads them (item 7: a corrected core:sample_rate, say); a metadata
+// SHA-256 the earlier record did not give is no change.
+func replacesNote(sha, meta string, rec detect.CaptureRecord) string {
+	switch {
+	case sha == "" || rec.SHA256 == "":
+		return ""
+	case rec.SHA256 != sha:
+		return "replaces the earlier record of this capture (data SHA-256 " + sha +
+			"): the data changed after that record was written, and this record is the current one"
+	case meta != "" && rec.MetadataSHA256 != meta:
+		return "replaces the earlier record of this capture (metadata SHA-256 " + meta +
+			"): its metadata changed after that record was written (the data did not), and this record is the current one"
+	}
+	return ""
 }
 
 // hashData hashes a capture's data file (counted in m.hashes) and reports

@@ -1,6 +1,7 @@
 package replay
 
 import (
+	"bytes"
 	"os"
 	"path/filepath"
 	"testing"
@@ -53,5 +54,25 @@ func TestReplayTwiceRecordsNothingNew(t *testing.T) {
 	}
 	if third.AlreadyRecorded != 5 || s3.Captures != 7 {
 		t.Errorf("after d-clean changed: %d already recorded (want 5), %d capture records (want 7)", third.AlreadyRecorded, s3.Captures)
+	}
+	// Corrected metadata (issue 17, item 7: here another core:datetime,
+	// which leaves the configuration fingerprint alone) is a new capture
+	// content too.
+	meta := filepath.Join(caps, "b-clean.sigmf-meta")
+	m, _ := os.ReadFile(meta)
+	fixed := bytes.Replace(m, []byte(`"core:datetime": "2026-`), []byte(`"core:datetime": "2025-`), 1)
+	if bytes.Equal(fixed, m) {
+		t.Fatalf("no core:datetime in %s", m)
+	}
+	if err := os.WriteFile(meta, fixed, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	fourth := runLog(t, log, 1, caps)
+	s4, err := eventlog.Verify(log)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if fourth.AlreadyRecorded != 5 || s4.Captures != 8 {
+		t.Errorf("after b-clean's metadata changed: %d already recorded (want 5), %d capture records (want 8)", fourth.AlreadyRecorded, s4.Captures)
 	}
 }

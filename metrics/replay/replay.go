@@ -66,6 +66,9 @@ func Analyse(ctx context.Context, pipe *detect.Pipeline, f ingest.Found, opts ..
 		rec.Input = f.Input
 		return Outcome{Record: rec, Err: f.Problem}, nil
 	}
+	if f.Input != "" {
+		opts = append(opts[:len(opts):len(opts)], detect.WithInput(f.Input))
+	}
 	res, err := pipe.Process(ctx, f.Capture, f.Name, opts...)
 	switch {
 	case ctx.Err() != nil:
@@ -73,13 +76,29 @@ func Analyse(ctx context.Context, pipe *detect.Pipeline, f ingest.Found, opts ..
 	case err != nil:
 		rec := Quarantined(f.Name, err)
 		rec.Input = f.Input
+		rec.MetadataSHA256 = MetadataSHA256(f)
 		return Outcome{Record: rec, Err: err}, nil
 	}
+	// The capture's identity (issue 17, items 6 and 7): its input, on the
+	// record and every event, and how its metadata reads the samples.
 	res.Record.Input = f.Input
+	res.Record.MetadataSHA256 = MetadataSHA256(f)
+	for i := range res.Events {
+		res.Events[i].Input = f.Input
+	}
 	if f.Capture.TimeProblem != "" {
 		res.Record.Notes = append(res.Record.Notes, f.Capture.TimeProblem)
 	}
 	return Outcome{Events: res.Events, Record: res.Record, Result: res}, nil
+}
+
+// MetadataSHA256 is the ReadingSHA256 of an opened SigMF capture's
+// metadata (ingest.Meta), "" for a raw file or a capture not opened.
+func MetadataSHA256(f ingest.Found) string {
+	if f.Capture == nil || f.Capture.Meta == nil {
+		return ""
+	}
+	return f.Capture.Meta.ReadingSHA256
 }
 
 // Quarantined is the capture record of a capture that cannot be analysed:

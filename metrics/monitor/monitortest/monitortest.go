@@ -121,12 +121,19 @@ type Record struct {
 	ID      string   `json:"id"`
 	Class   string   `json:"class"`
 	Capture string   `json:"capture"`
+	Input   string   `json:"input"`
 	SHA256  string   `json:"sha256"`
 	Status  string   `json:"status"`
 	Error   string   `json:"error"`
 	Events  int      `json:"events"`
 	Samples int64    `json:"samples"`
 	Notes   []string `json:"notes"`
+	// Capture records: how the metadata reads the samples, and the rate.
+	MetadataSHA256 string  `json:"metadata_sha256"`
+	SampleRate     float64 `json:"sample_rate_hz"`
+	// Events: the offset from the centre, and the episode.
+	OffsetHz float64 `json:"offset_hz"`
+	Episode  string  `json:"episode"`
 }
 
 // ReadLog reads the event log at path (every segment). A malformed line
