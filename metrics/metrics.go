@@ -35,6 +35,19 @@ type Sources struct {
 	// FolderReadable tells whether an input's watched folder exists and
 	// can be read (watched_folder_readable).
 	FolderReadable func(input string) bool
+	// EventLogDamaged counts the event log's files set aside because
+	// they failed verification (eventlog_damaged_files).
+	EventLogDamaged func() int
+	// LedgerWritable tells whether the ledger's file can be written
+	// (ledger_writable); while not, the daemon runs from the event log.
+	LedgerWritable func() bool
+	// CaptureRetries counts captures scheduled to be tried again after a
+	// transient failure (capture_retries_total).
+	CaptureRetries func() uint64
+	// EventLogOutsideChanges counts the event log's active file found
+	// moved, deleted, replaced or cut outside the daemon
+	// (eventlog_outside_changes_total).
+	EventLogOutsideChanges func() uint64
 }
 
 // Options configure a Set.
@@ -89,6 +102,8 @@ type Set struct {
 	fallingBehind prometheus.Gauge
 	watcherUp     prometheus.Gauge
 
+	progress *progress // the capture in progress, per input (progress.go)
+
 	mu     sync.Mutex
 	prns   map[string]map[int]bool // PRNs exposed per input
 	lastAt time.Time               // lastCapture's value
@@ -96,7 +111,7 @@ type Set struct {
 
 // New makes a Set.
 func New(opt Options) *Set {
-	s := &Set{reg: prometheus.NewRegistry(), prns: map[string]map[int]bool{}}
+	s := &Set{reg: prometheus.NewRegistry(), prns: map[string]map[int]bool{}, progress: newProgress(opt.Inputs)}
 	gauge := func(name, help string, labels ...string) *prometheus.GaugeVec {
 		g := prometheus.NewGaugeVec(prometheus.GaugeOpts{Namespace: Namespace, Name: name, Help: help}, labels)
 		s.reg.MustRegister(g)
@@ -180,6 +195,12 @@ func New(opt Options) *Set {
 				Help:        "1 while the input's watched folder exists and can be read, else 0 (the daemon is not ready then).",
 				ConstLabels: prometheus.Labels{"input": in}}, func() float64 { return b2f(src.FolderReadable(in)) }))
 		}
+	}
+
+	// Collectors of their own files (one each), registered in this list.
+	for _, register := range []func(Sources){s.registerDamaged, s.registerLedgerWritable, s.registerProgress,
+		s.registerRetries, s.registerOutside} {
+		register(src)
 	}
 
 	version, revision := buildVersion()

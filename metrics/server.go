@@ -39,6 +39,10 @@ type ServerOptions struct {
 	Gatherer      prometheus.Gatherer
 	// Ready returns the reasons the daemon is not ready; none means ready.
 	Ready func() []string
+	// Degraded returns what works in a slower or weaker way while the
+	// daemon is ready (a ledger that cannot be written: issue 17, item
+	// 9); /readyz answers 200 with them listed.
+	Degraded func() []string
 	// Recent serves /api/events; nil answers it with 404.
 	Recent *Recent
 	Logger *slog.Logger
@@ -52,7 +56,8 @@ type ServerOptions struct {
 //
 //	/metrics     Prometheus exposition of the Gatherer
 //	/healthz     200 while the process runs
-//	/readyz      200 when Ready reports nothing, else 503 and the reasons
+//	/readyz      200 when Ready reports nothing (listing what Degraded
+//	             reports, if anything), else 503 and the reasons
 //	/api/events  JSON array of recent records: ?since=SEQ (records with a
 //	             larger seq), &limit=N (≤ MaxEvents), &kind=event|capture|all
 //	/            a page with links to the above
@@ -156,6 +161,14 @@ func (s *Server) readyz(w http.ResponseWriter, _ *http.Request) {
 		why = s.opt.Ready()
 	}
 	if len(why) == 0 {
+		var degraded []string
+		if s.opt.Degraded != nil {
+			degraded = s.opt.Degraded()
+		}
+		if len(degraded) > 0 {
+			plain(w, http.StatusOK, "ready, degraded:\n"+strings.Join(degraded, "\n")+"\n")
+			return
+		}
 		plain(w, http.StatusOK, "ready\n")
 		return
 	}

@@ -13,6 +13,7 @@ import (
 	"bytes"
 	"encoding/json"
 	"fmt"
+	"io"
 	"io/fs"
 	"math"
 	"math/rand/v2"
@@ -29,6 +30,7 @@ import (
 	"time"
 
 	"quietband/detect"
+	"quietband/ingest/synth"
 	"quietband/metrics/eventlog"
 	"quietband/metrics/monitor/monitortest"
 )
@@ -1041,4 +1043,454 @@ func TestFaultsPathTooLong(t *testing.T) {
 		t.Errorf("%d reports of a folder not watchable, want 1", c)
 	}
 	t.Logf("capture at a path of %d bytes: folder reported once as not watchable, no record for it", n)
+}
+
+// TestFaultsLogByteCorrupted (issue 17, item 8): one byte of the event
+// log edited in place while the daemon is stopped. Before: the daemon
+// refused to start ("refusing to open ... corruption"), under systemd
+// forever. Now it starts and keeps monitoring: the damaged file is set
+// aside byte for byte, the new active file starts with a break record
+// carrying the last good hash, quietband_eventlog_damaged_files is 1,
+// verify names the damaged file and line (exit 1) and says the chain
+// resumed and verifies from there, and every capture is recorded once.
+func TestFaultsLogByteCorrupted(t *testing.T) {
+	s := newSite(t, "")
+	p := startProcess(t, "run", "--config", s.cfgPath)
+	n := 0
+	drop := func(k int) {
+		for range k {
+			monitortest.Drop(t, filepath.Join(s.in, fmt.Sprintf("b%02d.ci8", n)), monitortest.CI8(uint64(700+n), n%2 == 0))
+			n++
+		}
+		monitortest.WaitFor(t, 20*time.Second, "captures recorded", func() bool { return countAll(t, s.logPath) >= n })
+	}
+	drop(4)
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	p.wait(t, 20*time.Second)
+
+	// One byte of the second line's capture name: the line still parses,
+	// the third line's prev no longer matches it.
+	b := monitortest.MustRead(t, s.logPath)
+	lines := bytes.SplitAfter(b, []byte("\n"))
+	i := bytes.Index(lines[1], []byte(`"capture":"b`))
+	if i < 0 {
+		t.Fatalf("second line has no capture name: %s", lines[1])
+	}
+	off := len(lines[0]) + i + len(`"capture":"b`)
+	b[off] ^= 0x01 // b00 → b10 or similar: one byte
+	if err := os.WriteFile(s.logPath, b, 0o640); err != nil {
+		t.Fatal(err)
+	}
+
+	p = startProcess(t, "run", "--config", s.cfgPath)
+	addr := listenAddr(t, p)
+	drop(2)
+	resp, err := (&http.Client{Timeout: 5 * time.Second}).Get("http://" + addr + "/metrics")
+	if err != nil {
+		t.Fatal(err)
+	}
+	body, _ := io.ReadAll(resp.Body)
+	resp.Body.Close()
+	if !strings.Contains(string(body), "\nquietband_eventlog_damaged_files 1\n") {
+		t.Errorf("quietband_eventlog_damaged_files is not 1:\n%s", grepLines(string(body), "eventlog"))
+	}
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	p.wait(t, 20*time.Second)
+
+	aside := eventlog.DamagedName(s.logPath, 1)
+	if got, err := os.ReadFile(aside); err != nil || !bytes.Equal(got, b) {
+		t.Errorf("damaged file not kept untouched as %s: %v", aside, err)
+	}
+	var out, errOut bytes.Buffer
+	code := runMain([]string{"verify", s.logPath}, &out, &errOut)
+	if code != 1 || !strings.Contains(out.String(), "BAD  "+aside+":3:") || !strings.Contains(out.String(), "OK   from the resumption: 4 records") {
+		t.Errorf("verify: exit %d:\n%s\nwant BAD at %s:3 and the 4 records from the break on (break, event, 2 captures) verified", code, out.String(), aside)
+	}
+	// The four captures before the damage are not analysed again; the
+	// two after it are recorded once each.
+	for k := range 4 {
+		if strings.Contains(p.out.String(), fmt.Sprintf("capture analysed\" capture=b%02d.ci8", k)) {
+			t.Errorf("b%02d.ci8 analysed again after the restart", k)
+		}
+	}
+	caps := monitortest.CaptureRecords(monitortest.ReadLog(t, s.logPath))
+	for k := 4; k < n; k++ {
+		if name := fmt.Sprintf("b%02d.ci8", k); len(caps[name]) != 1 {
+			t.Errorf("%s recorded %d times, want once", name, len(caps[name]))
+		}
+	}
+	t.Logf("one byte changed at offset %d: daemon went on; verify:\n%s", off, out.String())
+}
+
+// grepLines returns the lines of s that contain sub.
+func grepLines(s, sub string) string {
+	var out []string
+	for _, ln := range strings.Split(s, "\n") {
+		if strings.Contains(ln, sub) {
+			out = append(out, ln)
+		}
+	}
+	return strings.Join(out, "\n")
+}
+
+// TestFaultsStateDiskFull (issue 17, item 9): the state folder on a full
+// file system (a 512 KiB tmpfs, filled up) while the event log's has room,
+// ledger.db lost. Before: the daemon could not start ("ledger: … no space
+// left on device"), and a running one logged "saving the baseline" about
+// once a second. Now it starts and runs from the event log: the captures
+// recorded before are not analysed again, new ones are recorded once,
+// quietband_ledger_writable is 0, /readyz is 200 and lists why, and the
+// ledger and the baseline each log their failure once.
+func TestFaultsStateDiskFull(t *testing.T) {
+	s := newSite(t, "")
+	logDir := filepath.Join(s.dir, "logs")
+	s.logPath = filepath.Join(logDir, "events.jsonl")
+	os.WriteFile(s.cfgPath, append(monitortest.MustRead(t, s.cfgPath), []byte("log: {path: "+s.logPath+"}\n")...), 0o644)
+	os.MkdirAll(s.state, 0o755)
+	if err := syscall.Mount("tmpfs", s.state, "tmpfs", 0, "size=512k"); err != nil {
+		t.Skipf("cannot mount a tmpfs to fill up (needs root and CAP_SYS_ADMIN): %v", err)
+	}
+	t.Cleanup(func() { syscall.Unmount(s.state, syscall.MNT_DETACH) })
+
+	p := startProcess(t, "run", "--config", s.cfgPath)
+	n := 0
+	drop := func(k int) {
+		for range k {
+			monitortest.Drop(t, filepath.Join(s.in, fmt.Sprintf("f%02d.ci8", n)), monitortest.CI8(uint64(500+n), n == 0))
+			n++
+		}
+		monitortest.WaitFor(t, 20*time.Second, "captures recorded", func() bool { return countAll(t, s.logPath) >= n })
+	}
+	drop(3)
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	p.wait(t, 20*time.Second)
+	os.Remove(filepath.Join(s.state, "ledger.db"))
+	fillUp(t, filepath.Join(s.state, "filler"))
+
+	p = startProcess(t, "run", "--config", s.cfgPath)
+	addr := listenAddr(t, p)
+	drop(3)
+	time.Sleep(2 * time.Second) // housekeeping (each second) tries the baseline and the ledger again
+	get := func(path string) (int, string) {
+		resp, err := (&http.Client{Timeout: 5 * time.Second}).Get("http://" + addr + path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		defer resp.Body.Close()
+		b, _ := io.ReadAll(resp.Body)
+		return resp.StatusCode, string(b)
+	}
+	if code, body := get("/readyz"); code != 200 || !strings.Contains(body, "degraded") || !strings.Contains(body, "running from the event log") {
+		t.Errorf("/readyz %d %q; want 200 saying the ledger cannot be written", code, body)
+	}
+	if _, body := get("/metrics"); !strings.Contains(body, "\nquietband_ledger_writable 0\n") {
+		t.Errorf("quietband_ledger_writable is not 0:\n%s", grepLines(body, "ledger"))
+	}
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	if code := p.wait(t, 20*time.Second); code != 0 {
+		t.Errorf("daemon stopped with status %d on a full state disk, want 0", code)
+	}
+	out := p.out.String()
+	for k := range 3 {
+		if strings.Contains(out, fmt.Sprintf("capture analysed\" capture=f%02d.ci8", k)) {
+			t.Errorf("f%02d.ci8 analysed again after the restart", k)
+		}
+	}
+	if c := strings.Count(out, "ledger cannot be written"); c != 1 {
+		t.Errorf("%d lines saying the ledger cannot be written, want 1", c)
+	}
+	if c := strings.Count(out, "saving the baseline"); c > 1 {
+		t.Errorf("%d lines about saving the baseline, want at most 1", c)
+	}
+
+	// Space back, the daemon restarted (the ledger made from the log),
+	// then the state disk filled up under it while clean captures arrive
+	// (each teaches the baseline, whose save fails): the baseline's
+	// failure is logged once, not at every try.
+	os.Remove(filepath.Join(s.state, "filler"))
+	p = startProcess(t, "run", "--config", s.cfgPath)
+	drop(1)
+	fillUp(t, filepath.Join(s.state, "filler"))
+	drop(4)
+	time.Sleep(2 * time.Second)
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	if code := p.wait(t, 20*time.Second); code != 0 {
+		t.Errorf("daemon stopped with status %d after the state disk filled under it, want 0", code)
+	}
+	run3 := p.out.String()
+	if c := strings.Count(run3, "saving the baseline"); c > 1 {
+		t.Errorf("%d lines about saving the baseline after the disk filled under the daemon, want at most 1", c)
+	}
+	monitortest.CheckOnce(t, s.logPath, n)
+	t.Logf("filled under a running daemon: %d baseline line(s), %d ledger line(s)", strings.Count(run3, "saving the baseline"), strings.Count(run3, "ledger cannot be written"))
+	t.Logf("state disk full, ledger.db lost: started, %d captures once each, %d baseline line(s); %s", n,
+		strings.Count(out, "saving the baseline"), grepLines(out, "ledger cannot be written"))
+}
+
+// fillUp writes path until its file system is full.
+func fillUp(t *testing.T, path string) {
+	t.Helper()
+	f, err := os.Create(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	buf := make([]byte, 4096)
+	for {
+		if _, err := f.Write(buf); err != nil {
+			return
+		}
+	}
+}
+
+// TestFaultsLedgerDamagedWhileRunning (issue 17, item 10): ledger.db cut
+// to nothing, or overwritten in place with garbage, under a running
+// daemon. Before: the next lookup faulted on bbolt's memory map (SIGBUS,
+// the process died) or bbolt panicked. Now the daemon keeps running: the
+// file is set aside as ledger.db.bad-* and rebuilt in place from the event
+// log, every capture is recorded once, and a restart finds the ledger
+// whole.
+func TestFaultsLedgerDamagedWhileRunning(t *testing.T) {
+	for _, c := range []struct {
+		name   string
+		damage func(path string) error
+	}{
+		{"cut to nothing", func(p string) error { return os.Truncate(p, 0) }},
+		{"overwritten in place", func(p string) error {
+			st, err := os.Stat(p)
+			if err != nil {
+				return err
+			}
+			b := make([]byte, st.Size())
+			rng := rand.New(rand.NewPCG(5, 6))
+			for i := range b {
+				b[i] = byte(rng.Uint32())
+			}
+			f, err := os.OpenFile(p, os.O_WRONLY, 0)
+			if err != nil {
+				return err
+			}
+			defer f.Close()
+			_, err = f.WriteAt(b, 0)
+			return err
+		}},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			s := newSite(t, "")
+			p := startProcess(t, "run", "--config", s.cfgPath)
+			n := 0
+			drop := func(k int) {
+				for range k {
+					monitortest.Drop(t, filepath.Join(s.in, fmt.Sprintf("g%02d.ci8", n)), monitortest.CI8(uint64(600+n), n%2 == 0))
+					n++
+				}
+				monitortest.WaitFor(t, 20*time.Second, "captures recorded", func() bool { return countAll(t, s.logPath) >= n })
+			}
+			drop(4)
+			time.Sleep(1100 * time.Millisecond) // housekeeping (each second) writes the ledger
+			if err := c.damage(filepath.Join(s.state, "ledger.db")); err != nil {
+				t.Fatal(err)
+			}
+			drop(4)
+			time.Sleep(1100 * time.Millisecond)
+			if p.cmd.ProcessState != nil {
+				t.Fatalf("daemon exited: %v", p.cmd.ProcessState)
+			}
+			p.cmd.Process.Signal(syscall.SIGTERM)
+			p.wait(t, 20*time.Second)
+			out := p.out.String()
+			if !strings.Contains(out, "damaged while open") {
+				t.Errorf("no log line about the damaged ledger")
+			}
+			if aside, _ := filepath.Glob(filepath.Join(s.state, "ledger.db.bad-*")); len(aside) != 1 {
+				t.Errorf("set aside: %v, want one ledger.db.bad-*", aside)
+			}
+			p = startProcess(t, "run", "--config", s.cfgPath)
+			drop(1)
+			p.cmd.Process.Signal(syscall.SIGTERM)
+			p.wait(t, 20*time.Second)
+			if strings.Contains(p.out.String(), "set aside") {
+				t.Errorf("the rebuilt ledger was set aside again at the restart")
+			}
+			monitortest.CheckOnce(t, s.logPath, n)
+			t.Logf("%s under a running daemon: %s; %d captures once each", c.name, grepLines(out, "damaged while open"), n)
+		})
+	}
+}
+
+// TestFaultsShortCaptures (issue 17, item 14): a clean capture of the
+// invented Kestrel Quay sky (synth's "clean" scenario: eight satellites,
+// 4 MS/s ci16) cut to 1, 100, 2 000, 20 000, 40 000 and 100 000 samples,
+// after two whole ones taught the site's C/N0 baseline. Before the
+// detector side's fix: cn0_drop "9.6 dB below baseline", all PRNs lost,
+// satellites [] and no note. What was not measured is not a drop: no
+// cn0_drop for any of them, and each record that has no C/N0 measurement
+// says why in a note.
+func TestFaultsShortCaptures(t *testing.T) {
+	gen := t.TempDir()
+	sc, err := synth.Builtin("clean")
+	if err != nil {
+		t.Fatal(err)
+	}
+	sc.Captures = sc.Captures[:3]
+	if _, err := synth.Write(&sc, gen); err != nil {
+		t.Fatal(err)
+	}
+	s := newSite(t, "satellites: true\n")
+	p := startProcess(t, "run", "--config", s.cfgPath)
+	dropPair := func(name string, meta, data []byte) {
+		monitortest.Drop(t, filepath.Join(s.in, name+".sigmf-meta"), meta)
+		monitortest.Drop(t, filepath.Join(s.in, name+".sigmf-data"), data)
+	}
+	for _, c := range sc.Captures[:2] {
+		base := filepath.Join(gen, c.Name)
+		dropPair(c.Name, monitortest.MustRead(t, base+".sigmf-meta"), monitortest.MustRead(t, base+".sigmf-data"))
+	}
+	monitortest.WaitFor(t, 60*time.Second, "the whole captures recorded", func() bool { return countAll(t, s.logPath) >= 2 })
+	src := filepath.Join(gen, sc.Captures[2].Name)
+	meta, data := monitortest.MustRead(t, src+".sigmf-meta"), monitortest.MustRead(t, src+".sigmf-data")
+	// A recorder's file cut short: no checksum of the whole to hold it to.
+	var m map[string]any
+	if err := json.Unmarshal(meta, &m); err != nil {
+		t.Fatal(err)
+	}
+	delete(m["global"].(map[string]any), "core:sha512")
+	if meta, err = json.Marshal(m); err != nil {
+		t.Fatal(err)
+	}
+	cuts := []int{1, 100, 2000, 20000, 40000, 100000}
+	for _, n := range cuts {
+		dropPair(fmt.Sprintf("cut-%06d", n), meta, data[:4*n]) // ci16: 4 bytes a complex sample
+	}
+	monitortest.WaitFor(t, 60*time.Second, "the cut captures recorded", func() bool { return countAll(t, s.logPath) >= 2+len(cuts) })
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	p.wait(t, 20*time.Second)
+
+	type rec struct {
+		Kind, Class, Capture, Status, Error string
+		Notes                               []string
+		Stats                               struct {
+			Satellites []json.RawMessage `json:"satellites"`
+		} `json:"stats"`
+	}
+	var recs []rec
+	err = eventlog.Scan(s.logPath, func(r eventlog.Record) error {
+		var x rec
+		if err := json.Unmarshal(r.Line, &x); err != nil {
+			return err
+		}
+		recs = append(recs, x)
+		return nil
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, r := range recs {
+		if !strings.HasPrefix(r.Capture, "cut-") {
+			// The whole captures teach the C/N0 baseline the cut ones
+			// would be held to: their satellites must be measured.
+			if r.Kind == eventlog.KindCapture && len(r.Stats.Satellites) < 4 {
+				t.Errorf("%s: %d satellites measured in a whole clean capture, want the sky's 8 (at least 4)", r.Capture, len(r.Stats.Satellites))
+			}
+			continue
+		}
+		if r.Kind == eventlog.KindEvent && r.Class == detect.ClassCN0Drop {
+			t.Errorf("%s: cn0_drop raised on a capture whose C/N0 was not measured", r.Capture)
+		}
+		if r.Kind != eventlog.KindCapture {
+			continue
+		}
+		said := ""
+		for _, n := range r.Notes {
+			if strings.Contains(n, "short") || strings.Contains(n, "satellite") || strings.Contains(n, "C/N0") {
+				said = n
+				break
+			}
+		}
+		if len(r.Stats.Satellites) == 0 && said == "" {
+			t.Errorf("%s (%s %s): no satellites and no note saying why: %q", r.Capture, r.Status, r.Error, r.Notes)
+		}
+		t.Logf("%s: %s, %d satellites, note %q", r.Capture, r.Status, len(r.Stats.Satellites), said)
+	}
+}
+
+// TestFaultsHugeCaptureProgress (issue 17, item 16): a large capture
+// (64 MiB of ci8, 33.5 M samples at 1 MS/s; 1 GiB with QUIETBAND_LONG=1)
+// while /metrics is scraped every 20 ms. Before: nothing in the metrics
+// said a capture was being analysed (queue_depth counts the waiting ones
+// only). Now quietband_analysis_in_progress{input="roof"} is 1 with
+// quietband_analysis_progress_ratio between 0 and 1, never going back,
+// while it is analysed, and all is 0 again once it is recorded.
+func TestFaultsHugeCaptureProgress(t *testing.T) {
+	size := 64 << 20
+	if longFaults() {
+		size = 1 << 30
+	}
+	s := newSite(t, "")
+	p := startProcess(t, "run", "--config", s.cfgPath)
+	addr := listenAddr(t, p)
+	tile := monitortest.CI8(77, false)
+	big := filepath.Join(s.dir, "big.ci8.part")
+	f, err := os.Create(big)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for n := 0; n < size; n += len(tile) {
+		f.Write(tile[:min(len(tile), size-n)])
+	}
+	f.Close()
+	scrape := func() (on, ratio float64) {
+		resp, err := (&http.Client{Timeout: 5 * time.Second}).Get("http://" + addr + "/metrics")
+		if err != nil {
+			t.Fatal(err)
+		}
+		defer resp.Body.Close()
+		b, _ := io.ReadAll(resp.Body)
+		for _, ln := range strings.Split(string(b), "\n") {
+			if v, ok := strings.CutPrefix(ln, `quietband_analysis_in_progress{input="roof"} `); ok {
+				on, _ = strconv.ParseFloat(v, 64)
+			}
+			if v, ok := strings.CutPrefix(ln, `quietband_analysis_progress_ratio{input="roof"} `); ok {
+				ratio, _ = strconv.ParseFloat(v, 64)
+			}
+		}
+		return on, ratio
+	}
+	t0 := time.Now()
+	if err := os.Rename(big, filepath.Join(s.in, "big.ci8")); err != nil {
+		t.Fatal(err)
+	}
+	var seen []float64
+	last := -1.0
+	for countAll(t, s.logPath) < 1 {
+		if time.Since(t0) > 5*time.Minute {
+			t.Fatal("the large capture was not recorded within 5 minutes")
+		}
+		if on, ratio := scrape(); on == 1 {
+			if ratio < last {
+				t.Errorf("progress went back from %g to %g", last, ratio)
+			}
+			last = ratio
+			seen = append(seen, ratio)
+		}
+		time.Sleep(20 * time.Millisecond)
+	}
+	took := time.Since(t0)
+	mid := 0
+	for _, r := range seen {
+		if r > 0 && r < 1 {
+			mid++
+		}
+	}
+	if mid == 0 {
+		t.Errorf("no scrape saw the capture in progress part way (%d scrapes with it in progress: %v)", len(seen), seen)
+	}
+	time.Sleep(100 * time.Millisecond)
+	if on, ratio := scrape(); on != 0 || ratio != 0 {
+		t.Errorf("after the record: in_progress %g, ratio %g; want 0, 0", on, ratio)
+	}
+	p.cmd.Process.Signal(syscall.SIGTERM)
+	p.wait(t, 20*time.Second)
+	t.Logf("%d MiB recorded %v after it was renamed into place; %d scrapes saw it in progress, %d part way (ratios %v)",
+		size>>20, took.Round(time.Millisecond), len(seen), mid, seen)
 }

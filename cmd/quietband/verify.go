@@ -20,7 +20,10 @@ header (v, kind, seq, prev), seq runs 1, 2, 3 ... without gap, and each
 record's prev is the SHA-256 of the line before it. Given one file, its
 rotated segments are checked with it, oldest first; given several, they are
 taken in the order given. Prints the first bad record (file, line, what is
-wrong) and exits 1, or a one-line summary and exits 0.`, errOut)
+wrong) and exits 1, or a one-line summary and exits 0. A log the daemon
+went on past a damaged file (set aside as LOG.damaged-SEQ, its next file
+starting with a record of kind break) is BAD at the damage; the lines after
+it say where the chain resumed and whether everything from there verifies.`, errOut)
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
@@ -46,6 +49,7 @@ wrong) and exits 1, or a one-line summary and exits 0.`, errOut)
 	sum, err := eventlog.Verify(paths...)
 	if err != nil {
 		fmt.Fprintf(out, "BAD  %v\n", err)
+		reportResumed(out, paths)
 		return exitCode(1)
 	}
 	span := "no times"
@@ -55,4 +59,21 @@ wrong) and exits 1, or a one-line summary and exits 0.`, errOut)
 	fmt.Fprintf(out, "OK   %d records (%d events, %d captures) in %d file(s), %s, head %s\n",
 		sum.Records, sum.Events, sum.Captures, sum.Files, span, sum.Head)
 	return nil
+}
+
+// reportResumed prints, after a BAD line, whether the log resumed after
+// the damage at a break record (issue 17, item 8) and whether the records
+// from it on verify.
+func reportResumed(out io.Writer, paths []string) {
+	brk, b, sum, err := eventlog.VerifyResumed(paths...)
+	if brk == nil {
+		return
+	}
+	fmt.Fprintf(out, "     the writer set %s aside (bad at line %d) and resumed at seq %d (%s:%d) from the last good record, seq %d, hash %s\n",
+		b.DamagedFile, b.DamagedLine, brk.Seq, brk.File, brk.LineNo, b.LastGoodSeq, b.LastGoodHash)
+	if err != nil {
+		fmt.Fprintf(out, "BAD  after the resumption: %v\n", err)
+		return
+	}
+	fmt.Fprintf(out, "OK   from the resumption: %d records (%d events, %d captures), head %s\n", sum.Records, sum.Events, sum.Captures, sum.Head)
 }

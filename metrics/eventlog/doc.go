@@ -7,7 +7,8 @@
 //
 //	{"v":1,"kind":"event","seq":7,"prev":"3f0c…",<body members>}
 //
-// v is the schema version (1), kind is "event" or "capture", seq counts
+// v is the schema version (1), kind is "event" or "capture" (or "break",
+// which the log writes itself: see below), seq counts
 // records 1, 2, 3 … over the whole log (rotation included), and prev chains
 // the records together:
 //
@@ -37,4 +38,13 @@
 // continues across segments. Segments lists the files oldest first, which is
 // the order Verify and NewReader expect; ScanFrom reads the records from a
 // given seq on without opening the segments that end before it.
+//
+// With Options.SetAsideDamaged (the daemon's), a file that fails
+// verification when the log is opened (a byte changed in place: a bad line
+// followed by more, or a break of the chain) does not keep the log shut:
+// it is renamed, untouched, to <active>.damaged-<first seq> and a new
+// active file starts with a record of kind "break" (Break) naming the
+// damaged file, line and problem and carrying the last good seq and hash,
+// the latter as its prev. Verify over Segments then names the damage, and
+// VerifyResumed checks the chain from the break on.
 package eventlog

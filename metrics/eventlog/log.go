@@ -14,6 +14,7 @@ import (
 	"path/filepath"
 	"strconv"
 	"sync"
+	"sync/atomic"
 
 	"quietband/ingest"
 )
@@ -37,6 +38,15 @@ type Options struct {
 	// Logger receives diagnostics (torn tails cut, rotations, failures).
 	// nil discards them.
 	Logger *slog.Logger
+	// SetAsideDamaged makes Open and Reopen go on past a file that fails
+	// verification (a bad line followed by more lines, or a break of the
+	// chain, in the active file or in the newest segment when the active
+	// file is empty) instead of refusing: the file is set aside untouched
+	// (DamagedName), a new active file is started and its first record, of
+	// kind KindBreak, says so and carries the last good hash (see Break).
+	// The daemon sets it: it keeps monitoring, and the evidence is kept
+	// for Verify to name.
+	SetAsideDamaged bool
 
 	// wrap, when set by tests, stands between the Log and the active file
 	// on the write path so that Write and Sync can be made to fail.
@@ -75,7 +85,9 @@ type Log struct {
 	recovered int64    // bytes cut by the last recovery
 	failed    error    // non-nil: the cause of the failed state
 	closed    bool
-	lock      *writerLock // one writer per log: held from Open to Close
+	breaks    int           // files set aside as damaged since Open
+	outside   atomic.Uint64 // outside changes taken up (Reattach)
+	lock      *writerLock   // one writer per log: held from Open to Close
 }
 
 // Open opens the log whose active file is path, creating it (mode 0640)
@@ -195,6 +207,16 @@ func (l *Log) AppendBatch(items []Item) ([]Record, error) {
 	if err := l.usable(); err != nil {
 		return nil, err
 	}
+	for i, it := range items {
+		if it.Kind == KindBreak {
+			return nil, fmt.Errorf("eventlog: item %d: kind %q is written by the log itself", i, it.Kind)
+		}
+	}
+	return l.appendLocked(items)
+}
+
+// appendLocked is AppendBatch with l.mu held and the Log usable.
+func (l *Log) appendLocked(items []Item) ([]Record, error) {
 	if len(items) == 0 {
 		return nil, nil
 	}
@@ -250,7 +272,7 @@ func (l *Log) encode(items []Item) (buf []byte, ends []int, err error) {
 	bodies := make([][]byte, len(items))
 	size := 0
 	for i, it := range items {
-		if it.Kind != KindEvent && it.Kind != KindCapture {
+		if it.Kind != KindEvent && it.Kind != KindCapture && it.Kind != KindBreak {
 			return nil, nil, fmt.Errorf("eventlog: item %d: kind %q is not %q or %q", i, it.Kind, KindEvent, KindCapture)
 		}
 		b, err := json.Marshal(it.Body)
@@ -456,6 +478,16 @@ func (l *Log) recover() error {
 	st, err := scanFile(f, l.path)
 	if err != nil {
 		f.Close()
+		if ve := damageOf(err); ve != nil && l.opt.SetAsideDamaged {
+			if st.sure() == 0 {
+				// Nothing good in it: the chain goes on from the newest
+				// segment's last record.
+				if err := l.recoverFromSegment(); err != nil {
+					return err
+				}
+			}
+			return l.setAsideDamaged(l.path, st, ve)
+		}
 		return err
 	}
 	l.recovered = 0
@@ -479,6 +511,11 @@ func (l *Log) recover() error {
 	if st.lines == 0 {
 		if err := l.recoverFromSegment(); err != nil {
 			f.Close()
+			var bad *damagedSegment
+			if errors.As(err, &bad) && l.opt.SetAsideDamaged {
+				l.seq, l.head = bad.prevSeq, bad.prevHead
+				return l.setAsideDamaged(bad.path, bad.st, bad.ve)
+			}
 			return err
 		}
 	}
@@ -486,30 +523,56 @@ func (l *Log) recover() error {
 	return nil
 }
 
+// damagedSegment is recoverFromSegment's error for a newest segment that
+// fails verification: the segment, what was read of it, the problem, and
+// the last record of the segment before it.
+type damagedSegment struct {
+	path     string
+	st       fileState
+	ve       *VerifyError
+	err      error
+	prevSeq  uint64
+	prevHead [32]byte
+}
+
+func (e *damagedSegment) Error() string { return e.err.Error() }
+func (e *damagedSegment) Unwrap() error { return e.err }
+
 // recoverFromSegment takes the last seq and hash from the newest rotated
 // segment, which must be whole: segments are sealed, so nothing in them is
 // a torn write.
 func (l *Log) recoverFromSegment() error {
-	segs, err := rotated(l.path)
+	all, err := rotated(l.path)
 	if err != nil {
 		return err
 	}
 	l.seq, l.head = 0, [32]byte{}
+	var segs []segment
+	for _, s := range all {
+		if !s.damaged {
+			segs = append(segs, s)
+		}
+	}
 	if len(segs) == 0 {
 		return nil
 	}
 	seg := segs[len(segs)-1]
-	f, err := os.Open(seg.path)
-	if err != nil {
-		return fmt.Errorf("eventlog: %w", err)
+	st, err := scanPath(seg.path)
+	if ve := damageOf(err); ve != nil || (err == nil && st.torn != nil) {
+		if ve == nil {
+			ve = st.torn
+			err = fmt.Errorf("eventlog: refusing to open %s: %w", l.path, st.torn)
+		}
+		bad := &damagedSegment{path: seg.path, st: st, ve: ve, err: err}
+		if len(segs) > 1 && st.sure() == 0 {
+			if pst, perr := scanPath(segs[len(segs)-2].path); perr == nil && pst.torn == nil {
+				bad.prevSeq, bad.prevHead = pst.last, pst.head
+			}
+		}
+		return bad
 	}
-	defer f.Close()
-	st, err := scanFile(f, seg.path)
 	if err != nil {
 		return err
-	}
-	if st.torn != nil {
-		return fmt.Errorf("eventlog: refusing to open %s: %w", l.path, st.torn)
 	}
 	if st.lines == 0 {
 		return fmt.Errorf("eventlog: refusing to open %s: rotated segment %s is empty", l.path, seg.path)
@@ -522,6 +585,22 @@ func (l *Log) recoverFromSegment() error {
 	return nil
 }
 
+// scanPath is scanFile on the file at path.
+func scanPath(path string) (fileState, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return fileState{}, fmt.Errorf("eventlog: %w", err)
+	}
+	defer f.Close()
+	return scanFile(f, path)
+}
+
+// sha256Hex is the lowercase hex SHA-256 of line.
+func sha256Hex(line []byte) string {
+	h := sha256.Sum256(line)
+	return hex.EncodeToString(h[:])
+}
+
 // fileState is what scanFile learns about one file.
 type fileState struct {
 	lines       int
@@ -530,6 +609,21 @@ type fileState struct {
 	good        int64    // offset just past the last whole record
 	size        int64    // bytes read
 	torn        *VerifyError
+	// prevHead is the SHA-256 of the line before the last whole record;
+	// chainBreak says the scan ended at a line whose prev is not the
+	// last whole record's hash: that record or this line was changed.
+	prevHead   [32]byte
+	chainBreak bool
+}
+
+// sure returns how many of the file's first records are beyond doubt: a
+// changed line is found at the line after it, whose prev no longer
+// matches, so after a chain break the last whole record is in doubt too.
+func (st fileState) sure() int {
+	if st.chainBreak {
+		return st.lines - 1
+	}
+	return st.lines
 }
 
 // scanFile reads a log file from its start, checking every line's header
@@ -568,6 +662,7 @@ func scanFile(r io.Reader, name string) (fileState, error) {
 					&VerifyError{File: name, Line: lineNo, Seq: st.last + 1, Problem: seqProblem(st.last+1, h.seq)})
 			}
 			if h.prev != hex.EncodeToString(st.head[:]) {
+				st.chainBreak = true
 				return st, fmt.Errorf("eventlog: refusing to open %s: %w", name,
 					&VerifyError{File: name, Line: lineNo, Seq: h.seq, Problem: prevProblem(fmt.Sprintf("line %d", lineNo-1))})
 			}
@@ -576,6 +671,7 @@ func scanFile(r io.Reader, name string) (fileState, error) {
 		}
 		st.lines++
 		st.last = h.seq
+		st.prevHead = st.head
 		st.head = sha256.Sum256(ln.line)
 		st.good = st.size
 	}

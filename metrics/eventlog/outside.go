@@ -117,9 +117,15 @@ func (l *Log) reattach() (string, error) {
 	}
 	l.setFile(f)
 	l.size, l.lines, l.firstSeq = 0, 0, 0
+	l.outside.Add(1)
 	l.logger.Error("eventlog: "+what, "file", l.path, "last_seq", l.seq)
 	return what, nil
 }
+
+// OutsideChanges returns how many times Reattach (or Reopen) found the
+// active file moved away, deleted, replaced or cut outside the Log and
+// took it up.
+func (l *Log) OutsideChanges() uint64 { return l.outside.Load() }
 
 // copySegment writes the first size bytes of src to a new file seg (not
 // replacing one), synced with its folder.

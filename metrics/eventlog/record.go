@@ -15,6 +15,10 @@ import (
 const (
 	KindEvent   = "event"   // one detected interference within one capture
 	KindCapture = "capture" // a capture's summary, written after its events
+	// KindBreak (added; kinds are never renamed) is written by the log
+	// itself as the first record of a new active file when the file
+	// before it failed verification and was set aside (see Break).
+	KindBreak = "break"
 )
 
 // Version is the schema version written in the "v" header member.
@@ -186,6 +190,9 @@ func scanFiles(files []string, from uint64, fn func(Record) error) error {
 			return nil
 		}
 		if err != nil {
+			if isDamaged(rec.File) && damageOf(err) != nil {
+				continue // a file set aside as damaged: its good lines still count
+			}
 			return err
 		}
 		if rec.Seq < from {
@@ -398,8 +405,10 @@ func parseHeader(line []byte) (header, string) {
 		h.kind = KindEvent
 	case KindCapture:
 		h.kind = KindCapture
+	case KindBreak:
+		h.kind = KindBreak
 	default:
-		return h, fmt.Sprintf("header field \"kind\" is %s, want %q or %q", clip(vals[1]), KindEvent, KindCapture)
+		return h, fmt.Sprintf("header field \"kind\" is %s, want %q, %q or %q", clip(vals[1]), KindEvent, KindCapture, KindBreak)
 	}
 	seq, err := parseSeq(vals[2])
 	if err != nil {

@@ -57,8 +57,9 @@ func segmentSeq(name, stem, ext string) (uint64, bool) {
 }
 
 // Segments returns the files of the log whose active file is path: the
-// rotated segments ordered by their first seq (oldest first), then the
-// active file if it exists. That is the order Verify and NewReader expect.
+// rotated segments, and the files set aside as damaged (DamagedName),
+// ordered by their first seq (oldest first), then the active file if it
+// exists. That is the order Verify and NewReader expect.
 func Segments(path string) ([]string, error) {
 	segs, err := rotated(path)
 	if err != nil {
@@ -78,11 +79,13 @@ func Segments(path string) ([]string, error) {
 }
 
 type segment struct {
-	path  string
-	first uint64
+	path    string
+	first   uint64
+	damaged bool // set aside because it failed verification (DamagedName)
 }
 
-// rotated lists the rotated segments of the log at path, oldest first.
+// rotated lists the rotated segments of the log at path, with the files
+// set aside as damaged in their place by first seq, oldest first.
 func rotated(path string) ([]segment, error) {
 	dir, stem, ext := splitName(path)
 	ents, err := os.ReadDir(dir)
@@ -95,7 +98,9 @@ func rotated(path string) ([]segment, error) {
 			continue
 		}
 		if n, ok := segmentSeq(e.Name(), stem, ext); ok {
-			segs = append(segs, segment{filepath.Join(dir, e.Name()), n})
+			segs = append(segs, segment{path: filepath.Join(dir, e.Name()), first: n})
+		} else if n, ok := damagedSeq(e.Name(), stem+ext); ok {
+			segs = append(segs, segment{path: filepath.Join(dir, e.Name()), first: n, damaged: true})
 		}
 	}
 	slices.SortFunc(segs, func(a, b segment) int {

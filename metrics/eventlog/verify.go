@@ -29,6 +29,7 @@ type Summary struct {
 	Records  uint64 // records read; also the last seq
 	Events   uint64 // records of kind "event"
 	Captures uint64 // records of kind "capture"
+	Breaks   uint64 // records of kind "break"
 	// First is the earliest "start" member and Last the latest "end" member
 	// (or "start" for records without "end"), parsed as RFC 3339 times
 	// (time.RFC3339Nano); zero when no record has one. Members that are
@@ -97,10 +98,13 @@ func Verify(paths ...string) (Summary, error) {
 		prevFile, prevLine = rec.File, rec.LineNo
 		sum.Records++
 		sum.Head = prev
-		if rec.Kind == KindEvent {
+		switch rec.Kind {
+		case KindEvent:
 			sum.Events++
-		} else {
+		case KindCapture:
 			sum.Captures++
+		case KindBreak:
+			sum.Breaks++
 		}
 		sum.addTimes(rec.Line)
 	}

@@ -401,10 +401,16 @@ type Ledger struct {
 	tailSeq     uint64
 	tailHead    [32]byte
 	lastWrite   time.Time
-	failLog     time.Time
 	groupWait   time.Duration // GroupWait; 0 writes every note at once
 
 	refresh map[string]Stamp // identities to remember by Key, written by save
+
+	// While the file cannot be written (unwritable.go): why, and whether
+	// it lags the log, the pending maps then holding every record after
+	// seq; lastTry is the last attempt to catch it up.
+	unwritable error
+	lagging    bool
+	lastTry    time.Time
 
 	missing  bool // the file did not exist when opened
 	applied  int  // records applied by the last sync
@@ -439,7 +445,11 @@ func Open(stateDir, logPath string, log *slog.Logger) (*Ledger, error) {
 	why := ""
 	switch {
 	case err != nil && lg.missing:
-		return nil, fmt.Errorf("ledger: %w", err)
+		// The file cannot be made (state disk full, read-only): the
+		// ledger runs from the log (see unwritable.go) until it can.
+		os.Remove(lg.path) // what bbolt began of it
+		lg.setUnwritable(fmt.Errorf("creating %s: %w", lg.path, err))
+		return lg, nil
 	case err != nil:
 		why = "does not open: " + err.Error()
 	default:
@@ -567,7 +577,8 @@ func putMeta(m *bolt.Bucket, seq uint64, head [32]byte, n uint64) error {
 
 // reset sets the ledger file aside (renamed to ledger.db.<tag>-<UTC time>)
 // with a warning giving why, and starts an empty one. old, if not nil, is
-// the open old file; it is closed once the new one is open.
+// the open old file; it is closed first. If no new file can be made the
+// ledger runs from the log (unwritable.go).
 func (lg *Ledger) reset(old *bolt.DB, tag, why string) error {
 	aside := ""
 	if _, err := os.Lstat(lg.path); err == nil {
@@ -583,19 +594,22 @@ func (lg *Ledger) reset(old *bolt.DB, tag, why string) error {
 		}
 	}
 	lg.log.Warn("quietband run: ledger set aside; rebuilding it from the event log", "file", lg.path, "moved_to", aside, "reason", why)
-	db, err := openBolt(lg.path)
 	if old != nil {
-		old.Close()
+		closeQuietly(old)
 	}
+	lg.db = nil
+	lg.seq, lg.head, lg.n = 0, [32]byte{}, 0
+	db, err := makeBolt(lg.path)
 	if err != nil {
-		return fmt.Errorf("ledger: %w", err)
-	}
-	if err := initLedger(db); err != nil {
-		db.Close()
-		return fmt.Errorf("ledger: initialising %s: %w", lg.path, err)
+		// No new file (state disk full): run from the log until one can
+		// be made (unwritable.go).
+		lg.setUnwritable(fmt.Errorf("making a new %s: %w", lg.path, err))
+		lg.tailSeq, lg.tailHead = 0, [32]byte{}
+		lg.dropUnsaved()
+		lg.missing = false
+		return nil
 	}
 	lg.db = db
-	lg.seq, lg.head, lg.n = 0, [32]byte{}, 0
 	lg.tailSeq, lg.tailHead = 0, [32]byte{}
 	lg.dropUnsaved()
 	lg.missing = false
@@ -618,9 +632,23 @@ var errStale = errors.New("ledger does not match the event log")
 // cut or is shorter) the ledger is set aside and rebuilt from the whole log.
 func (lg *Ledger) Sync() error {
 	lg.applied, lg.fullScan = 0, lg.seq == 0
+	// Whatever was noted and not written is in the log: read again below,
+	// written or (if the file cannot be written) held in memory.
+	lg.dropUnsaved()
+	lg.lagging = false
+	lg.tailSeq, lg.tailHead = lg.seq, lg.head
 	why, err := lg.catchUp()
+	tag := "stale"
+	if errors.Is(err, errDamagedOpen) {
+		why, err, tag = err.Error(), nil, "bad"
+	}
 	if err == nil && why != "" {
-		if err = lg.reset(lg.db, "stale", why); err == nil {
+		old := lg.db
+		if tag == "bad" {
+			abandon(old)
+			old = nil
+		}
+		if err = lg.reset(old, tag, why); err == nil {
 			lg.fullScan = true
 			why, err = lg.catchUp()
 			if err == nil && why != "" {
@@ -635,8 +663,11 @@ func (lg *Ledger) Sync() error {
 		lg.log.Warn("quietband run: no ledger; built it from the event log", "file", lg.path, "records", lg.applied)
 	}
 	lg.missing = false
-	lg.dropUnsaved()
-	lg.tailSeq, lg.tailHead = lg.seq, lg.head
+	if !lg.lagging {
+		lg.dropUnsaved()
+		lg.tailSeq, lg.tailHead = lg.seq, lg.head
+		lg.setWritable()
+	}
 	return nil
 }
 
@@ -664,8 +695,7 @@ func (lg *Ledger) catchUp() (string, error) {
 		if len(batch) < ledgerBatch {
 			return nil
 		}
-		err := lg.write([]noteBatch{newBatch(batch, nil)}, nil)
-		lg.applied += len(batch)
+		err := lg.apply(batch)
 		batch = batch[:0]
 		return err
 	})
@@ -680,10 +710,9 @@ func (lg *Ledger) catchUp() (string, error) {
 		return fmt.Sprintf("the event log ends before record %d, the last the ledger applied (log cut or replaced?)", from), nil
 	}
 	if len(batch) > 0 {
-		if err := lg.write([]noteBatch{newBatch(batch, nil)}, nil); err != nil {
+		if err := lg.apply(batch); err != nil {
 			return "", err
 		}
-		lg.applied += len(batch)
 	}
 	return "", nil
 }
@@ -749,7 +778,10 @@ func stampFor(stamps []Stamp, key string) *FileID {
 // head of the last record.
 func (lg *Ledger) write(batches []noteBatch, refresh map[string]Stamp) error {
 	seq, head, n := lg.seq, lg.head, lg.n
-	err := lg.db.Update(func(tx *bolt.Tx) error {
+	if lg.db == nil {
+		return fmt.Errorf("ledger: %w", errNoFile)
+	}
+	update := func(tx *bolt.Tx) error {
 		caps, evs, meta := tx.Bucket(bucketCaptures), tx.Bucket(bucketEvents), tx.Bucket(bucketMeta)
 		for _, b := range batches {
 			for i, rec := range b.recs {
@@ -794,7 +826,8 @@ func (lg *Ledger) write(batches []noteBatch, refresh map[string]Stamp) error {
 			}
 		}
 		return putMeta(meta, seq, head, n)
-	})
+	}
+	err := safely(func() error { return lg.db.Update(update) })
 	if err != nil {
 		return fmt.Errorf("ledger: writing %s: %w", lg.path, err)
 	}
@@ -849,6 +882,10 @@ func (lg *Ledger) Note(recs []eventlog.Record, stamps ...Stamp) error {
 			"ledger_seq", lg.tailSeq, "record_seq", recs[0].Seq)
 		return lg.Sync()
 	}
+	if lg.lagging {
+		lg.hold(recs, stamps)
+		return lg.Save()
+	}
 	b := newBatch(recs, stamps)
 	lg.unsaved = append(lg.unsaved, b)
 	for i, rec := range recs {
@@ -881,21 +918,23 @@ func (lg *Ledger) Remember(input, name string, id FileID, sha string) {
 
 // save writes what is noted or remembered but not yet in the file.
 func (lg *Ledger) Save() error {
+	if lg.lagging {
+		return lg.catchUpLater()
+	}
 	if len(lg.unsaved) == 0 && len(lg.refresh) == 0 {
 		return nil
 	}
 	lg.lastWrite = time.Now()
 	if err := lg.write(lg.unsaved, lg.refresh); err != nil {
-		if time.Since(lg.failLog) >= time.Minute {
-			lg.failLog = time.Now()
-			lg.log.Error("quietband run: ledger write failed; the event log holds the records, retrying",
-				"file", lg.path, "records_waiting", lg.waiting(), "err", err)
+		if errors.Is(err, errDamagedOpen) {
+			return lg.rebuild(err)
 		}
+		// The records are in the log: keep what lookups need in memory
+		// and catch the file up from the log once it can be written.
+		lg.setUnwritable(err)
+		lg.unsaved = nil
+		clear(lg.refresh)
 		return err
-	}
-	if lg.waiting() > 0 && !lg.failLog.IsZero() {
-		lg.failLog = time.Time{}
-		lg.log.Info("quietband run: ledger writable again", "file", lg.path)
 	}
 	lg.dropUnsaved()
 	clear(lg.refresh)
@@ -917,6 +956,11 @@ func (lg *Ledger) waiting() int {
 // under the daemon) makes the ledger be rebuilt from the log, once.
 func (lg *Ledger) Lookup(input, name string) (Entry, bool, error) {
 	e, ok, err := lg.lookup(input, name)
+	if errors.Is(err, errDamagedOpen) {
+		if err = lg.rebuild(err); err == nil {
+			e, ok, err = lg.lookup(input, name)
+		}
+	}
 	if errors.Is(err, errEntry) {
 		if err = lg.reset(lg.db, "bad", fmt.Sprintf("capture %q of input %q: %v", name, input, err)); err == nil {
 			if err = lg.Sync(); err == nil {
@@ -941,8 +985,8 @@ func (lg *Ledger) lookup(input, name string) (Entry, bool, error) {
 func (lg *Ledger) get(key string) (Entry, bool, error) {
 	var e Entry
 	found := false
-	if key != "" {
-		err := lg.db.View(func(tx *bolt.Tx) error {
+	if key != "" && lg.db != nil {
+		view := func(tx *bolt.Tx) error {
 			v := tx.Bucket(bucketCaptures).Get([]byte(key))
 			if v == nil {
 				return nil
@@ -951,7 +995,8 @@ func (lg *Ledger) get(key string) (Entry, bool, error) {
 			var err error
 			e, err = decodeEntry(v)
 			return err
-		})
+		}
+		err := safely(func() error { return lg.db.View(view) })
 		if err != nil {
 			return Entry{}, false, err
 		}
@@ -965,19 +1010,49 @@ func (lg *Ledger) get(key string) (Entry, bool, error) {
 
 // hasEvent reports whether an event with this id is in the log.
 func (lg *Ledger) HasEvent(id string) (bool, error) {
-	found := false
-	if _, ok := lg.pendingIDs[id]; ok {
-		return true, nil
+	found, err := lg.hasEvent(id)
+	if errors.Is(err, errDamagedOpen) {
+		if err = lg.rebuild(err); err == nil {
+			found, err = lg.hasEvent(id)
+		}
 	}
-	err := lg.db.View(func(tx *bolt.Tx) error {
-		found = tx.Bucket(bucketEvents).Get(eventKey(id)) != nil
-		return nil
+	return found, err
+}
+
+func (lg *Ledger) hasEvent(id string) (bool, error) {
+	found := false
+	if _, ok := lg.pendingIDs[id]; ok || lg.db == nil {
+		return ok, nil
+	}
+	err := safely(func() error {
+		return lg.db.View(func(tx *bolt.Tx) error {
+			found = tx.Bucket(bucketEvents).Get(eventKey(id)) != nil
+			return nil
+		})
 	})
 	return found, err
 }
 
-// Captures is the number of captures recorded (names in their inputs).
-func (lg *Ledger) Captures() uint64 { return lg.n }
+// Captures is the number of captures recorded (names in their inputs),
+// those noted but not yet in the file (or held while it cannot be
+// written) included.
+func (lg *Ledger) Captures() uint64 {
+	n := lg.n
+	errFound := errors.New("found")
+	for key := range lg.pendingCaps {
+		if lg.db == nil || safely(func() error {
+			return lg.db.View(func(tx *bolt.Tx) error {
+				if tx.Bucket(bucketCaptures).Get([]byte(key)) != nil {
+					return errFound // not a new capture
+				}
+				return nil
+			})
+		}) == nil {
+			n++
+		}
+	}
+	return n
+}
 
 // Path is the ledger's file (state_dir/ledger.db).
 func (lg *Ledger) Path() string { return lg.path }
@@ -986,13 +1061,24 @@ func (lg *Ledger) Path() string { return lg.path }
 // and whether it read the whole log (a new or rebuilt ledger).
 func (lg *Ledger) LastSync() (applied int, fullScan bool) { return lg.applied, lg.fullScan }
 
-// Close writes what waits and closes the file.
+// Close writes what waits and closes the file. A ledger running from the
+// log (its file cannot be written) is closed as it is, with a warning.
 func (lg *Ledger) Close() error {
 	if lg == nil || lg.db == nil {
 		return nil
 	}
-	err := lg.Save()
-	if cerr := lg.db.Close(); err == nil {
+	var err error
+	if lg.lagging {
+		// Not an error: the log holds what the file lacks, and the next
+		// start catches it up (or runs from the log again).
+		lg.log.Warn("quietband run: ledger closed behind the event log; the next start catches it up", "file", lg.path, "ledger_seq", lg.seq, "log_seq", lg.tailSeq)
+	} else {
+		err = lg.Save()
+	}
+	if lg.db == nil {
+		return err
+	}
+	if cerr := closeQuietly(lg.db); err == nil {
 		err = cerr
 	}
 	lg.db = nil

@@ -114,6 +114,10 @@ type Monitor struct {
 	processed   atomic.Int64      // captures recorded by this run
 	retries     map[string]*retry // captures to try again (transient failures), by input and name
 	hashes      atomic.Int64      // data files read whole to hash them (not by analysis)
+	baseFailing bool              // the last baseline save failed (logged once)
+	ledgerOK    atomic.Bool       // the ledger's file can be written
+	ledgerWhy   atomic.Value      // string: why not, while it cannot
+	retried     atomic.Uint64     // captures scheduled to be tried again (transient failures)
 }
 
 // New opens the ledger (taking its lock, so that a second daemon on the
@@ -140,7 +144,8 @@ func New(cfg Config, log *slog.Logger) (*Monitor, error) {
 	if err != nil {
 		return nil, err
 	}
-	l, err := eventlog.Open(cfg.LogPath, eventlog.Options{MaxBytes: cfg.LogMaxBytes, Logger: log})
+	// A damaged file is set aside and the log goes on (issue 17, item 8).
+	l, err := eventlog.Open(cfg.LogPath, eventlog.Options{MaxBytes: cfg.LogMaxBytes, Logger: log, SetAsideDamaged: true})
 	if err != nil {
 		lg.Close()
 		return nil, err
@@ -163,6 +168,7 @@ func New(cfg Config, log *slog.Logger) (*Monitor, error) {
 	log.Info("quietband run: ledger ready", "file", lg.Path(), "log", cfg.LogPath, "records", l.LastSeq(), "captures_done", lg.Captures(),
 		"applied", applied, "full_scan", fullScan, "log_files_read_for_recent", files, "head", l.Head(),
 		"took", time.Since(t0).Round(time.Millisecond))
+	m.noteLedger()
 	m.state = detect.NewState()
 	m.loadBaseline()
 	m.pipe = m.newPipeline(cfg)
@@ -185,11 +191,15 @@ func New(cfg Config, log *slog.Logger) (*Monitor, error) {
 		return fail(err)
 	}
 	m.set = metrics.New(metrics.Options{Inputs: names, GoCollector: cfg.GoCollector, Sources: metrics.Sources{
-		QueueDepth:      func() int { return m.watcher.Stats().Backlog },
-		EventLogLastSeq: m.elog.LastSeq,
-		WatchRescans:    func() uint64 { return m.watcher.Stats().Rescans },
-		WatchOverflows:  func() uint64 { return m.watcher.Stats().Overflows },
-		FolderReadable:  func(input string) bool { return FolderProblem(m.inputs[input].Path) == nil },
+		QueueDepth:             func() int { return m.watcher.Stats().Backlog },
+		EventLogLastSeq:        m.elog.LastSeq,
+		WatchRescans:           func() uint64 { return m.watcher.Stats().Rescans },
+		WatchOverflows:         func() uint64 { return m.watcher.Stats().Overflows },
+		FolderReadable:         func(input string) bool { return FolderProblem(m.inputs[input].Path) == nil },
+		EventLogDamaged:        func() int { d, _ := eventlog.Damaged(cfg.LogPath); return len(d) },
+		LedgerWritable:         func() bool { return m.ledgerOK.Load() },
+		CaptureRetries:         m.retried.Load,
+		EventLogOutsideChanges: m.elog.OutsideChanges,
 	}})
 	// Restore each input's live state from its latest capture in the log
 	// (issue 18: a restart kept no alert firing and made the stale-monitor
@@ -205,7 +215,7 @@ func New(cfg Config, log *slog.Logger) (*Monitor, error) {
 	}
 	m.commit = &eventlog.Committer{Log: l, Retry: appendRetry, Logger: log, Failed: m.set.EventLogWriteFailed, Writable: m.set.SetEventLogWritable}
 	m.server, err = metrics.NewServer(metrics.ServerOptions{Listen: cfg.Listen, WebConfigFile: cfg.WebConfigFile,
-		Gatherer: m.set.Registry(), Ready: m.notReady, Recent: m.recent, Logger: log.With("component", "http")})
+		Gatherer: m.set.Registry(), Ready: m.notReady, Degraded: m.degraded, Recent: m.recent, Logger: log.With("component", "http")})
 	if err != nil {
 		return fail(err)
 	}
@@ -341,6 +351,7 @@ func (m *Monitor) housekeeping(now time.Time) {
 		m.saveBaseline()
 	}
 	m.ledger.Save() // identities remembered, or records a failed write left
+	m.noteLedger()
 	if now.Sub(m.lastHead) >= headEvery {
 		m.lastHead = now
 		m.log.Info("quietband run: event log head", "last_seq", m.elog.LastSeq(), "head", m.elog.Head())
@@ -409,11 +420,41 @@ func (m *Monitor) saveBaseline() {
 		return
 	}
 	path := filepath.Join(m.cfg.StateDir, baseline.FileName)
+	// A failed save is tried again at the next interval, and logged once
+	// per failing spell (issue 17, item 9: 29 lines in 30 s on a full
+	// state disk).
+	m.baseSaved = time.Now()
 	if err := baseline.Save(path, m.state.Baselines); err != nil {
-		m.log.Error("quietband run: saving the baseline", "file", path, "err", err)
+		if !m.baseFailing {
+			m.baseFailing = true
+			m.log.Error("quietband run: saving the baseline failed; kept in memory and tried again every "+baselineEvery.String()+" (logged once until it works)", "file", path, "err", err)
+		}
 		return
 	}
-	m.baseDirty, m.baseSaved = false, time.Now()
+	if m.baseFailing {
+		m.baseFailing = false
+		m.log.Info("quietband run: baseline saved again", "file", path)
+	}
+	m.baseDirty = false
+}
+
+// noteLedger publishes whether the ledger's file can be written, for the
+// metric and /readyz (the ledger logs the change itself).
+func (m *Monitor) noteLedger() {
+	err := m.ledger.Unwritable()
+	m.ledgerOK.Store(err == nil)
+	if err != nil {
+		m.ledgerWhy.Store(err.Error())
+	}
+}
+
+// degraded lists what works in a slower way while the daemon is ready.
+func (m *Monitor) degraded() []string {
+	if m.ledgerOK.Load() {
+		return nil
+	}
+	why, _ := m.ledgerWhy.Load().(string)
+	return []string{"ledger " + m.ledger.Path() + " cannot be written (" + why + "): running from the event log; captures seen again are hashed"}
 }
 
 // reload reopens the event log and applies the configuration next gives

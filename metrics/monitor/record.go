@@ -69,7 +69,7 @@ func (m *Monitor) handle(ctx context.Context, w ingest.Found) error {
 		}
 	}
 
-	out, err := replay.Analyse(ctx, m.pipe, w)
+	out, err := m.analyse(ctx, w)
 	if err != nil {
 		m.log.Info("quietband run: capture abandoned; it is analysed again on the next start", "capture", name)
 		return err

@@ -52,6 +52,7 @@ func (m *Monitor) retryLater(w ingest.Found, err error) bool {
 	wait := min(retryFirst<<(r.tries-1), retryMaxWait)
 	r.found, r.at, r.inFlight = w, time.Now().Add(wait), false
 	m.retries[key] = r
+	m.retried.Add(1)
 	m.log.Warn("quietband run: capture could not be read for a transient reason; trying again later",
 		"capture", w.Name, "input", w.Input, "try", r.tries, "in", wait, "err", err)
 	return true

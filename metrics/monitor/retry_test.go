@@ -92,5 +92,17 @@ func TestTransientRetried(t *testing.T) {
 	if rs := caps["odd.ci8"]; len(rs) != 1 {
 		t.Errorf("odd.ci8: %+v, want quarantined at once", rs)
 	}
+	// Every retry scheduled is counted (fd.ci8 once, always.ci8 until it
+	// was quarantined): quietband_capture_retries_total.
+	mfs, _ := m.set.Registry().Gather()
+	got := -1.0
+	for _, mf := range mfs {
+		if mf.GetName() == "quietband_capture_retries_total" {
+			got = mf.GetMetric()[0].GetCounter().GetValue()
+		}
+	}
+	if got != float64(retryTries) {
+		t.Errorf("quietband_capture_retries_total %g, want %d", got, retryTries)
+	}
 	t.Logf("waits between tries: %v", waits)
 }
