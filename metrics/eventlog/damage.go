@@ -65,9 +65,14 @@ func Damaged(path string) ([]string, error) {
 // file a Log started after the file before it failed verification
 // (Options.SetAsideDamaged):
 //
-//	{"v":1,"kind":"break","seq":N+1,"prev":<last_good_hash>,"reason":…,
-//	 "damaged_file":…,"damaged_line":…,"damaged_seq":…,"problem":…,
-//	 "last_good_seq":…,"last_good_hash":…,"at":…}
+//	{"v":1,"kind":"capture","seq":N+1,"prev":<last_good_hash>,
+//	 "capture":<damaged_file>,"status":"quarantined","error":…,"events":0,
+//	 "log_break":true,"reason":…,"damaged_file":…,"damaged_line":…,
+//	 "damaged_seq":…,"problem":…,"last_good_seq":…,"last_good_hash":…,"at":…}
+//
+// It is a capture record as the contract has it (kinds event and capture
+// only): a quarantined one, named after the file set aside, so that a
+// reader of the contract shows an error where the log broke.
 //
 // N is the highest seq any line of the damaged file still shows, or its
 // first seq plus its lines less one if more (so no seq is used twice), and
@@ -78,6 +83,15 @@ func Damaged(path string) ([]string, error) {
 // good record is the one before both (damaged_line names where
 // verification failed, as Verify does).
 type Break struct {
+	// The members a reader of the contract sees: a quarantined capture
+	// named after the file set aside, the reason in error, no events;
+	// LogBreak marks the record as a break (see KindBreak).
+	Capture  string `json:"capture"`
+	Status   string `json:"status"`
+	Error    string `json:"error"`
+	Events   int    `json:"events"`
+	LogBreak bool   `json:"log_break"`
+
 	Reason       string `json:"reason"`
 	DamagedFile  string `json:"damaged_file"` // base name of the file set aside
 	DamagedLine  int    `json:"damaged_line"` // first bad line in it, 1-based
@@ -166,6 +180,9 @@ func (l *Log) setAsideDamaged(bad string, st fileState, ve *VerifyError) error {
 	}
 	b := Break{Reason: BreakReason, DamagedFile: filepath.Base(aside), DamagedLine: ve.Line, DamagedSeq: ve.Seq,
 		Problem: ve.Problem, LastGoodSeq: lastSeq, LastGoodHash: good, At: time.Now().UTC().Format(time.RFC3339Nano)}
+	b.Capture, b.Status, b.LogBreak = b.DamagedFile, "quarantined", true
+	b.Error = fmt.Sprintf("event log file %s failed verification at line %d (%s): set aside untouched; the chain goes on from seq %d",
+		b.DamagedFile, b.DamagedLine, b.Problem, b.LastGoodSeq)
 	if _, err := l.appendLocked([]Item{{Kind: KindBreak, Body: b}}); err != nil {
 		return err
 	}

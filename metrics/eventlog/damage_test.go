@@ -110,7 +110,9 @@ func TestSetAsideDamaged(t *testing.T) {
 			if err := (Record{Line: recs[0]}).Decode(&b); err != nil {
 				t.Fatal(err)
 			}
-			if b.Kind != KindBreak || b.Prev != want || b.LastGoodHash != want || b.LastGoodSeq != c.lastGood ||
+			// On the wire a quarantined capture record (the contract's
+			// kinds), marked log_break.
+			if b.Kind != KindCapture || !b.LogBreak || b.Status != "quarantined" || !strings.Contains(b.Error, b.DamagedFile) || b.Prev != want || b.LastGoodHash != want || b.LastGoodSeq != c.lastGood ||
 				b.DamagedLine != c.badLine || b.DamagedFile != "events.jsonl.damaged-"+strconv.FormatUint(first, 10) {
 				t.Errorf("break record %s; want prev = last_good_hash = %s, last_good_seq %d, damaged line %d", recs[0], want, c.lastGood, c.badLine)
 			}

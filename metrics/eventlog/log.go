@@ -298,7 +298,11 @@ func (l *Log) encode(items []Item) (buf []byte, ends []int, err error) {
 		seq++
 		start := len(buf)
 		buf = append(buf, `{"v":1,"kind":"`...)
-		buf = append(buf, it.Kind...)
+		if it.Kind == KindBreak {
+			buf = append(buf, KindCapture...) // see KindBreak
+		} else {
+			buf = append(buf, it.Kind...)
+		}
 		buf = append(buf, `","seq":`...)
 		buf = strconv.AppendUint(buf, seq, 10)
 		buf = append(buf, `,"prev":"`...)

@@ -15,11 +15,17 @@ import (
 const (
 	KindEvent   = "event"   // one detected interference within one capture
 	KindCapture = "capture" // a capture's summary, written after its events
-	// KindBreak (added; kinds are never renamed) is written by the log
-	// itself as the first record of a new active file when the file
-	// before it failed verification and was set aside (see Break).
+	// KindBreak is how a Record reports a break record: the log's own
+	// first record of a new active file when the file before it failed
+	// verification and was set aside (see Break). On the wire it is a
+	// capture record, "kind":"capture" with status "quarantined" (the
+	// contract admits the kinds event and capture only, ../shared
+	// DESIGN.md), told apart by its added member "log_break": true.
 	KindBreak = "break"
 )
+
+// breakMember is the top-level member that marks a break record.
+const breakMember = `"log_break"`
 
 // Version is the schema version written in the "v" header member.
 const Version = 1
@@ -378,7 +384,11 @@ func parseHeader(line []byte) (header, string) {
 	}
 	var vals [len(headerNames)][]byte
 	dup := -1
+	isBreak := false
 	forMembers(line, func(key, val []byte) {
+		if string(key) == breakMember && string(val) == "true" {
+			isBreak = true
+		}
 		if j := headerIndex(key); j >= 0 {
 			if vals[j] != nil && dup < 0 {
 				dup = j
@@ -405,10 +415,11 @@ func parseHeader(line []byte) (header, string) {
 		h.kind = KindEvent
 	case KindCapture:
 		h.kind = KindCapture
-	case KindBreak:
-		h.kind = KindBreak
+		if isBreak {
+			h.kind = KindBreak
+		}
 	default:
-		return h, fmt.Sprintf("header field \"kind\" is %s, want %q, %q or %q", clip(vals[1]), KindEvent, KindCapture, KindBreak)
+		return h, fmt.Sprintf("header field \"kind\" is %s, want %q or %q", clip(vals[1]), KindEvent, KindCapture)
 	}
 	seq, err := parseSeq(vals[2])
 	if err != nil {

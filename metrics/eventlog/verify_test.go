@@ -119,7 +119,7 @@ func TestVerifyMessages(t *testing.T) {
 		{"v is a string", []string{head2 + strings.Replace(line3(""), `"v":1`, `"v":"1"`, 1) + "\n"},
 			`f1:3: header field "v" is "1", want the integer 1`, 3},
 		{"kind unknown", []string{head2 + strings.Replace(line3(""), `"event"`, `"alarm"`, 1) + "\n"},
-			`f1:3: header field "kind" is "alarm", want "event", "capture" or "break"`, 3},
+			`f1:3: header field "kind" is "alarm", want "event" or "capture"`, 3},
 		{"seq not an integer", []string{head2 + strings.Replace(line3(""), `"seq":3`, `"seq":3.0`, 1) + "\n"},
 			`f1:3: header field "seq" is 3.0, want a positive integer`, 3},
 		{"seq zero", []string{strings.Replace(string(ls[0]), `"seq":1`, `"seq":0`, 1) + "\n"},
