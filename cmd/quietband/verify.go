@@ -22,7 +22,8 @@ rotated segments are checked with it, oldest first; given several, they are
 taken in the order given. Prints the first bad record (file, line, what is
 wrong) and exits 1, or a one-line summary and exits 0. A log the daemon
 went on past a damaged file (set aside as LOG.damaged-SEQ, its next file
-starting with a record of kind break) is BAD at the damage; the lines after
+starting with a break record: a quarantined capture record marked
+log_break) is BAD at the damage; the lines after
 it say where the chain resumed and whether everything from there verifies.`, errOut)
 	if err := parseFlags(fs, args); err != nil {
 		return err

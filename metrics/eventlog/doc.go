@@ -7,8 +7,9 @@
 //
 //	{"v":1,"kind":"event","seq":7,"prev":"3f0c…",<body members>}
 //
-// v is the schema version (1), kind is "event" or "capture" (or "break",
-// which the log writes itself: see below), seq counts
+// v is the schema version (1), kind is "event" or "capture" (a break
+// record, which the log writes itself, is a capture record marked
+// "log_break": true: see below), seq counts
 // records 1, 2, 3 … over the whole log (rotation included), and prev chains
 // the records together:
 //
@@ -43,7 +44,8 @@
 // verification when the log is opened (a byte changed in place: a bad line
 // followed by more, or a break of the chain) does not keep the log shut:
 // it is renamed, untouched, to <active>.damaged-<first seq> and a new
-// active file starts with a record of kind "break" (Break) naming the
+// active file starts with a break record (Break: a quarantined capture
+// record marked "log_break": true, Record.Kind KindBreak) naming the
 // damaged file, line and problem and carrying the last good seq and hash,
 // the latter as its prev. Verify over Segments then names the damage, and
 // VerifyResumed checks the chain from the break on.

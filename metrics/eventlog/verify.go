@@ -29,7 +29,7 @@ type Summary struct {
 	Records  uint64 // records read; also the last seq
 	Events   uint64 // records of kind "event"
 	Captures uint64 // records of kind "capture"
-	Breaks   uint64 // records of kind "break"
+	Breaks   uint64 // break records (KindBreak)
 	// First is the earliest "start" member and Last the latest "end" member
 	// (or "start" for records without "end"), parsed as RFC 3339 times
 	// (time.RFC3339Nano); zero when no record has one. Members that are
