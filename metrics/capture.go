@@ -47,6 +47,7 @@ func (s *Set) ObserveCapture(c Capture) {
 		s.realtime.Set(c.Duration.Seconds() / c.Elapsed.Seconds())
 	}
 	s.setLive(c)
+	s.receiver.observe(c.Input, c.Record, true)
 }
 
 // Restore sets the live state (the gauges, not the counters) of an input
@@ -60,6 +61,7 @@ func (s *Set) Restore(c Capture) {
 		return
 	}
 	s.setLive(c)
+	s.receiver.observe(c.Input, c.Record, false)
 }
 
 // setLive sets the gauges that describe an input's latest analysed

@@ -103,6 +103,7 @@ type Set struct {
 	watcherUp     prometheus.Gauge
 
 	progress *progress // the capture in progress, per input (progress.go)
+	receiver *receiver // the recorder's fault, clock, orientation (receiver.go)
 
 	mu     sync.Mutex
 	prns   map[string]map[int]bool // PRNs exposed per input
@@ -202,6 +203,7 @@ func New(opt Options) *Set {
 		s.registerRetries, s.registerOutside} {
 		register(src)
 	}
+	s.registerReceiver(opt.Inputs)
 
 	version, revision := buildVersion()
 	info := gauge("build_info", "Build of the running quietband: always 1, the labels say which.", "version", "revision", "goversion")
