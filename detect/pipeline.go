@@ -318,7 +318,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 	}
 	for _, ev := range tr.events {
 		e := ev.toEvent(c, name, cfg, fs, center, hasCenter, noise)
-		e.ID = eventID(sha, e.Class, e.SampleStart, e.OffsetHz, fp, o.input, readingSHA(c))
+		e.ID = eventID(sha, e.Class, e.SampleStart, e.OffsetHz, fp, o.input, c.MetadataSHA256())
 		e.Episode = e.ID
 		if ep, ok := episodes[ev.after]; ok && ev.after != nil {
 			e.Episode = ep
@@ -351,7 +351,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 		if hasCenter {
 			drop.CenterHz = ptr(center)
 		}
-		drop.ID = eventID(sha, drop.Class, 0, 0, fp, o.input, readingSHA(c))
+		drop.ID = eventID(sha, drop.Class, 0, 0, fp, o.input, c.MetadataSHA256())
 		drop.Episode = drop.ID
 		drop.OpenAtEnd = true // measured over the whole capture
 		for i := range res.Events {
@@ -375,7 +375,7 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 		if hasCenter {
 			ev.CenterHz = ptr(center)
 		}
-		ev.ID = eventID(sha, ev.Class, 0, 0, fp, o.input, readingSHA(c))
+		ev.ID = eventID(sha, ev.Class, 0, 0, fp, o.input, c.MetadataSHA256())
 		ev.Episode = ev.ID
 		ev.OpenAtEnd = true // judged over the whole capture
 		for _, o := range prev {
@@ -414,8 +414,13 @@ func (p *Pipeline) Process(ctx context.Context, c *ingest.Capture, name string, 
 		}
 	}
 
-	rec := CaptureRecord{Capture: name, SHA256: sha, Format: c.Format.String(), SampleRate: c.FileSampleRate,
-		Samples: c.FileSamples, Status: StatusOK, Events: len(res.Events), Stats: &stats, Fault: fault, Config: fp}
+	// The capture's identity (issue 17, items 6 and 7): its input, on the
+	// record and every event, and how its metadata reads the samples.
+	rec := CaptureRecord{Capture: name, Input: o.input, SHA256: sha, MetadataSHA256: c.MetadataSHA256(), Format: c.Format.String(),
+		SampleRate: c.FileSampleRate, Samples: c.FileSamples, Status: StatusOK, Events: len(res.Events), Stats: &stats, Fault: fault, Config: fp}
+	for i := range res.Events {
+		res.Events[i].Input = o.input
+	}
 	if c.Decimation > 1 {
 		rec.AnalysisRateHz = ptr(fs)
 	}
@@ -512,14 +517,6 @@ func eventID(sha, class string, start int64, offset float64, fp, input, meta str
 	}
 	h := sha256.Sum256(b)
 	return hex.EncodeToString(h[:12])
-}
-
-// readingSHA is c's metadata's ReadingSHA256, "" for a raw capture.
-func readingSHA(c *ingest.Capture) string {
-	if c.Meta == nil {
-		return ""
-	}
-	return c.Meta.ReadingSHA256
 }
 
 func overlaps(a0, a1, b0, b1 float64) bool { return a0 <= b1 && b0 <= a1 }

@@ -85,6 +85,16 @@ type Annotation struct {
 	Extra         map[string]json.RawMessage
 }
 
+// MetadataSHA256 is the ReadingSHA256 of the capture's SigMF metadata
+// (how its samples are read): part of the capture's identity (issue 17,
+// item 7). "" for a raw file.
+func (c *Capture) MetadataSHA256() string {
+	if c.Meta == nil {
+		return ""
+	}
+	return c.Meta.ReadingSHA256
+}
+
 // readingSHA256 is the lowercase hex SHA-256 (FIPS 180-4) of the global
 // object and the captures array as JSON without insignificant whitespace
 // (RFC 8259, section 2; json.Compact), joined by a newline: what says how

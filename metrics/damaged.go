@@ -7,7 +7,8 @@ import "github.com/prometheus/client_golang/prometheus"
 // (eventlog.Damaged), read at each scrape. It stays above 0, and
 // QuietbandEventLogDamaged fires, until an operator has looked at them
 // (quietband verify names the place) and moved them away.
-func (s *Set) registerDamaged(src Sources) {
+func (s *Set) registerDamaged(opt Options) {
+	src := opt.Sources
 	if src.EventLogDamaged == nil {
 		return
 	}

@@ -7,7 +7,8 @@ import "github.com/prometheus/client_golang/prometheus"
 // while it cannot (state disk full, read-only) and the daemon runs from
 // the event log instead, hashing captures it sees again. /readyz stays
 // 200 and lists it.
-func (s *Set) registerLedgerWritable(src Sources) {
+func (s *Set) registerLedgerWritable(opt Options) {
+	src := opt.Sources
 	if src.LedgerWritable == nil {
 		return
 	}

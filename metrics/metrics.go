@@ -199,11 +199,10 @@ func New(opt Options) *Set {
 	}
 
 	// Collectors of their own files (one each), registered in this list.
-	for _, register := range []func(Sources){s.registerDamaged, s.registerLedgerWritable, s.registerProgress,
-		s.registerRetries, s.registerOutside} {
-		register(src)
+	for _, register := range []func(Options){s.registerDamaged, s.registerLedgerWritable, s.registerProgress,
+		s.registerRetries, s.registerOutside, s.registerReceiver} {
+		register(opt)
 	}
-	s.registerReceiver(opt.Inputs)
 
 	version, revision := buildVersion()
 	info := gauge("build_info", "Build of the running quietband: always 1, the labels say which.", "version", "revision", "goversion")

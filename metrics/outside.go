@@ -6,7 +6,8 @@ import "github.com/prometheus/client_golang/prometheus"
 // 17, item 5): the times the event log's active file was found moved
 // away, deleted, replaced or cut by something other than the daemon
 // (eventlog.Log.Reattach took it up; the daemon's log says how).
-func (s *Set) registerOutside(src Sources) {
+func (s *Set) registerOutside(opt Options) {
+	src := opt.Sources
 	if src.EventLogOutsideChanges == nil {
 		return
 	}

@@ -135,6 +135,6 @@ func (s *Set) AnalysisStarted(input string) *Analysis {
 }
 
 // registerProgress adds the progress collector (see progress).
-func (s *Set) registerProgress(Sources) {
+func (s *Set) registerProgress(Options) {
 	s.reg.MustRegister(s.progress)
 }

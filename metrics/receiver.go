@@ -25,7 +25,7 @@ type receiver struct {
 
 // registerReceiver adds the receiver's series; each input's fault series
 // start at 0.
-func (s *Set) registerReceiver(inputs []string) {
+func (s *Set) registerReceiver(opt Options) {
 	r := &receiver{
 		fault: prometheus.NewGaugeVec(prometheus.GaugeOpts{Namespace: Namespace, Name: "front_end_fault",
 			Help: "1 while the input's latest analysed capture has the front-end fault (dead: every sample zero; stuck: one value; gap: a run of zeros or a sample drop; unnormalised: float samples far beyond full scale), else 0: the recorder, not the sky, explains the samples."},
@@ -40,7 +40,7 @@ func (s *Set) registerReceiver(inputs []string) {
 			[]string{"input"}),
 	}
 	s.reg.MustRegister(r.fault, r.faults, r.clock, r.inverted)
-	for _, in := range inputs {
+	for _, in := range opt.Inputs {
 		for _, k := range FrontEndFaults {
 			r.fault.WithLabelValues(in, k).Set(0)
 			r.faults.WithLabelValues(in, k)

@@ -6,7 +6,8 @@ import "github.com/prometheus/client_golang/prometheus"
 // the times a capture's reading failed for a transient reason (out of
 // file descriptors or memory, EAGAIN, a network file system's EIO …) and
 // it was scheduled to be tried again rather than quarantined.
-func (s *Set) registerRetries(src Sources) {
+func (s *Set) registerRetries(opt Options) {
+	src := opt.Sources
 	if src.CaptureRetries == nil {
 		return
 	}

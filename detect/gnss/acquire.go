@@ -704,23 +704,17 @@ func (a *Acquirer) searchPRNs(ps []prnState) {
 // and covered checks the cut against its result). If they contradict
 // each other (lo > hi), the window stays as it is.
 func (a *Acquirer) boundWindow(det []Acquired) bool {
-	k := float64(a.nBlock)
 	strongest := 0.0
 	for _, r := range det {
-		strongest = max(strongest, r.PeakMetric/k-1)
+		strongest = max(strongest, a.lambda(r))
 	}
-	lo, hi := math.Inf(-1), math.Inf(1)
-	for _, r := range det {
-		if xcStronger*(r.PeakMetric/k-1) >= strongest {
-			lo, hi = max(lo, r.DopplerHz-a.cfg.DopplerMaxHz), min(hi, r.DopplerHz+a.cfg.DopplerMaxHz)
-		}
-	}
-	if !(lo <= hi) {
+	lo, hi, ok := a.clockBound(det, strongest/xcStronger)
+	if !ok {
 		return false
 	}
 	cut := false
 	for d, f := range a.dops {
-		in := a.window[d] && f >= lo-a.cfg.DopplerMaxHz-a.cfg.DopplerStepHz && f <= hi+a.cfg.DopplerMaxHz+a.cfg.DopplerStepHz
+		in := a.window[d] && a.allows(f, lo, hi)
 		if a.active[d] && !in {
 			cut = true
 		}
@@ -729,30 +723,36 @@ func (a *Acquirer) boundWindow(det []Acquired) bool {
 	return cut
 }
 
+// lambda is a detection's λ̂ = S/σ̂²/K − 1, its SNR estimate.
+func (a *Acquirer) lambda(r Acquired) float64 { return r.PeakMetric/float64(a.nBlock) - 1 }
+
 // clockBound returns the clock bound [lo, hi] of boundWindow for the
-// detections det; ok is false if there are none or they contradict each
-// other.
-func (a *Acquirer) clockBound(det []Acquired) (lo, hi float64, ok bool) {
-	if len(det) == 0 {
-		return 0, 0, false
-	}
+// detections det whose λ̂ is at least minLambda; ok is false if there
+// are none or they contradict each other.
+func (a *Acquirer) clockBound(det []Acquired, minLambda float64) (lo, hi float64, ok bool) {
 	lo, hi = math.Inf(-1), math.Inf(1)
 	for _, r := range det {
-		lo, hi = max(lo, r.DopplerHz-a.cfg.DopplerMaxHz), min(hi, r.DopplerHz+a.cfg.DopplerMaxHz)
+		if a.lambda(r) >= minLambda {
+			lo, hi = max(lo, r.DopplerHz-a.cfg.DopplerMaxHz), min(hi, r.DopplerHz+a.cfg.DopplerMaxHz)
+		}
 	}
 	return lo, hi, lo <= hi
+}
+
+// allows reports whether a satellite's Doppler can be f when the clock
+// lies in [lo, hi]: within DopplerMaxHz of it, widened by a step.
+func (a *Acquirer) allows(f, lo, hi float64) bool {
+	m := a.cfg.DopplerMaxHz + a.cfg.DopplerStepHz
+	return f >= lo-m && f <= hi+m
 }
 
 // covered reports whether every row of the window that the detections
 // det allow (boundWindow's rule) was searched for every PRN: the rows
 // still active at the end were searched by all batches.
 func (a *Acquirer) covered(det []Acquired) bool {
-	lo, hi, ok := a.clockBound(det)
+	lo, hi, ok := a.clockBound(det, math.Inf(-1))
 	for d, f := range a.dops {
-		if !a.window[d] || a.active[d] {
-			continue
-		}
-		if !ok || f >= lo-a.cfg.DopplerMaxHz-a.cfg.DopplerStepHz && f <= hi+a.cfg.DopplerMaxHz+a.cfg.DopplerStepHz {
+		if a.window[d] && !a.active[d] && (!ok || a.allows(f, lo, hi)) {
 			return false
 		}
 	}

@@ -277,19 +277,8 @@ func VerifyResumed(paths ...string) (*Record, Break, Summary, error) {
 		if rec.Prev != prev {
 			return brk, b, sum, &VerifyError{File: rec.File, Line: rec.LineNo, Seq: want, Problem: prevProblem("the record before it")}
 		}
-		h := sha256Hex(rec.Line)
-		prev = h
-		sum.Records++
-		sum.Head = h
-		switch rec.Kind {
-		case KindEvent:
-			sum.Events++
-		case KindCapture:
-			sum.Captures++
-		case KindBreak:
-			sum.Breaks++
-		}
-		sum.addTimes(rec.Line)
+		prev = sha256Hex(rec.Line)
+		sum.add(rec, prev)
 	}
 	sum.Files = len(paths)
 	return brk, b, sum, nil

@@ -1,8 +1,6 @@
 package eventlog
 
 import (
-	"crypto/sha256"
-	"encoding/hex"
 	"errors"
 	"fmt"
 	"io"
@@ -93,23 +91,27 @@ func Verify(paths ...string) (Summary, error) {
 			}
 			return sum, &VerifyError{File: rec.File, Line: rec.LineNo, Seq: want, Problem: p}
 		}
-		h := sha256.Sum256(rec.Line)
-		prev = hex.EncodeToString(h[:])
+		prev = sha256Hex(rec.Line)
 		prevFile, prevLine = rec.File, rec.LineNo
-		sum.Records++
-		sum.Head = prev
-		switch rec.Kind {
-		case KindEvent:
-			sum.Events++
-		case KindCapture:
-			sum.Captures++
-		case KindBreak:
-			sum.Breaks++
-		}
-		sum.addTimes(rec.Line)
+		sum.add(rec, prev)
 	}
 	sum.Files = len(paths)
 	return sum, nil
+}
+
+// add counts a record that verified, whose line hashes to head.
+func (s *Summary) add(rec Record, head string) {
+	s.Records++
+	s.Head = head
+	switch rec.Kind {
+	case KindEvent:
+		s.Events++
+	case KindCapture:
+		s.Captures++
+	case KindBreak:
+		s.Breaks++
+	}
+	s.addTimes(rec.Line)
 }
 
 // addTimes widens First and Last with the record's "start" and "end".

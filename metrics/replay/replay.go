@@ -79,13 +79,6 @@ func Analyse(ctx context.Context, pipe *detect.Pipeline, f ingest.Found, opts ..
 		rec.MetadataSHA256 = MetadataSHA256(f)
 		return Outcome{Record: rec, Err: err}, nil
 	}
-	// The capture's identity (issue 17, items 6 and 7): its input, on the
-	// record and every event, and how its metadata reads the samples.
-	res.Record.Input = f.Input
-	res.Record.MetadataSHA256 = MetadataSHA256(f)
-	for i := range res.Events {
-		res.Events[i].Input = f.Input
-	}
 	if f.Capture.TimeProblem != "" {
 		res.Record.Notes = append(res.Record.Notes, f.Capture.TimeProblem)
 	}
@@ -95,10 +88,10 @@ func Analyse(ctx context.Context, pipe *detect.Pipeline, f ingest.Found, opts ..
 // MetadataSHA256 is the ReadingSHA256 of an opened SigMF capture's
 // metadata (ingest.Meta), "" for a raw file or a capture not opened.
 func MetadataSHA256(f ingest.Found) string {
-	if f.Capture == nil || f.Capture.Meta == nil {
+	if f.Capture == nil {
 		return ""
 	}
-	return f.Capture.Meta.ReadingSHA256
+	return f.Capture.MetadataSHA256()
 }
 
 // Quarantined is the capture record of a capture that cannot be analysed:
